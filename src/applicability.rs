@@ -1,0 +1,1 @@
+//! applicability (placeholder, see its issue).

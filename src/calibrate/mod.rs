@@ -1,0 +1,1 @@
+//! calibrate (placeholder, see its issue).

@@ -1,0 +1,1 @@
+//! decide (placeholder, see its issue).

@@ -1,0 +1,1 @@
+//! ensemble (placeholder, see its issue).

@@ -1,0 +1,1 @@
+//! grid (placeholder, see its issue).

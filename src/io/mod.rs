@@ -1,0 +1,1 @@
+//! io (placeholder, see its issue).

@@ -1,0 +1,1 @@
+//! metrics (placeholder, see its issue).

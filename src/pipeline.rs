@@ -1,0 +1,1 @@
+//! pipeline (placeholder, see its issue).

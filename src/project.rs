@@ -1,0 +1,1 @@
+//! project (placeholder, see its issue).

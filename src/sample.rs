@@ -1,0 +1,1 @@
+//! sample (placeholder, see its issue).

@@ -1,0 +1,1 @@
+//! synth (placeholder, see its issue).

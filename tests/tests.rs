@@ -1,0 +1,8 @@
+//! Integration tests, compiled as one binary. Each area keeps its tests in its own folder.
+
+mod calibrate;
+mod ensemble;
+mod foundation;
+mod pipeline;
+mod report;
+mod synth;
