@@ -100,7 +100,7 @@ pub fn parse(
     if header.is_empty() || header.iter().all(|h| h.is_empty()) {
         return Err(IoError::format(path, "empty file: no header line"));
     }
-    let header_line = rdr.position().line().max(1);
+    let header_line = header.position().map_or(1, |p| p.line()).max(1);
     let mut index: HashMap<&str, usize> = HashMap::new();
     for (k, name) in header.iter().enumerate() {
         if index.insert(name, k).is_some() {
