@@ -286,26 +286,30 @@ fn summary_section(h: &mut String, input: &ReportInput) {
     } else {
         h.push_str(
             "<p class=\"note\">Skill and coverage come from wells held out of training \
-             (leave-wells-out). Coverage is the fraction of held-out truths inside the band; the \
+             (leave-wells-out); RMSE, bias and mean band width are in the target's unit. Coverage is the fraction of held-out truths inside the band; the \
              bottom and top deciles are the lowest and highest tenth of the truths, where \
-             regression to the mean shows first.</p>\n<table><tr><th class=\"l\">target</th>\
+             regression to the mean shows first.</p>\n<table><tr><th class=\"l\">target</th><th class=\"l\">unit</th>\
              <th>wells</th><th>rows</th><th class=\"l\">learner</th><th class=\"l\">end correction</th>\
              <th>R&sup2; (-)</th><th>RMSE</th><th>bias</th><th>coverage</th><th>nominal</th>\
              <th>bottom decile</th><th>top decile</th><th>mean width</th></tr>\n",
         );
         for t in &input.targets {
             let s = &t.summary;
-            let u = unit_suffix(&t.unit);
             let _ = writeln!(
                 h,
-                "<tr><td class=\"l\"><b>{}</b>{}</td><td>{}</td><td>{}</td><td class=\"l\">{}</td>\
-                 <td class=\"l\">{}</td><td>{}</td><td>{}{u}</td><td>{}{u}</td><td>{}</td><td>{}</td>\
-                 <td>{}</td><td>{}</td><td>{}{u}</td></tr>",
+                "<tr><td class=\"l\"><b>{}</b>{}</td><td class=\"l\">{}</td><td>{}</td><td>{}</td>\
+                 <td class=\"l\">{}</td><td class=\"l\">{}</td><td>{}</td><td>{}</td><td>{}</td>\
+                 <td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td></tr>",
                 escape(&t.name),
                 if t.description.is_empty() {
                     String::new()
                 } else {
                     format!("<br><small>{}</small>", escape(&t.description))
+                },
+                if t.unit.is_empty() {
+                    "-".to_string()
+                } else {
+                    escape(&t.unit)
                 },
                 s.wells.map_or(NOT_COMPUTED.to_string(), |v| v.to_string()),
                 s.rows.map_or(NOT_COMPUTED.to_string(), |v| v.to_string()),

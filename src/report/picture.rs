@@ -76,6 +76,7 @@ pub fn encode_png(rgb: &[u8], width: u32, height: u32) -> Result<Vec<u8>, Report
         let mut enc = png::Encoder::new(&mut out, width, height);
         enc.set_color(png::ColorType::Rgb);
         enc.set_depth(png::BitDepth::Eight);
+        enc.set_adaptive_filter(png::AdaptiveFilterType::Adaptive);
         let mut writer = enc
             .write_header()
             .map_err(|e| ReportError::Png(e.to_string()))?;
@@ -1045,7 +1046,11 @@ pub fn bars_png(p: &BarPicture, width: u32, height: u32) -> Result<Vec<u8>, Repo
     let legend = p.series.len() > 1 || p.reference.is_some();
     let pad = (v1 - v0) * 0.06;
     // room on the far side for the legend box
-    let far = if legend { (v1 - v0) * 0.35 } else { pad };
+    let far = if legend {
+        (v1 - v0) * if p.horizontal { 0.6 } else { 0.35 }
+    } else {
+        pad
+    };
     let (v0, v1) = (if v0 < 0.0 { v0 - pad } else { 0.0 }, v1 + far);
     let c_range = -0.5..(nc.max(1) as f64 - 0.5);
     let longest = p

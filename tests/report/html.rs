@@ -257,3 +257,18 @@ fn same_json(a: &serde_json::Value, b: &serde_json::Value, at: &str) {
         _ => assert!(a == b, "{at}: {a} vs {b}"),
     }
 }
+
+#[test]
+fn text_is_escaped_and_numbers_formatted() {
+    use tidemark::report::html::{escape, num, pct};
+    assert_eq!(
+        escape("<a href=\"x\">'&'</a>"),
+        "&lt;a href=&quot;x&quot;&gt;&#39;&amp;&#39;&lt;/a&gt;"
+    );
+    assert_eq!(num(Some(0.123456)), "0.123");
+    assert_eq!(num(Some(1234.4)), "1234");
+    assert_eq!(num(Some(-0.000123)), "-0.000123");
+    assert!(num(None).contains("not computed"));
+    assert!(num(Some(f64::NAN)).contains("not computed"));
+    assert_eq!(pct(Some(0.8)), "80.0&nbsp;%");
+}

@@ -438,3 +438,44 @@ fn empty_plots_still_draw() {
     };
     assert_eq!(decode(&bars_png(&bp, 300, 200).unwrap()).height, 200);
 }
+
+proptest::proptest! {
+    #![proptest_config(proptest::prelude::ProptestConfig::with_cases(48))]
+    /// Whatever the rotation and spacing, the pixel under a node's centre shows that node.
+    #[test]
+    fn node_centre_pixel_shows_the_node(
+        rotation in -180.0f64..180.0,
+        dx in 5.0f64..50.0,
+        ratio in 0.5f64..2.0,
+        nx in 1usize..25,
+        ny in 1usize..25,
+        fi in 0.0f64..1.0,
+        fj in 0.0f64..1.0,
+    ) {
+        let g = MapGeometry { origin_x: 4.2e5, origin_y: 6.1e6, dx, dy: dx * ratio, nx, ny, rotation_deg: rotation };
+        let (i, j) = (((nx as f64 * fi) as usize).min(nx - 1), ((ny as f64 * fj) as usize).min(ny - 1));
+        let mut v = vec![0.0; nx * ny];
+        v[j * nx + i] = 1.0;
+        let p = picture(g, &v);
+        let view = MapView::fit(&g, 0..400, 0..400);
+        let img = raster(&p, &view, 400, 400);
+        let (x, y) = g.node_xy(i, j);
+        let (px, py) = view.world_to_pixel(x, y);
+        let (cx, cy) = (px.floor() as usize, py.floor() as usize);
+        proptest::prop_assert_eq!(img[cy * 400 + cx], YELLOW);
+        // and the view keeps equal scales on both axes
+        let sx = (view.xmax - view.xmin) / 400.0;
+        let sy = (view.ymax - view.ymin) / 400.0;
+        proptest::prop_assert!((sx - sy).abs() <= 1e-9 * sx);
+    }
+}
+
+#[test]
+fn tick_labels_are_short_and_exact() {
+    use tidemark::report::picture::format_tick;
+    assert_eq!(format_tick(0.30000000000000004, 1.0), "0.3");
+    assert_eq!(format_tick(2500.0, 3000.0), "2500");
+    assert_eq!(format_tick(-0.0, 1.0), "0");
+    assert_eq!(format_tick(0.125, 0.5), "0.125");
+    assert_eq!(format_tick(6.1e6, 2000.0), "6100000");
+}
