@@ -1,1 +1,11 @@
-//! Integration tests: calibrate.
+//! Integration tests: calibrate (folds, isotonic regression, conformal bands, exceedance
+//! probabilities, metrics).
+
+mod coverage;
+mod end_correction;
+mod folds;
+mod generated;
+mod isotonic;
+mod metrics;
+mod pit;
+mod too_few;

@@ -1,0 +1,435 @@
+//! Conformal bands from held-out-well scores.
+//!
+//! **Split conformal** (Vovk, Gammerman & Shafer 2005; Lei, G'Sell, Rinaldo, Tibshirani & Wasserman
+//! 2018, JASA 113:1094): with `n` calibration scores, the `ceil((n+1)(1-a))`-th smallest bounds a
+//! new score with probability at least `1-a`, and at most `1-a+1/(n+1)` for distinct scores. Each
+//! band edge is calibrated on its own side at `a/2` (the asymmetric form of Romano, Patterson &
+//! Candes 2019, Theorem 2), so that the lower edge is a calibrated `a/2` quantile (P10 at the
+//! default level) and the upper edge a calibrated `1-a/2` quantile (P90).
+//!
+//! **Wells as units.** Rows of a well are not exchangeable with each other, wells are. Every row
+//! carries weight `1/(rows of its well)` (see [`super::well_unit_weights`]), so each well counts
+//! once; `n` is the total weight and the quantile is the smallest score whose cumulative weight
+//! reaches `(1-a/2)(n+1)`. This is the "pooled CDF" construction for hierarchical data (Dunn,
+//! Wasserman & Ramdas, JASA 2023); it reduces to the ordinary rule when every well has one row.
+//! The expected fraction of a new well's rows inside the band is at least `1-a`.
+//!
+//! **Scores.** [`BandMethod::CvResidual`]: residuals of the corrected predictor on held-out wells,
+//! the band centred on the predictor — the K-fold "CV" band that Barber, Candes, Ramdas &
+//! Tibshirani (2021, Ann. Stat. 49:486) set beside CV+; it uses one final model at prediction time
+//! instead of the K fold models CV+ needs at every grid node. [`BandMethod::Cqr`]: conformalised
+//! quantile regression (Romano, Patterson & Candes 2019, NeurIPS), scores
+//! `E_lo = q_lo(x) - y`, `E_hi = y - q_hi(x)` on the forest's conditional quantiles.
+//!
+//! **Ends.** Scores are calibrated separately in Mondrian bins of the predicted value (Vovk et al.
+//! 2005, ch. 4.5), starting from `max_bins` equal-weight bins and merging the smallest bin into its
+//! smaller neighbour until every bin holds enough wells.
+//!
+//! **Too few wells.** When `ceil((n+1)(1-a/2)) > n` the data cannot back a finite edge at the
+//! requested level; the edge is then the target's physical bound and the band is flagged.
+
+use super::well_unit_weights;
+use serde::{Deserialize, Serialize};
+
+/// Which conformity scores make the band.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum BandMethod {
+    /// Held-out-well residuals of the corrected predictor; band `[mid - Q_lo, mid + Q_hi]`.
+    CvResidual,
+    /// Conformalised quantile regression on the forest's quantiles; band `[q_lo - Q_lo, q_hi + Q_hi]`.
+    Cqr,
+}
+
+/// Tolerance on cumulative weights (guards `0.9 * 10 = 9.000000000000002`).
+const WEIGHT_EPS: f64 = 1e-9;
+
+/// Weighted split-conformal quantile: the smallest score whose cumulative weight (scores in
+/// increasing order) reaches `(1 - alpha) (n + 1)`, where `n` is the total weight. `None` when the
+/// total weight is too small for that (the quantile is `+inf`), or when there are no scores.
+///
+/// With unit weights this is the `ceil((n+1)(1-alpha))`-th smallest score (Lei et al. 2018).
+pub fn conformal_quantile(scores: &[f64], weights: &[f64], alpha: f64) -> Option<f64> {
+    let mut pairs: Vec<(f64, f64)> = scores
+        .iter()
+        .zip(weights)
+        .filter(|(s, w)| s.is_finite() && w.is_finite() && **w > 0.0)
+        .map(|(&s, &w)| (s, w))
+        .collect();
+    if pairs.is_empty() {
+        return None;
+    }
+    let total: f64 = pairs.iter().map(|p| p.1).sum();
+    let target = (1.0 - alpha) * (total + 1.0);
+    if total < target - WEIGHT_EPS {
+        return None;
+    }
+    pairs.sort_by(|a, b| a.0.total_cmp(&b.0));
+    let mut cum = 0.0;
+    for &(s, w) in &pairs {
+        cum += w;
+        if cum >= target - WEIGHT_EPS {
+            return Some(s);
+        }
+    }
+    pairs.last().map(|p| p.0)
+}
+
+/// Whether `n` wells (total unit weight) can back a finite two-sided band at `level`:
+/// `ceil((n+1)(1-a/2)) <= n` with `a = 1 - level`.
+pub fn finite_band_possible(n_wells: f64, level: f64) -> bool {
+    let a = 1.0 - level;
+    (n_wells + 1.0) * (1.0 - a / 2.0) <= n_wells + WEIGHT_EPS
+}
+
+/// The fewest wells that can back a finite two-sided band at `level` (9 at the default 0.8).
+pub fn min_wells_for_band(level: f64) -> usize {
+    let a = 1.0 - level;
+    if a <= 0.0 {
+        return usize::MAX;
+    }
+    // (n+1)(1-a/2) <= n  <=>  n >= (1-a/2)/(a/2) = 2/a - 1
+    let mut n = ((2.0 / a) - 1.0).floor().max(1.0) as usize;
+    while !finite_band_possible(n as f64, level) {
+        n += 1;
+    }
+    n
+}
+
+/// Mondrian bins of the predicted value: `edges.len() + 1` bins; bin `i` holds values in
+/// `(edges[i-1], edges[i]]`.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct MondrianBins {
+    /// Interior cut points, strictly increasing.
+    pub edges: Vec<f64>,
+}
+
+impl MondrianBins {
+    /// One bin holding everything.
+    pub fn single() -> Self {
+        Self { edges: Vec::new() }
+    }
+
+    /// Number of bins.
+    pub fn len(&self) -> usize {
+        self.edges.len() + 1
+    }
+
+    /// Always false: there is at least one bin.
+    pub fn is_empty(&self) -> bool {
+        false
+    }
+
+    /// Bin of a predicted value (`NaN` goes to bin 0).
+    pub fn bin(&self, v: f64) -> usize {
+        if v.is_nan() {
+            return 0;
+        }
+        self.edges.partition_point(|&e| e < v)
+    }
+
+    /// Build bins from predicted values: `max_bins` bins at equal-weight quantiles of `pred` (each
+    /// well weighing one), then the bin with the least weight is merged into its lighter neighbour
+    /// until every bin holds at least `min_wells` wells of weight.
+    pub fn build(pred: &[f64], group: &[usize], max_bins: usize, min_wells: f64) -> Self {
+        let w = well_unit_weights(group);
+        let mut pw: Vec<(f64, f64)> = pred
+            .iter()
+            .zip(&w)
+            .filter(|(p, _)| p.is_finite())
+            .map(|(&p, &w)| (p, w))
+            .collect();
+        if pw.is_empty() || max_bins <= 1 {
+            return Self::single();
+        }
+        pw.sort_by(|a, b| a.0.total_cmp(&b.0));
+        let total: f64 = pw.iter().map(|p| p.1).sum();
+        let mut edges: Vec<f64> = Vec::new();
+        for j in 1..max_bins {
+            let target = total * j as f64 / max_bins as f64;
+            let mut cum = 0.0;
+            for &(p, wi) in &pw {
+                cum += wi;
+                if cum >= target - WEIGHT_EPS {
+                    if edges.last().is_none_or(|&l| p > l) && p < pw[pw.len() - 1].0 {
+                        edges.push(p);
+                    }
+                    break;
+                }
+            }
+        }
+        let mut bins = Self { edges };
+        loop {
+            if bins.edges.is_empty() {
+                break;
+            }
+            let mut weight = vec![0.0; bins.len()];
+            for &(p, wi) in &pw {
+                weight[bins.bin(p)] += wi;
+            }
+            let (light, lw) = weight
+                .iter()
+                .enumerate()
+                .fold(
+                    (0, f64::INFINITY),
+                    |acc, (i, &v)| if v < acc.1 { (i, v) } else { acc },
+                );
+            if lw + WEIGHT_EPS >= min_wells {
+                break;
+            }
+            // Merge with the lighter neighbour: remove the edge between them.
+            let merge_left =
+                light > 0 && (light == bins.len() - 1 || weight[light - 1] <= weight[light + 1]);
+            let edge = if merge_left { light - 1 } else { light };
+            bins.edges.remove(edge);
+        }
+        bins
+    }
+}
+
+/// Facts about one Mondrian bin of a calibrated band.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct BinInfo {
+    /// Lower edge of the bin on the predicted value (exclusive); `None` for the lowest bin.
+    pub lower: Option<f64>,
+    /// Upper edge (inclusive); `None` for the highest bin.
+    pub upper: Option<f64>,
+    /// Distinct wells with at least one row in the bin.
+    pub wells: usize,
+    /// Total well weight in the bin (each well weighs one, shared among its rows): the `n` of the
+    /// conformal rule.
+    pub well_weight: f64,
+    /// Rows in the bin.
+    pub rows: usize,
+    /// Conformal quantile of the lower-side scores; `None` when the bin cannot back a finite edge.
+    pub q_lo: Option<f64>,
+    /// Conformal quantile of the upper-side scores; `None` likewise.
+    pub q_hi: Option<f64>,
+}
+
+/// A calibrated band: scores' conformal quantiles per Mondrian bin.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct BandCalibration {
+    /// Which scores.
+    pub method: BandMethod,
+    /// Nominal level of the two-sided band.
+    pub level: f64,
+    /// Bins of the predicted value.
+    pub bins: MondrianBins,
+    /// Per-bin facts and quantiles.
+    pub bin_info: Vec<BinInfo>,
+}
+
+/// One row's inputs to a band: the predicted value and the base edges the scores refer to
+/// (`mid` itself for [`BandMethod::CvResidual`], forest quantiles for [`BandMethod::Cqr`]).
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct BandBase {
+    /// Corrected point prediction (decides the Mondrian bin).
+    pub mid: f64,
+    /// Base lower edge.
+    pub lo: f64,
+    /// Base upper edge.
+    pub hi: f64,
+}
+
+impl BandCalibration {
+    /// Calibrate on held-out-well rows: `base` per row, truth `y`, well id `group`.
+    /// `max_bins`/`min_wells` control the Mondrian bins; the effective minimum is never below
+    /// [`min_wells_for_band`] so that a bin only exists if it can back a finite band.
+    pub fn fit(
+        method: BandMethod,
+        base: &[BandBase],
+        y: &[f64],
+        group: &[usize],
+        level: f64,
+        max_bins: usize,
+        min_wells: usize,
+    ) -> Self {
+        let alpha_side = (1.0 - level) / 2.0;
+        let mids: Vec<f64> = base.iter().map(|b| b.mid).collect();
+        let need = min_wells.max(min_wells_for_band(level)) as f64;
+        let bins = MondrianBins::build(&mids, group, max_bins, need);
+        let w = well_unit_weights(group);
+        let nb = bins.len();
+        let mut s_lo: Vec<Vec<f64>> = vec![Vec::new(); nb];
+        let mut s_hi: Vec<Vec<f64>> = vec![Vec::new(); nb];
+        let mut wt: Vec<Vec<f64>> = vec![Vec::new(); nb];
+        let mut wells: Vec<Vec<usize>> = vec![Vec::new(); nb];
+        for i in 0..base.len().min(y.len()).min(group.len()) {
+            let b = bins.bin(base[i].mid);
+            s_lo[b].push(base[i].lo - y[i]);
+            s_hi[b].push(y[i] - base[i].hi);
+            wt[b].push(w[i]);
+            wells[b].push(group[i]);
+        }
+        let bin_info = (0..nb)
+            .map(|b| {
+                let mut distinct = wells[b].clone();
+                distinct.sort_unstable();
+                distinct.dedup();
+                BinInfo {
+                    lower: if b == 0 {
+                        None
+                    } else {
+                        Some(bins.edges[b - 1])
+                    },
+                    upper: bins.edges.get(b).copied(),
+                    wells: distinct.len(),
+                    well_weight: wt[b].iter().sum(),
+                    rows: wt[b].len(),
+                    q_lo: conformal_quantile(&s_lo[b], &wt[b], alpha_side),
+                    q_hi: conformal_quantile(&s_hi[b], &wt[b], alpha_side),
+                }
+            })
+            .collect();
+        Self {
+            method,
+            level,
+            bins,
+            bin_info,
+        }
+    }
+
+    /// True when some bin cannot back a finite edge (that edge falls back to the bound).
+    pub fn too_few_wells(&self) -> bool {
+        self.bin_info
+            .iter()
+            .any(|b| b.q_lo.is_none() || b.q_hi.is_none())
+    }
+
+    /// Band for one row: `(lo, mid, hi)` inside `bounds` with `lo <= mid <= hi`. An edge whose bin
+    /// cannot back it is the physical bound.
+    pub fn apply(&self, base: BandBase, bounds: (f64, f64)) -> (f64, f64, f64) {
+        let info = &self.bin_info[self.bins.bin(base.mid).min(self.bin_info.len() - 1)];
+        let lo = info.q_lo.map_or(bounds.0, |q| base.lo - q);
+        let hi = info.q_hi.map_or(bounds.1, |q| base.hi + q);
+        order_within_bounds(lo, base.mid, hi, bounds)
+    }
+}
+
+/// Clip `mid` to the bounds, then make `lo <= mid <= hi` inside the bounds (an edge on the wrong
+/// side of the middle moves to the middle, which can only widen the band).
+pub fn order_within_bounds(lo: f64, mid: f64, hi: f64, bounds: (f64, f64)) -> (f64, f64, f64) {
+    let clip = |v: f64| v.clamp(bounds.0, bounds.1);
+    let mid = clip(mid);
+    let lo = if lo.is_nan() {
+        bounds.0
+    } else {
+        clip(lo.min(mid))
+    };
+    let hi = if hi.is_nan() {
+        bounds.1
+    } else {
+        clip(hi.max(mid))
+    };
+    (lo, mid, hi)
+}
+
+/// Cross-fitted band on out-of-fold rows: the rows of fold `k` get the band calibrated on the rows
+/// of all other folds, so no row's band saw that row. Returns `(lo, hi, too_few)` per row, where
+/// `too_few` marks rows whose band fell back to a bound.
+#[allow(clippy::too_many_arguments)]
+pub fn cross_fitted_band(
+    method: BandMethod,
+    folds: &[usize],
+    base: &[BandBase],
+    y: &[f64],
+    group: &[usize],
+    level: f64,
+    max_bins: usize,
+    min_wells: usize,
+    bounds: (f64, f64),
+) -> (Vec<f64>, Vec<f64>, Vec<bool>) {
+    let n = base.len();
+    let mut lo = vec![bounds.0; n];
+    let mut hi = vec![bounds.1; n];
+    let mut few = vec![true; n];
+    let k = super::folds::n_folds(folds);
+    for f in 0..k {
+        let train: Vec<usize> = (0..n).filter(|&i| folds[i] != f).collect();
+        if train.is_empty() {
+            continue;
+        }
+        let cal = BandCalibration::fit(
+            method,
+            &pick(base, &train),
+            &pick(y, &train),
+            &pick(group, &train),
+            level,
+            max_bins,
+            min_wells,
+        );
+        for i in (0..n).filter(|&i| folds[i] == f) {
+            let (l, _, h) = cal.apply(base[i], bounds);
+            let info = &cal.bin_info[cal.bins.bin(base[i].mid).min(cal.bin_info.len() - 1)];
+            lo[i] = l;
+            hi[i] = h;
+            few[i] = info.q_lo.is_none() || info.q_hi.is_none();
+        }
+    }
+    (lo, hi, few)
+}
+
+/// Elements of `v` at `idx`.
+pub(crate) fn pick<T: Copy>(v: &[T], idx: &[usize]) -> Vec<T> {
+    idx.iter().map(|&i| v[i]).collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn quantile_is_the_ceil_rank() {
+        // Lei et al. (2018): q = the ceil((n+1)(1-a))-th smallest score.
+        let s: Vec<f64> = (1..=20).map(f64::from).collect();
+        let w = vec![1.0; 20];
+        // n = 20, a = 0.1: ceil(21 * 0.9) = ceil(18.9) = 19.
+        assert_eq!(conformal_quantile(&s, &w, 0.1), Some(19.0));
+        // a = 0.2: ceil(16.8) = 17.
+        assert_eq!(conformal_quantile(&s, &w, 0.2), Some(17.0));
+        // n = 9, a = 0.1: ceil(9.0) = 9, the largest; n = 8: ceil(8.1) = 9 > 8.
+        assert_eq!(conformal_quantile(&s[..9], &w[..9], 0.1), Some(9.0));
+        assert_eq!(conformal_quantile(&s[..8], &w[..8], 0.1), None);
+    }
+
+    #[test]
+    fn minimum_wells_at_80_percent_is_nine() {
+        // reference-checks: an 80 % two-sided band from a 10 %/90 % split needs n >= 9.
+        assert_eq!(min_wells_for_band(0.8), 9);
+        assert!(finite_band_possible(9.0, 0.8));
+        assert!(!finite_band_possible(8.0, 0.8));
+        // 90 % band, 5 % per side: ceil((n+1) 0.95) <= n  <=>  n >= 19.
+        assert_eq!(min_wells_for_band(0.9), 19);
+    }
+
+    #[test]
+    fn bins_merge_until_each_holds_enough_wells() {
+        let pred: Vec<f64> = (0..30).map(f64::from).collect();
+        let group: Vec<usize> = (0..30).collect();
+        let b = MondrianBins::build(&pred, &group, 3, 10.0);
+        assert_eq!(b.len(), 3);
+        // 30 wells in 3 bins of 10 cannot give bins of 11 by merging neighbours.
+        let b = MondrianBins::build(&pred, &group, 3, 11.0);
+        assert_eq!(b.len(), 1);
+        // 4 bins hold 8, 7, 8, 7 wells; merging for 8 gives two bins of 15.
+        let b = MondrianBins::build(&pred, &group, 4, 8.0);
+        assert_eq!(b.edges, vec![14.0]);
+    }
+
+    #[test]
+    fn band_is_ordered_and_bounded() {
+        assert_eq!(
+            order_within_bounds(2.0, 1.0, 0.5, (0.0, 3.0)),
+            (1.0, 1.0, 1.0)
+        );
+        assert_eq!(
+            order_within_bounds(-5.0, 1.0, 9.0, (0.0, 3.0)),
+            (0.0, 1.0, 3.0)
+        );
+        assert_eq!(
+            order_within_bounds(-5.0, 7.0, 9.0, (0.0, 3.0)),
+            (0.0, 3.0, 3.0)
+        );
+    }
+}
