@@ -1,1 +1,332 @@
-//! applicability (placeholder, see its issue).
+//! Area of applicability: where a prediction stands on ground the training wells cover.
+//!
+//! Follows Meyer & Pebesma (2021), "Predicting into unknown space? Estimating the area of
+//! applicability of spatial prediction models", Methods in Ecology and Evolution 12:1620-1633:
+//!
+//! 1. each predictor is standardised with the training mean and standard deviation and multiplied by
+//!    its importance weight;
+//! 2. the dissimilarity index of a location is the distance to its nearest training point divided by
+//!    the mean pairwise distance between training points, `DI = d_min / d_bar`;
+//! 3. for training points the nearest neighbour is searched only outside the point's own
+//!    cross-validation fold, so the training DI shows what the validation saw;
+//! 4. the threshold is the upper whisker of the training DI: the largest training DI that does not
+//!    exceed `Q3 + 1.5 IQR`.
+//!
+//! A per-attribute training-range check complements the index: a node whose attribute lies outside
+//! the range seen at the wells is flagged even when its DI is small.
+
+use ndarray::{Array2, ArrayView2, Axis};
+use rayon::prelude::*;
+use serde::{Deserialize, Serialize};
+
+/// Errors raised while building an applicability model.
+#[derive(Debug, thiserror::Error)]
+pub enum ApplicabilityError {
+    /// Fewer than two training rows: no pairwise distance exists.
+    #[error("the area of applicability needs at least 2 training rows, got {0}")]
+    TooFewRows(usize),
+    /// Lengths of the inputs disagree.
+    #[error("{what}: expected {expected}, got {got}")]
+    Shape {
+        /// What disagrees.
+        what: &'static str,
+        /// Expected length.
+        expected: usize,
+        /// Length given.
+        got: usize,
+    },
+    /// Every training point coincides after scaling (all weights zero or constant features).
+    #[error("all training points coincide after scaling; the dissimilarity index is undefined")]
+    Degenerate,
+}
+
+/// A fitted area-of-applicability model (serialisable with the calibrated model).
+#[derive(Clone, Debug, Serialize, Deserialize)]
+pub struct Applicability {
+    /// Feature names, in column order.
+    pub feature_names: Vec<String>,
+    /// Training mean per feature.
+    pub mean: Vec<f64>,
+    /// Training standard deviation per feature (1 where a feature is constant).
+    pub scale: Vec<f64>,
+    /// Importance weight per feature (non-negative, sums to the number of features).
+    pub weight: Vec<f64>,
+    /// Scaled, weighted training points (rows x features, row-major).
+    pub train: Vec<f64>,
+    /// Mean pairwise distance between training points.
+    pub mean_distance: f64,
+    /// DI of each training point against points outside its fold.
+    pub train_di: Vec<f64>,
+    /// Threshold: upper whisker of `train_di`.
+    pub threshold: f64,
+    /// Training minimum per feature.
+    pub min: Vec<f64>,
+    /// Training maximum per feature.
+    pub max: Vec<f64>,
+    /// Features that take part in the range check (e.g. not the step index).
+    pub range_checked: Vec<bool>,
+}
+
+/// What the applicability model says about a set of locations.
+#[derive(Clone, Debug, Default)]
+pub struct Assessment {
+    /// Dissimilarity index per row (`NaN` where a feature is missing).
+    pub di: Vec<f64>,
+    /// Number of range-checked attributes outside the training range per row.
+    pub outside_range: Vec<u32>,
+    /// True inside the area of applicability: DI at most the threshold and every checked
+    /// attribute within the training range.
+    pub inside: Vec<bool>,
+}
+
+impl Applicability {
+    /// Fits the model.
+    ///
+    /// `x` holds the training rows (no missing values), `importance` one non-negative weight per
+    /// feature (all zero falls back to equal weights), `fold` the cross-validation fold of each row
+    /// and `range_checked` which features take part in the training-range check.
+    pub fn fit(
+        feature_names: &[String],
+        x: ArrayView2<f64>,
+        importance: &[f64],
+        fold: &[usize],
+        range_checked: &[bool],
+    ) -> Result<Self, ApplicabilityError> {
+        let (n, p) = x.dim();
+        if n < 2 {
+            return Err(ApplicabilityError::TooFewRows(n));
+        }
+        for (what, got) in [
+            ("importance weights", importance.len()),
+            ("feature names", feature_names.len()),
+            ("range-check flags", range_checked.len()),
+        ] {
+            if got != p {
+                return Err(ApplicabilityError::Shape {
+                    what,
+                    expected: p,
+                    got,
+                });
+            }
+        }
+        if fold.len() != n {
+            return Err(ApplicabilityError::Shape {
+                what: "fold per training row",
+                expected: n,
+                got: fold.len(),
+            });
+        }
+        let mean: Vec<f64> = (0..p).map(|c| x.column(c).mean().unwrap_or(0.0)).collect();
+        let scale: Vec<f64> = (0..p)
+            .map(|c| {
+                let sd = x.column(c).std(1.0);
+                if sd.is_finite() && sd > 0.0 { sd } else { 1.0 }
+            })
+            .collect();
+        let clean: Vec<f64> = importance
+            .iter()
+            .map(|w| if w.is_finite() && *w > 0.0 { *w } else { 0.0 })
+            .collect();
+        let total: f64 = clean.iter().sum();
+        let weight: Vec<f64> = if total > 0.0 {
+            clean.iter().map(|w| w * p as f64 / total).collect()
+        } else {
+            vec![1.0; p]
+        };
+        let mut train = Vec::with_capacity(n * p);
+        for row in x.axis_iter(Axis(0)) {
+            for c in 0..p {
+                train.push((row[c] - mean[c]) / scale[c] * weight[c]);
+            }
+        }
+        let dist = |a: usize, b: usize| -> f64 {
+            let (ra, rb) = (&train[a * p..(a + 1) * p], &train[b * p..(b + 1) * p]);
+            ra.iter()
+                .zip(rb)
+                .map(|(u, v)| (u - v) * (u - v))
+                .sum::<f64>()
+                .sqrt()
+        };
+        // Mean pairwise distance, summed row by row in a fixed order.
+        let row_sums: Vec<f64> = (0..n)
+            .into_par_iter()
+            .map(|a| ((a + 1)..n).map(|b| dist(a, b)).sum::<f64>())
+            .collect();
+        let pairs = (n * (n - 1) / 2) as f64;
+        let mean_distance = row_sums.iter().sum::<f64>() / pairs;
+        if mean_distance <= 0.0 || !mean_distance.is_finite() {
+            return Err(ApplicabilityError::Degenerate);
+        }
+        let train_di: Vec<f64> = (0..n)
+            .into_par_iter()
+            .map(|a| {
+                let d = (0..n)
+                    .filter(|&b| fold[b] != fold[a])
+                    .map(|b| dist(a, b))
+                    .fold(f64::INFINITY, f64::min);
+                d / mean_distance
+            })
+            .collect();
+        let threshold = upper_whisker(&train_di);
+        let min = (0..p)
+            .map(|c| x.column(c).iter().copied().fold(f64::INFINITY, f64::min))
+            .collect();
+        let max = (0..p)
+            .map(|c| {
+                x.column(c)
+                    .iter()
+                    .copied()
+                    .fold(f64::NEG_INFINITY, f64::max)
+            })
+            .collect();
+        Ok(Self {
+            feature_names: feature_names.to_vec(),
+            mean,
+            scale,
+            weight,
+            train,
+            mean_distance,
+            train_di,
+            threshold,
+            min,
+            max,
+            range_checked: range_checked.to_vec(),
+        })
+    }
+
+    /// Number of features.
+    pub fn n_features(&self) -> usize {
+        self.mean.len()
+    }
+
+    /// Assesses every row of `x` (same columns as the training rows). Rows are independent, so
+    /// the result does not depend on the thread count or on row order.
+    pub fn assess(&self, x: ArrayView2<f64>) -> Assessment {
+        let p = self.n_features();
+        let n_train = self.train.len() / p.max(1);
+        let rows: Vec<(f64, u32)> = (0..x.nrows())
+            .into_par_iter()
+            .map(|r| {
+                let row = x.row(r);
+                let mut z = vec![0.0; p];
+                let mut outside = 0u32;
+                for c in 0..p {
+                    let v = row[c];
+                    if !v.is_finite() {
+                        return (f64::NAN, 0);
+                    }
+                    z[c] = (v - self.mean[c]) / self.scale[c] * self.weight[c];
+                    if self.range_checked[c] && (v < self.min[c] || v > self.max[c]) {
+                        outside += 1;
+                    }
+                }
+                let mut best = f64::INFINITY;
+                for t in 0..n_train {
+                    let tr = &self.train[t * p..(t + 1) * p];
+                    let mut s = 0.0;
+                    for c in 0..p {
+                        let d = z[c] - tr[c];
+                        s += d * d;
+                        if s >= best {
+                            break;
+                        }
+                    }
+                    best = best.min(s);
+                }
+                (best.sqrt() / self.mean_distance, outside)
+            })
+            .collect();
+        let di: Vec<f64> = rows.iter().map(|r| r.0).collect();
+        let outside_range: Vec<u32> = rows.iter().map(|r| r.1).collect();
+        let inside = rows
+            .iter()
+            .map(|&(d, o)| d.is_finite() && d <= self.threshold && o == 0)
+            .collect();
+        Assessment {
+            di,
+            outside_range,
+            inside,
+        }
+    }
+}
+
+/// Quartiles by linear interpolation between order statistics (the default "type 7" of R's
+/// `quantile` and of numpy).
+pub fn quantile_type7(sorted: &[f64], q: f64) -> f64 {
+    if sorted.is_empty() {
+        return f64::NAN;
+    }
+    let h = (sorted.len() - 1) as f64 * q;
+    let lo = h.floor() as usize;
+    let hi = h.ceil() as usize;
+    sorted[lo] + (h - lo as f64) * (sorted[hi] - sorted[lo])
+}
+
+/// Upper whisker of a box plot (Tukey): the largest value not above `Q3 + 1.5 IQR`.
+/// Non-finite values are ignored; an empty input gives `NaN`.
+pub fn upper_whisker(values: &[f64]) -> f64 {
+    let mut v: Vec<f64> = values.iter().copied().filter(|x| x.is_finite()).collect();
+    if v.is_empty() {
+        return f64::NAN;
+    }
+    v.sort_by(f64::total_cmp);
+    let q1 = quantile_type7(&v, 0.25);
+    let q3 = quantile_type7(&v, 0.75);
+    let fence = q3 + 1.5 * (q3 - q1);
+    v.iter()
+        .copied()
+        .filter(|&x| x <= fence)
+        .fold(f64::NEG_INFINITY, f64::max)
+}
+
+/// Convenience: builds a training matrix from row slices (used by tests and examples).
+pub fn matrix(rows: &[Vec<f64>]) -> Array2<f64> {
+    let p = rows.first().map_or(0, Vec::len);
+    let flat: Vec<f64> = rows.iter().flat_map(|r| r.iter().copied()).collect();
+    Array2::from_shape_vec((rows.len(), p), flat).expect("rows of equal length")
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn whisker_matches_boxplot_definition() {
+        // R 4.x: x <- c(1:9, 30); boxplot.stats(x)$stats[5] == 9 (the outlier 30 lies beyond
+        // Q3 + 1.5 IQR = 7.75 + 1.5 * 4.5 = 14.5). Quartiles here are type 7 (R's default):
+        // quantile(x, c(.25, .75)) = 3.25, 7.75.
+        let x: Vec<f64> = (1..=9).map(f64::from).chain([30.0]).collect();
+        let mut s = x.clone();
+        s.sort_by(f64::total_cmp);
+        assert!((quantile_type7(&s, 0.25) - 3.25).abs() < 1e-12);
+        assert!((quantile_type7(&s, 0.75) - 7.75).abs() < 1e-12);
+        assert_eq!(upper_whisker(&x), 9.0);
+    }
+
+    #[test]
+    fn di_by_hand_on_a_line() {
+        // Training points 0, 1, 3 on one feature (sd = sqrt(7/3)), equal weights, each its own
+        // fold. Pairwise distances 1, 3, 2 -> mean 2 (in raw units); the DI is scale free.
+        let names = vec!["a".to_string()];
+        let x = matrix(&[vec![0.0], vec![1.0], vec![3.0]]);
+        let aoa = Applicability::fit(&names, x.view(), &[1.0], &[0, 1, 2], &[true]).unwrap();
+        // Training DI: nearest other point 1, 1, 2 -> 0.5, 0.5, 1.0.
+        for (got, want) in aoa.train_di.iter().zip([0.5, 0.5, 1.0]) {
+            assert!((got - want).abs() < 1e-12, "{got} vs {want}");
+        }
+        let a = aoa.assess(matrix(&[vec![2.0], vec![7.0], vec![f64::NAN]]).view());
+        // 2.0: nearest 1 or 3 at distance 1 -> 0.5; 7.0: nearest 3 at 4 -> 2.0.
+        assert!((a.di[0] - 0.5).abs() < 1e-12);
+        assert!((a.di[1] - 2.0).abs() < 1e-12);
+        assert!(a.di[2].is_nan());
+        assert!(a.inside[0] && !a.inside[1] && !a.inside[2]);
+        assert_eq!(a.outside_range, vec![0, 1, 0]);
+    }
+
+    #[test]
+    fn too_few_rows_is_an_error() {
+        let x = matrix(&[vec![1.0]]);
+        let e = Applicability::fit(&["a".into()], x.view(), &[1.0], &[0], &[true]);
+        assert!(matches!(e, Err(ApplicabilityError::TooFewRows(1))));
+    }
+}

@@ -18,6 +18,7 @@
 
 pub mod applicability;
 pub mod calibrate;
+pub mod check;
 pub mod cli;
 pub mod decide;
 pub mod ensemble;

@@ -1,1 +1,204 @@
-//! sample (placeholder, see its issue).
+//! Attribute extraction at wells into a training set, and node feature tables for prediction.
+//!
+//! One training row per (well, step): the step's attribute maps read at the well's penetration point
+//! (bilinear interpolation, or the mean of the non-null nodes within a radius), then the step index as
+//! a feature, the measured targets (`NaN` = not measured), the well as the group, the coordinates
+//! and the row weight. A row that cannot be used — the point lies outside the grid, the extraction
+//! meets a null node, or no target was measured — is left out and reported as a [`SampleWarning`],
+//! never dropped silently.
+
+use crate::grid::Grid;
+use crate::project::{Extract, Survey};
+use ndarray::Array2;
+use std::fmt;
+
+/// Name of the step feature, the last feature column.
+pub const STEP_FEATURE: &str = "step";
+
+/// Training rows at wells.
+#[derive(Clone, Debug, PartialEq)]
+pub struct TrainingSet {
+    /// Feature names: the attributes in project order, then `"step"`.
+    pub feature_names: Vec<String>,
+    /// Features, rows x features.
+    pub x: Array2<f64>,
+    /// Target names in project order.
+    pub target_names: Vec<String>,
+    /// Targets, rows x targets; `NaN` = not measured.
+    pub y: Array2<f64>,
+    /// Well index of each row (into `well_names`).
+    pub group: Vec<usize>,
+    /// Names of the wells with at least one row, in order of first appearance in the CSV.
+    pub well_names: Vec<String>,
+    /// Step index of each row.
+    pub step: Vec<usize>,
+    /// Penetration point of each row.
+    pub xy: Vec<[f64; 2]>,
+    /// Row weights.
+    pub weight: Vec<f64>,
+}
+
+impl TrainingSet {
+    /// Number of rows.
+    pub fn n_rows(&self) -> usize {
+        self.x.nrows()
+    }
+
+    /// Number of wells with at least one row.
+    pub fn n_wells(&self) -> usize {
+        self.well_names.len()
+    }
+
+    /// Rows where target `t` was measured.
+    pub fn rows_with_target(&self, t: usize) -> Vec<usize> {
+        (0..self.n_rows())
+            .filter(|&r| !self.y[[r, t]].is_nan())
+            .collect()
+    }
+}
+
+/// A well row left out of training, and why.
+#[derive(Clone, Debug, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
+pub struct SampleWarning {
+    /// Well name.
+    pub well: String,
+    /// Step name.
+    pub step: String,
+    /// Why the row was left out.
+    pub reason: String,
+}
+
+impl fmt::Display for SampleWarning {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        write!(
+            f,
+            "well '{}' step '{}' left out: {}",
+            self.well, self.step, self.reason
+        )
+    }
+}
+
+/// Reads every map of a step at `(x, y)`. `Err` carries the reason the point cannot be used: the
+/// point lies outside the hull of the grid nodes, or the named attribute meets a null node.
+pub fn extract_point(
+    grid: &Grid,
+    extract: &Extract,
+    maps: &[Vec<f64>],
+    attribute_names: &[String],
+    x: f64,
+    y: f64,
+) -> Result<Vec<f64>, String> {
+    if !grid.contains(x, y) {
+        return Err(format!("point ({x}, {y}) lies outside the grid"));
+    }
+    let mut out = Vec::with_capacity(maps.len());
+    for (k, map) in maps.iter().enumerate() {
+        let name = attribute_names.get(k).map_or("?", String::as_str);
+        let v = match *extract {
+            Extract::Bilinear => grid
+                .bilinear(map, x, y)
+                .ok_or_else(|| format!("attribute '{name}' has a null node next to ({x}, {y})"))?,
+            Extract::Mean { radius } => grid.window_mean(map, x, y, radius).ok_or_else(|| {
+                format!("attribute '{name}' has no non-null node within {radius} of ({x}, {y})")
+            })?,
+        };
+        out.push(v);
+    }
+    Ok(out)
+}
+
+/// Builds the training set at the wells, with a warning for every row left out.
+pub fn at_wells(survey: &Survey) -> (TrainingSet, Vec<SampleWarning>) {
+    let p = &survey.project;
+    let na = p.attribute_names.len();
+    let nt = p.targets.len();
+    let file = p
+        .wells
+        .file
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_default();
+    let mut warnings = Vec::new();
+    let mut feats: Vec<f64> = Vec::new();
+    let mut targs: Vec<f64> = Vec::new();
+    let mut well_names: Vec<String> = Vec::new();
+    let (mut group, mut step, mut xy, mut weight) =
+        (Vec::new(), Vec::new(), Vec::new(), Vec::new());
+    for rec in &survey.wells {
+        let warn = |reason: String| SampleWarning {
+            well: rec.well.clone(),
+            step: rec.step.clone(),
+            reason: format!("{reason} ({file} line {})", rec.line),
+        };
+        let Some(s) = p.step_index(&rec.step) else {
+            warnings.push(warn("step not in the manifest".into()));
+            continue;
+        };
+        if rec.targets.iter().all(|v| v.is_nan()) {
+            warnings.push(warn("no target value measured".into()));
+            continue;
+        }
+        let Some(maps) = survey.maps.get(s).filter(|m| m.len() == na) else {
+            warnings.push(warn(format!(
+                "the survey does not hold {na} maps for this step"
+            )));
+            continue;
+        };
+        match extract_point(&p.grid, &p.extract, maps, &p.attribute_names, rec.x, rec.y) {
+            Err(reason) => warnings.push(warn(reason)),
+            Ok(values) => {
+                let g = match well_names.iter().position(|w| *w == rec.well) {
+                    Some(g) => g,
+                    None => {
+                        well_names.push(rec.well.clone());
+                        well_names.len() - 1
+                    }
+                };
+                feats.extend(values);
+                feats.push(s as f64);
+                targs.extend((0..nt).map(|t| rec.targets.get(t).copied().unwrap_or(f64::NAN)));
+                group.push(g);
+                step.push(s);
+                xy.push([rec.x, rec.y]);
+                weight.push(rec.weight);
+            }
+        }
+    }
+    let rows = group.len();
+    let mut feature_names = p.attribute_names.clone();
+    feature_names.push(STEP_FEATURE.to_string());
+    let x =
+        Array2::from_shape_vec((rows, na + 1), feats).expect("each kept row has na + 1 features");
+    let y = Array2::from_shape_vec((rows, nt), targs).expect("each kept row has nt targets");
+    let set = TrainingSet {
+        feature_names,
+        x,
+        target_names: p.targets.iter().map(|t| t.name.clone()).collect(),
+        y,
+        group,
+        well_names,
+        step,
+        xy,
+        weight,
+    };
+    (set, warnings)
+}
+
+/// Feature table of every node of one step: one row per node in index order, the attributes in
+/// project order then the step index (same columns as [`TrainingSet::x`]). Null nodes hold `NaN`.
+///
+/// # Panics
+/// If `step` is not a step of the survey.
+pub fn node_features(survey: &Survey, step: usize) -> Array2<f64> {
+    let maps = &survey.maps[step];
+    let n = survey.project.grid.len();
+    let na = maps.len();
+    let mut x = Array2::from_elem((n, na + 1), f64::NAN);
+    for (a, map) in maps.iter().enumerate() {
+        for (r, &v) in map.iter().enumerate().take(n) {
+            x[[r, a]] = v;
+        }
+    }
+    x.column_mut(na).fill(step as f64);
+    x
+}

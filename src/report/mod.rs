@@ -1,1 +1,62 @@
-//! report (placeholder, see its issue).
+//! Pictures and the review page.
+//!
+//! - [`colormap`]: published colour maps (viridis, cividis, ColorBrewer RdBu) and value scales.
+//! - [`font`]: the embedded DejaVu Sans typeface, registered with plotters.
+//! - [`picture`]: PNG maps (rasterised by inverse mapping, rotated grids included), cross-plots,
+//!   line plots and bar charts, returned as PNG bytes.
+//! - [`input`]: [`ReportInput`], the plain serialisable data the page is built from.
+//! - [`html`]: [`render_html`], one self-contained HTML page (pictures as data URIs, inline CSS, no
+//!   scripts, no network), and [`write_html`] (temporary file + rename).
+
+pub mod colormap;
+pub mod font;
+pub mod html;
+pub mod input;
+pub mod picture;
+
+pub use colormap::{Colormap, ColourScale};
+pub use html::{render_html, write_html};
+pub use input::{DATA_FILE, PAGE_FILE, PictureRef, ReportInput};
+pub use picture::{
+    BarPicture, BarSeries, CrossPlot, Curve, LinePicture, MapGeometry, MapPicture, MapView,
+    PointSeries, Reference, bars_png, crossplot_png, line_png, map_png,
+};
+
+use std::path::PathBuf;
+
+/// Errors of the report module.
+#[derive(Debug, thiserror::Error)]
+pub enum ReportError {
+    /// A picture or page input is inconsistent or out of range.
+    #[error("invalid report input: {0}")]
+    InvalidInput(String),
+    /// plotters failed while drawing.
+    #[error("drawing failed: {0}")]
+    Draw(String),
+    /// PNG encoding or decoding failed.
+    #[error("PNG encoding failed: {0}")]
+    Png(String),
+    /// The embedded font could not be registered.
+    #[error("the embedded DejaVu Sans font could not be registered with plotters")]
+    Font,
+    /// A JSON file could not be read.
+    #[error("{path}: line {line}, column {column}: {message}")]
+    Json {
+        /// The file.
+        path: PathBuf,
+        /// Line of the error (1-based; 0 when unknown).
+        line: usize,
+        /// Column of the error (1-based; 0 when unknown).
+        column: usize,
+        /// What went wrong.
+        message: String,
+    },
+    /// Reading or writing a file failed.
+    #[error("{path}: {source}")]
+    Io {
+        /// The file.
+        path: PathBuf,
+        /// The cause.
+        source: std::io::Error,
+    },
+}

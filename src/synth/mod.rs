@@ -1,1 +1,952 @@
-//! synth (placeholder, see its issue).
+//! The synthetic time-lapse field: a physics-based generator of attribute maps with known truth.
+//!
+//! `generate` builds an invented field ("Skerrow Bank"): one or two thin stacked sands on a faulted
+//! dome ([`reservoir`]), producers and injectors at irregular positions ([`wells`]), the pressure,
+//! water and gas changes at every node from the base survey to each monitor ([`dynamics`]), the
+//! elastic properties from Batzle & Wang fluids, a stress-sensitive frame and Gassmann ([`fluids`],
+//! [`rock`]), angle-stack traces by convolution in two-way time ([`forward`], [`seismic`]) with
+//! band-limited, spatially correlated noise at a requested signal-to-noise ratio ([`noise`]), and
+//! the monitor-minus-base attributes. The wells report the true changes plus small measurement noise.
+//!
+//! Every random choice derives from `SynthSettings::seed` through [`sub_seed`], one stream per
+//! component and item, so the same seed gives the same field whatever the thread count.
+
+pub mod dynamics;
+pub mod fluids;
+pub mod forward;
+pub mod noise;
+pub mod reservoir;
+pub mod rock;
+pub mod seismic;
+pub mod spectral;
+pub mod wells;
+
+use dynamics::{Conditions, Dynamics, NodeState};
+use forward::Layer;
+use rand::rngs::StdRng;
+use rand::{RngExt, SeedableRng};
+use rand_distr::StandardNormal;
+use rayon::prelude::*;
+use reservoir::Reservoir;
+use rock::{FrameParams, Mixing};
+use seismic::ReflectivityMethod;
+use serde::{Deserialize, Serialize};
+pub use wells::{PlacedWell, SynthWell, WellKind};
+
+/// Errors of the synthetic-field generator.
+#[derive(Debug, thiserror::Error)]
+pub enum SynthError {
+    /// A setting is out of its valid range.
+    #[error("synth setting `{key}` = {value}: {reason}")]
+    Setting {
+        /// Setting name.
+        key: &'static str,
+        /// The value given.
+        value: String,
+        /// What is allowed.
+        reason: String,
+    },
+    /// The field could not be generated with these settings.
+    #[error("cannot generate the field: {0}")]
+    Generation(String),
+}
+
+/// Every knob of the generator. Defaults (in brackets) make the demo-sized Skerrow Bank field.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(default, deny_unknown_fields)]
+pub struct SynthSettings {
+    /// Seed of every random choice [7].
+    pub seed: u64,
+    /// Grid nodes along x [120], >= 10.
+    pub nx: usize,
+    /// Grid nodes along y [100], >= 10.
+    pub ny: usize,
+    /// Node spacing in metres, the same along x and y [50], > 0.
+    pub spacing: f64,
+    /// World x of node (0, 0), m [431000].
+    pub origin_x: f64,
+    /// World y of node (0, 0), m [6712000].
+    pub origin_y: f64,
+    /// Grid rotation, degrees counter-clockwise from east [0].
+    pub rotation: f64,
+    /// EPSG code written to the maps [32631].
+    pub epsg: Option<u32>,
+    /// Null value in the files [-999.25].
+    pub null_value: f64,
+
+    /// Number of wells [45], >= 2.
+    pub wells: usize,
+    /// Fraction of the wells that inject water [0.3], in [0, 1).
+    pub injector_fraction: f64,
+    /// Minimum distance between wells, m [350] (relaxed when the grid is too small).
+    pub min_well_spacing: f64,
+    /// Range of producer rates, reservoir m3/day [200, 700].
+    pub producer_rate: [f64; 2],
+    /// Range of injector rates, reservoir m3/day [400, 1400].
+    pub injector_rate: [f64; 2],
+    /// Number of monitor surveys (time steps m1..mN) [4], 1..=40.
+    pub steps: usize,
+    /// Date of the base survey, YYYY-MM-DD ["2016-06-01"]; production starts then.
+    pub base_date: String,
+    /// Years between monitors [1.5], > 0.
+    pub monitor_interval_years: f64,
+
+    /// Number of stacked sands, 1 or 2 [2].
+    pub sands: usize,
+    /// Whether a sealing fault splits the field into two pressure compartments [true].
+    pub fault: bool,
+    /// Fault position along x as a fraction of the grid width [0.62].
+    pub fault_position: f64,
+    /// Fault strike, degrees counter-clockwise from the grid x axis [78].
+    pub fault_strike_deg: f64,
+    /// Fault throw, m (down to the far side) [25].
+    pub fault_throw: f64,
+    /// Depth of the crest of the top sand, m [2350].
+    pub crest_depth: f64,
+    /// Relief of the dome from crest to flanks, m [160].
+    pub structural_relief: f64,
+    /// Regional dip towards +x, degrees [1].
+    pub dip_deg: f64,
+    /// Standard deviation of the structural roughness, m [4].
+    pub structure_roughness: f64,
+    /// Fraction of each compartment whose top sand lies above its oil-water contact [0.75].
+    pub oil_area_fraction: f64,
+    /// Mean net thickness of the upper sand, m [14] (the lower sand: 85 % of it).
+    pub sand_thickness: f64,
+    /// Standard deviation of net sand thickness, m [7]; thinner than 0 means the sand pinches out.
+    pub sand_thickness_sd: f64,
+    /// Mean thickness of the shale between the sands, m [7].
+    pub interbed_thickness: f64,
+    /// Standard deviation of the interbed thickness, m [3].
+    pub interbed_thickness_sd: f64,
+    /// Mean porosity [0.24].
+    pub porosity: f64,
+    /// Standard deviation of porosity [0.03].
+    pub porosity_sd: f64,
+    /// Mean clay volume fraction of the sand mineral [0.12].
+    pub vclay: f64,
+    /// Standard deviation of the clay fraction [0.05].
+    pub vclay_sd: f64,
+    /// Mean irreducible water saturation [0.18].
+    pub swi: f64,
+    /// Residual oil saturation after water sweep [0.22].
+    pub sor: f64,
+    /// Correlation length of the rock property maps, m [900].
+    pub correlation_length: f64,
+    /// Centre of the well-free porous lobe, fractions of the grid width and height [0.17, 0.78].
+    pub lobe_position: [f64; 2],
+    /// Radius of the lobe as a fraction of the shorter grid side [0.17].
+    pub lobe_radius: f64,
+    /// Extra net sand in the lobe, m [12].
+    pub lobe_thickness: f64,
+    /// Extra porosity in the lobe [0.04].
+    pub lobe_porosity: f64,
+
+    /// Temperature at the datum, C [6].
+    pub surface_temperature: f64,
+    /// Geothermal gradient, C/m [0.032].
+    pub temperature_gradient: f64,
+    /// Formation-water density for the hydrostatic gradient, kg/m3 [1040].
+    pub brine_density: f64,
+    /// Brine salinity, NaCl weight fraction [0.06].
+    pub salinity: f64,
+    /// Mean overburden density for the vertical stress, kg/m3 [2250].
+    pub overburden_density: f64,
+    /// Overpressure above hydrostatic at the contact, MPa [2].
+    pub overpressure: f64,
+    /// Oil API gravity [33].
+    pub api: f64,
+    /// Gas specific gravity (air = 1) [0.7].
+    pub gas_gravity: f64,
+    /// Initial dissolved gas-oil ratio, L/L [120].
+    pub gor: f64,
+    /// Bubble point below the lowest initial oil-leg pressure, MPa [2.5].
+    pub bubble_point_margin: f64,
+    /// Largest gas saturation released from solution [0.15].
+    pub gas_max: f64,
+    /// Pressure shortfall scale of gas release, MPa [5].
+    pub gas_pressure_scale: f64,
+
+    /// Permeability for pressure diffusion, mD [50].
+    pub permeability_md: f64,
+    /// Fluid viscosity for pressure diffusion, cP [0.9].
+    pub viscosity_cp: f64,
+    /// Total compressibility (rock + fluids), 1/MPa [1.5e-3].
+    pub total_compressibility: f64,
+    /// Rise of the oil-water contact by aquifer influx, m/year [1].
+    pub aquifer_rise: f64,
+    /// Uniaxial compaction coefficient of the sands, 1/MPa [1.5e-4].
+    pub compaction_coefficient: f64,
+    /// Fraction of the reservoir compaction taken up as overburden stretch [0.6].
+    pub overburden_transfer: f64,
+    /// Lateral smoothing (standard deviation) of the overburden stretch, m [600].
+    pub overburden_smoothing: f64,
+    /// Hatchell & Bourne R factor of the overburden [5].
+    pub r_factor: f64,
+    /// Mean overburden P velocity for depth-to-time conversion, m/s [2400].
+    pub overburden_velocity: f64,
+
+    /// Dry-frame stress law (MacBeth 2004) and porosity scaling.
+    pub frame: FrameParams,
+    /// Fluid mixing law ["wood"] or "brie".
+    pub mixing: Mixing,
+    /// Brie exponent when mixing = "brie" [3].
+    pub brie_exponent: f64,
+    /// Shale P velocity at zero depth, m/s [1800].
+    pub shale_vp0: f64,
+    /// Shale P velocity gradient with depth, 1/s [0.5].
+    pub shale_vp_gradient: f64,
+
+    /// Ricker peak frequency, Hz [25].
+    pub wavelet_hz: f64,
+    /// Trace sample interval, ms [2].
+    pub sample_ms: f64,
+    /// Reflection coefficient formula ["zoeppritz"], "aki_richards" or "shuey".
+    pub reflectivity: ReflectivityMethod,
+    /// Angle ranges of the near, mid and far stacks, degrees [[5, 15], [15, 25], [25, 35]].
+    pub angle_stacks: [[f64; 2]; 3],
+    /// Amplitude window above the reservoir top and below its base, ms [12].
+    pub window_pad_ms: f64,
+    /// Signal-to-noise ratio of the amplitudes (RMS over RMS) [12].
+    pub snr: f64,
+    /// Correlation length of the seismic noise across the grid, m [150].
+    pub noise_correlation_length: f64,
+    /// Correlation of the noise between angle stacks [0.5].
+    pub noise_stack_correlation: f64,
+    /// Standard deviation of the time-shift measurement error, ms [0.15].
+    pub time_shift_noise_ms: f64,
+    /// Correlation length of the time-shift error, m [300].
+    pub time_shift_noise_correlation: f64,
+
+    /// Standard deviation of the pressure-change measurement at wells, MPa [0.3].
+    pub well_noise_dp: f64,
+    /// Standard deviation of the water-saturation-change measurement at wells [0.02].
+    pub well_noise_dsw: f64,
+    /// Standard deviation of the gas-saturation-change measurement at wells [0.01].
+    pub well_noise_dsg: f64,
+}
+
+impl Default for SynthSettings {
+    fn default() -> Self {
+        SynthSettings {
+            seed: 7,
+            nx: 120,
+            ny: 100,
+            spacing: 50.0,
+            origin_x: 431_000.0,
+            origin_y: 6_712_000.0,
+            rotation: 0.0,
+            epsg: Some(32631),
+            null_value: -999.25,
+            wells: 45,
+            injector_fraction: 0.3,
+            min_well_spacing: 350.0,
+            producer_rate: [200.0, 700.0],
+            injector_rate: [400.0, 1400.0],
+            steps: 4,
+            base_date: "2016-06-01".into(),
+            monitor_interval_years: 1.5,
+            sands: 2,
+            fault: true,
+            fault_position: 0.62,
+            fault_strike_deg: 78.0,
+            fault_throw: 25.0,
+            crest_depth: 2350.0,
+            structural_relief: 160.0,
+            dip_deg: 1.0,
+            structure_roughness: 4.0,
+            oil_area_fraction: 0.75,
+            sand_thickness: 14.0,
+            sand_thickness_sd: 7.0,
+            interbed_thickness: 7.0,
+            interbed_thickness_sd: 3.0,
+            porosity: 0.24,
+            porosity_sd: 0.03,
+            vclay: 0.12,
+            vclay_sd: 0.05,
+            swi: 0.18,
+            sor: 0.22,
+            correlation_length: 900.0,
+            lobe_position: [0.17, 0.78],
+            lobe_radius: 0.17,
+            lobe_thickness: 12.0,
+            lobe_porosity: 0.04,
+            surface_temperature: 6.0,
+            temperature_gradient: 0.032,
+            brine_density: 1040.0,
+            salinity: 0.06,
+            overburden_density: 2250.0,
+            overpressure: 2.0,
+            api: 33.0,
+            gas_gravity: 0.7,
+            gor: 120.0,
+            bubble_point_margin: 2.5,
+            gas_max: 0.15,
+            gas_pressure_scale: 5.0,
+            permeability_md: 50.0,
+            viscosity_cp: 0.9,
+            total_compressibility: 1.5e-3,
+            aquifer_rise: 1.0,
+            compaction_coefficient: 1.5e-4,
+            overburden_transfer: 0.6,
+            overburden_smoothing: 600.0,
+            r_factor: 5.0,
+            overburden_velocity: 2400.0,
+            frame: FrameParams::default(),
+            mixing: Mixing::Wood,
+            brie_exponent: 3.0,
+            shale_vp0: 1800.0,
+            shale_vp_gradient: 0.5,
+            wavelet_hz: 25.0,
+            sample_ms: 2.0,
+            reflectivity: ReflectivityMethod::Zoeppritz,
+            angle_stacks: [[5.0, 15.0], [15.0, 25.0], [25.0, 35.0]],
+            window_pad_ms: 12.0,
+            snr: 12.0,
+            noise_correlation_length: 150.0,
+            noise_stack_correlation: 0.5,
+            time_shift_noise_ms: 0.15,
+            time_shift_noise_correlation: 300.0,
+            well_noise_dp: 0.3,
+            well_noise_dsw: 0.02,
+            well_noise_dsg: 0.01,
+        }
+    }
+}
+
+/// Parses "YYYY-MM-DD" into (year, month, day).
+fn parse_date(d: &str) -> Option<(i32, u32, u32)> {
+    let mut it = d.split('-');
+    let y: i32 = it.next()?.parse().ok()?;
+    let m: u32 = it.next()?.parse().ok()?;
+    let day: u32 = it.next()?.parse().ok()?;
+    if it.next().is_some() || d.len() != 10 || !(1..=12).contains(&m) || !(1..=31).contains(&day) {
+        return None;
+    }
+    Some((y, m, day))
+}
+
+impl SynthSettings {
+    /// Checks every setting; the error names the setting, the value and the valid range.
+    pub fn validate(&self) -> Result<(), SynthError> {
+        fn bad<T: std::fmt::Debug>(key: &'static str, v: T, reason: &str) -> SynthError {
+            SynthError::Setting {
+                key,
+                value: format!("{v:?}"),
+                reason: reason.to_string(),
+            }
+        }
+        let pos = |key: &'static str, v: f64| {
+            if v.is_finite() && v > 0.0 {
+                Ok(())
+            } else {
+                Err(bad(key, v, "must be a finite number > 0"))
+            }
+        };
+        let nonneg = |key: &'static str, v: f64| {
+            if v.is_finite() && v >= 0.0 {
+                Ok(())
+            } else {
+                Err(bad(key, v, "must be a finite number >= 0"))
+            }
+        };
+        let frac = |key: &'static str, v: f64, lo: f64, hi: f64| {
+            if v.is_finite() && v >= lo && v <= hi {
+                Ok(())
+            } else {
+                Err(bad(key, v, &format!("must lie in [{lo}, {hi}]")))
+            }
+        };
+        let finite = |key: &'static str, v: f64| {
+            if v.is_finite() {
+                Ok(())
+            } else {
+                Err(bad(key, v, "must be finite"))
+            }
+        };
+        if self.nx < 10 || self.nx > 4000 {
+            return Err(bad("nx", self.nx, "must lie in 10..=4000"));
+        }
+        if self.ny < 10 || self.ny > 4000 {
+            return Err(bad("ny", self.ny, "must lie in 10..=4000"));
+        }
+        pos("spacing", self.spacing)?;
+        finite("origin_x", self.origin_x)?;
+        finite("origin_y", self.origin_y)?;
+        finite("rotation", self.rotation)?;
+        finite("null_value", self.null_value)?;
+        if self.wells < 2 || self.wells > 1000 {
+            return Err(bad("wells", self.wells, "must lie in 2..=1000"));
+        }
+        frac("injector_fraction", self.injector_fraction, 0.0, 0.9)?;
+        nonneg("min_well_spacing", self.min_well_spacing)?;
+        for (key, r) in [
+            ("producer_rate", self.producer_rate),
+            ("injector_rate", self.injector_rate),
+        ] {
+            if !(r[0].is_finite() && r[1].is_finite() && r[0] > 0.0 && r[0] <= r[1]) {
+                return Err(bad(key, r, "must be [min, max] with 0 < min <= max"));
+            }
+        }
+        if self.steps == 0 || self.steps > 40 {
+            return Err(bad("steps", self.steps, "must lie in 1..=40"));
+        }
+        if parse_date(&self.base_date).is_none() {
+            return Err(bad(
+                "base_date",
+                &self.base_date,
+                "must be a date YYYY-MM-DD",
+            ));
+        }
+        frac(
+            "monitor_interval_years",
+            self.monitor_interval_years,
+            0.05,
+            20.0,
+        )?;
+        if !(1..=2).contains(&self.sands) {
+            return Err(bad("sands", self.sands, "must be 1 or 2"));
+        }
+        frac("fault_position", self.fault_position, 0.2, 0.8)?;
+        frac("fault_strike_deg", self.fault_strike_deg, 45.0, 135.0)?;
+        nonneg("fault_throw", self.fault_throw)?;
+        frac("crest_depth", self.crest_depth, 300.0, 6000.0)?;
+        nonneg("structural_relief", self.structural_relief)?;
+        frac("dip_deg", self.dip_deg, -10.0, 10.0)?;
+        nonneg("structure_roughness", self.structure_roughness)?;
+        frac("oil_area_fraction", self.oil_area_fraction, 0.2, 1.0)?;
+        pos("sand_thickness", self.sand_thickness)?;
+        nonneg("sand_thickness_sd", self.sand_thickness_sd)?;
+        pos("interbed_thickness", self.interbed_thickness)?;
+        nonneg("interbed_thickness_sd", self.interbed_thickness_sd)?;
+        frac("porosity", self.porosity, 0.05, 0.35)?;
+        frac("porosity_sd", self.porosity_sd, 0.0, 0.1)?;
+        frac("vclay", self.vclay, 0.0, 0.45)?;
+        frac("vclay_sd", self.vclay_sd, 0.0, 0.2)?;
+        frac("swi", self.swi, 0.05, 0.5)?;
+        frac("sor", self.sor, 0.05, 0.45)?;
+        if self.swi + self.sor >= 0.8 {
+            return Err(bad("sor", self.sor, "swi + sor must stay below 0.8"));
+        }
+        pos("correlation_length", self.correlation_length)?;
+        for v in self.lobe_position {
+            frac("lobe_position", v, 0.0, 1.0)?;
+        }
+        frac("lobe_radius", self.lobe_radius, 0.0, 0.4)?;
+        nonneg("lobe_thickness", self.lobe_thickness)?;
+        frac("lobe_porosity", self.lobe_porosity, 0.0, 0.1)?;
+        frac("surface_temperature", self.surface_temperature, -5.0, 60.0)?;
+        frac("temperature_gradient", self.temperature_gradient, 0.0, 0.08)?;
+        frac("brine_density", self.brine_density, 950.0, 1250.0)?;
+        frac("salinity", self.salinity, 0.0, 0.3)?;
+        frac(
+            "overburden_density",
+            self.overburden_density,
+            1800.0,
+            2800.0,
+        )?;
+        frac("overpressure", self.overpressure, -5.0, 40.0)?;
+        frac("api", self.api, 10.0, 60.0)?;
+        frac("gas_gravity", self.gas_gravity, 0.55, 1.5)?;
+        frac("gor", self.gor, 0.0, 400.0)?;
+        nonneg("bubble_point_margin", self.bubble_point_margin)?;
+        frac("gas_max", self.gas_max, 0.0, 0.5)?;
+        pos("gas_pressure_scale", self.gas_pressure_scale)?;
+        pos("permeability_md", self.permeability_md)?;
+        pos("viscosity_cp", self.viscosity_cp)?;
+        pos("total_compressibility", self.total_compressibility)?;
+        nonneg("aquifer_rise", self.aquifer_rise)?;
+        frac(
+            "compaction_coefficient",
+            self.compaction_coefficient,
+            0.0,
+            0.01,
+        )?;
+        frac("overburden_transfer", self.overburden_transfer, 0.0, 1.0)?;
+        nonneg("overburden_smoothing", self.overburden_smoothing)?;
+        frac("r_factor", self.r_factor, 0.0, 40.0)?;
+        pos("overburden_velocity", self.overburden_velocity)?;
+        let f = &self.frame;
+        for (key, v) in [
+            ("frame.k_inf", f.k_inf),
+            ("frame.mu_inf", f.mu_inf),
+            ("frame.p_k", f.p_k),
+            ("frame.p_mu", f.p_mu),
+        ] {
+            pos(key, v)?;
+        }
+        frac("frame.s_k", f.s_k, 0.0, 0.99)?;
+        frac("frame.s_mu", f.s_mu, 0.0, 0.99)?;
+        frac("frame.phi_c", f.phi_c, 0.3, 0.5)?;
+        frac("frame.phi_ref", f.phi_ref, 0.01, f.phi_c - 0.01)?;
+        frac("brie_exponent", self.brie_exponent, 1.0, 40.0)?;
+        pos("shale_vp0", self.shale_vp0)?;
+        nonneg("shale_vp_gradient", self.shale_vp_gradient)?;
+        frac("wavelet_hz", self.wavelet_hz, 5.0, 120.0)?;
+        frac("sample_ms", self.sample_ms, 0.25, 8.0)?;
+        let mut last = 0.0;
+        for r in self.angle_stacks {
+            if !(r[0] >= last && r[0] < r[1] && r[1] <= 50.0) {
+                return Err(bad(
+                    "angle_stacks",
+                    self.angle_stacks,
+                    "must be three increasing, non-overlapping ranges within 0..50 degrees",
+                ));
+            }
+            last = r[1];
+        }
+        frac("window_pad_ms", self.window_pad_ms, 0.0, 200.0)?;
+        frac("snr", self.snr, 0.1, 1e9)?;
+        nonneg("noise_correlation_length", self.noise_correlation_length)?;
+        frac(
+            "noise_stack_correlation",
+            self.noise_stack_correlation,
+            0.0,
+            1.0,
+        )?;
+        nonneg("time_shift_noise_ms", self.time_shift_noise_ms)?;
+        nonneg(
+            "time_shift_noise_correlation",
+            self.time_shift_noise_correlation,
+        )?;
+        nonneg("well_noise_dp", self.well_noise_dp)?;
+        nonneg("well_noise_dsw", self.well_noise_dsw)?;
+        nonneg("well_noise_dsg", self.well_noise_dsg)?;
+        Ok(())
+    }
+
+    /// Names of the time steps: m1..mN.
+    pub fn step_names(&self) -> Vec<String> {
+        (1..=self.steps).map(|k| format!("m{k}")).collect()
+    }
+
+    /// Time of each monitor survey, years after the base.
+    pub fn monitor_years(&self) -> Vec<f64> {
+        (1..=self.steps)
+            .map(|k| k as f64 * self.monitor_interval_years)
+            .collect()
+    }
+
+    /// Date of each monitor survey (the base date plus the interval, rounded to whole months).
+    pub fn monitor_dates(&self) -> Vec<String> {
+        let (y, m, d) = parse_date(&self.base_date).unwrap_or((2016, 6, 1));
+        self.monitor_years()
+            .iter()
+            .map(|t| {
+                let months = (y as i64) * 12 + (m as i64 - 1) + (t * 12.0).round() as i64;
+                format!(
+                    "{:04}-{:02}-{:02}",
+                    months.div_euclid(12),
+                    months.rem_euclid(12) + 1,
+                    d.min(28)
+                )
+            })
+            .collect()
+    }
+}
+
+/// Mixes a seed with a path of tags into an independent seed (SplitMix64 finaliser, Steele, Lea &
+/// Flood 2014), so that every component and item has its own random stream.
+pub fn sub_seed(seed: u64, tags: &[u64]) -> u64 {
+    fn mix(mut z: u64) -> u64 {
+        z = z.wrapping_add(0x9E37_79B9_7F4A_7C15);
+        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
+        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
+        z ^ (z >> 31)
+    }
+    tags.iter().fold(mix(seed), |h, t| {
+        mix(h ^ mix(t.wrapping_add(0x51_7CC1_B727_220A)))
+    })
+}
+
+/// The static and dynamic model of a field, before any seismic: what the tests of the physics
+/// look into.
+#[derive(Clone, Debug)]
+pub struct SynthModel {
+    /// The settings it was built from.
+    pub settings: SynthSettings,
+    /// Structure, sands, fault, lobe.
+    pub reservoir: Reservoir,
+    /// The wells, in local coordinates.
+    pub wells: Vec<PlacedWell>,
+    /// Initial pressure, temperature, stress, bubble point.
+    pub conditions: Conditions,
+    /// Flow parameters for pressure diffusion.
+    pub dynamics: Dynamics,
+}
+
+impl SynthModel {
+    /// Builds the reservoir, places the wells and sets the initial conditions.
+    pub fn build(settings: &SynthSettings) -> Result<SynthModel, SynthError> {
+        settings.validate()?;
+        let reservoir = Reservoir::build(settings);
+        let wells = wells::place(&reservoir, settings)?;
+        // oil density for the oil-leg pressure gradient, at crest conditions
+        let t = settings.surface_temperature + settings.temperature_gradient * settings.crest_depth;
+        let p = settings.brine_density * 9.80665e-6 * settings.crest_depth + settings.overpressure;
+        let oil = fluids::live_oil(settings.api, settings.gas_gravity, settings.gor, t, p);
+        let conditions = Conditions::build(&reservoir, settings, oil.rho);
+        let dynamics = Dynamics::new(&reservoir, settings);
+        Ok(SynthModel {
+            settings: settings.clone(),
+            reservoir,
+            wells,
+            conditions,
+            dynamics,
+        })
+    }
+
+    /// State of node `i` at the base survey (before production).
+    pub fn base_state(&self, i: usize) -> NodeState {
+        let fronts = vec![0.0; self.reservoir.sands.len()];
+        dynamics::node_state(
+            &self.reservoir,
+            &self.conditions,
+            &self.settings,
+            i,
+            0.0,
+            0.0,
+            &fronts,
+        )
+    }
+
+    /// States of every node at `t` years: pressure from the wells, fronts, gas.
+    pub fn states_at(&self, t: f64) -> Vec<NodeState> {
+        let dp = self
+            .dynamics
+            .pressure_change(&self.reservoir, &self.wells, &self.conditions, t);
+        let fronts: Vec<Vec<f64>> = (0..self.reservoir.sands.len())
+            .map(|k| dynamics::water_fronts(&self.reservoir, &self.wells, &self.settings, k, t))
+            .collect();
+        (0..self.reservoir.len())
+            .into_par_iter()
+            .map(|i| {
+                let f: Vec<f64> = fronts.iter().map(|fr| fr[i]).collect();
+                dynamics::node_state(
+                    &self.reservoir,
+                    &self.conditions,
+                    &self.settings,
+                    i,
+                    t,
+                    dp[i],
+                    &f,
+                )
+            })
+            .collect()
+    }
+
+    /// World coordinates of a local point (the rotation convention of the grid).
+    pub fn world(&self, x: f64, y: f64) -> (f64, f64) {
+        let s = &self.settings;
+        let r = s.rotation.to_radians();
+        (
+            s.origin_x + x * r.cos() - y * r.sin(),
+            s.origin_y + x * r.sin() + y * r.cos(),
+        )
+    }
+
+    /// Bilinear interpolation of a node map at a local point (clamped to the grid).
+    pub fn bilinear_local(&self, map: &[f64], x: f64, y: f64) -> f64 {
+        let res = &self.reservoir;
+        let fi = (x / res.spacing).clamp(0.0, (res.nx - 1) as f64);
+        let fj = (y / res.spacing).clamp(0.0, (res.ny - 1) as f64);
+        let (i0, j0) = (
+            (fi.floor() as usize).min(res.nx - 2),
+            (fj.floor() as usize).min(res.ny - 2),
+        );
+        let (u, v) = (fi - i0 as f64, fj - j0 as f64);
+        let at = |i: usize, j: usize| map[j * res.nx + i];
+        (1.0 - u) * (1.0 - v) * at(i0, j0)
+            + u * (1.0 - v) * at(i0 + 1, j0)
+            + (1.0 - u) * v * at(i0, j0 + 1)
+            + u * v * at(i0 + 1, j0 + 1)
+    }
+}
+
+/// Names of the attributes written per step, in manifest order.
+pub const ATTRIBUTE_NAMES: [&str; 9] = [
+    "near_amp",
+    "mid_amp",
+    "far_amp",
+    "full_sna",
+    "intercept",
+    "gradient",
+    "time_shift",
+    "time_strain",
+    "nrms",
+];
+
+/// Names of the targets: pressure change (MPa), water and gas saturation change (fractions).
+pub const TARGET_NAMES: [&str; 3] = ["dP", "dSw", "dSg"];
+
+/// Physical bounds `(min, max)` of each target, in [`TARGET_NAMES`] order.
+pub const TARGET_BOUNDS: [(f64, f64); 3] = [(-60.0, 60.0), (-1.0, 1.0), (-1.0, 1.0)];
+
+/// A generated field in memory.
+#[derive(Clone, Debug)]
+pub struct SynthField {
+    /// Step names m1..mN.
+    pub step_names: Vec<String>,
+    /// Attribute names ([`ATTRIBUTE_NAMES`]).
+    pub attribute_names: Vec<String>,
+    /// Attribute maps `[step][attribute]`, each nx*ny, index j*nx+i.
+    pub attributes: Vec<Vec<Vec<f64>>>,
+    /// Target names ["dP", "dSw", "dSg"].
+    pub target_names: Vec<String>,
+    /// True changes `[step][target]`, each nx*ny.
+    pub truth: Vec<Vec<Vec<f64>>>,
+    /// The wells.
+    pub wells: Vec<SynthWell>,
+    /// Well observations: well, x, y, step, measured targets (truth plus measurement noise).
+    pub well_rows: Vec<(String, f64, f64, String, Vec<f64>)>,
+    /// Hydrocarbon pore volume per node at the base, m3.
+    pub hcpv: Vec<f64>,
+}
+
+/// Noise-free angle-stack traces of every node: `[stack][node * samples + k]`.
+fn clean_traces(
+    model: &SynthModel,
+    columns: &[Vec<Layer>],
+    angles: &[[f64; 3]],
+    times: &[f64],
+) -> Vec<Vec<f64>> {
+    let f = model.settings.wavelet_hz;
+    let method = model.settings.reflectivity;
+    let per_node: Vec<Vec<Vec<f64>>> = columns
+        .par_iter()
+        .map(|col| {
+            angles
+                .iter()
+                .map(|a| seismic::convolve(&forward::stack_spikes(col, a, method), f, times))
+                .collect()
+        })
+        .collect();
+    (0..angles.len())
+        .map(|st| {
+            per_node
+                .iter()
+                .flat_map(|t| t[st].iter().copied())
+                .collect()
+        })
+        .collect()
+}
+
+/// RMS over every node's analysis window.
+fn window_rms(traces: &[f64], samples: usize, window: &[usize]) -> f64 {
+    let (mut s, mut c) = (0.0, 0.0);
+    for (i, w) in window.iter().enumerate() {
+        for v in &traces[i * samples..i * samples + w] {
+            s += v * v;
+            c += 1.0;
+        }
+    }
+    if c > 0.0 { (s / c).sqrt() } else { 0.0 }
+}
+
+/// Generates a field in memory.
+pub fn generate(settings: &SynthSettings) -> Result<SynthField, SynthError> {
+    let model = SynthModel::build(settings)?;
+    let s = &model.settings;
+    let res = &model.reservoir;
+    let n = res.len();
+    let dt = s.sample_ms / 1000.0;
+    let pad_samples = (s.window_pad_ms / s.sample_ms).round() as usize;
+    let pad = pad_samples as f64 * dt;
+    let angles = model.stack_angles();
+    let centres = model.stack_centres();
+    let nst = angles.len();
+
+    // Base survey
+    let base_states: Vec<NodeState> = (0..n)
+        .into_par_iter()
+        .map(|i| model.base_state(i))
+        .collect();
+    let base_cols: Vec<Vec<Layer>> = (0..n)
+        .into_par_iter()
+        .map(|i| model.column(i, &base_states[i]))
+        .collect();
+    let t_res_base: Vec<f64> = base_cols
+        .iter()
+        .map(|c| forward::interval_time(c))
+        .collect();
+    let window: Vec<usize> = t_res_base
+        .iter()
+        .map(|t| ((t + 2.0 * pad) / dt + 1e-9).floor() as usize + 1)
+        .collect();
+    let samples = window.iter().copied().max().unwrap_or(1);
+    let times: Vec<f64> = (0..samples).map(|k| k as f64 * dt - pad).collect();
+    let base_clean = clean_traces(&model, &base_cols, &angles, &times);
+    let signal_rms: Vec<f64> = base_clean
+        .iter()
+        .map(|t| window_rms(t, samples, &window))
+        .collect();
+    let spec = noise::NoiseSpec {
+        nx: s.nx,
+        ny: s.ny,
+        correlation: s.noise_correlation_length / s.spacing,
+        samples,
+        dt,
+        frequency: s.wavelet_hz,
+        stack_correlation: s.noise_stack_correlation,
+    };
+    let observe = |clean: Vec<Vec<f64>>, survey: u64| -> Vec<Vec<f64>> {
+        let raw = noise::survey_noise(&spec, nst, s.seed, survey);
+        clean
+            .into_iter()
+            .zip(raw)
+            .enumerate()
+            .map(|(st, (mut c, r))| {
+                let raw_rms = window_rms(&r, samples, &window);
+                let scale = if raw_rms > 0.0 {
+                    signal_rms[st] / s.snr / raw_rms
+                } else {
+                    0.0
+                };
+                c.iter_mut().zip(&r).for_each(|(c, r)| *c += scale * r);
+                c
+            })
+            .collect()
+    };
+    let base_obs = observe(base_clean, 0);
+    let (base_sw, base_sg): (Vec<f64>, Vec<f64>) =
+        base_states.iter().map(|st| st.mean_saturation()).unzip();
+
+    let ts_field = |step: usize, which: u64| {
+        let mut rng = StdRng::seed_from_u64(sub_seed(s.seed, &[8, step as u64, which]));
+        let mut f = spectral::gaussian_field(
+            s.nx,
+            s.ny,
+            s.time_shift_noise_correlation / s.spacing,
+            &mut rng,
+        );
+        f.iter_mut().for_each(|v| *v *= s.time_shift_noise_ms);
+        f
+    };
+
+    let mut attributes = Vec::with_capacity(s.steps);
+    let mut truth = Vec::with_capacity(s.steps);
+    for (step, &t) in s.monitor_years().iter().enumerate() {
+        let states = model.states_at(t);
+        let dp: Vec<f64> = states.iter().map(|st| st.dp).collect();
+        let (sw, sg): (Vec<f64>, Vec<f64>) = states.iter().map(|st| st.mean_saturation()).unzip();
+        let dsw: Vec<f64> = sw.iter().zip(&base_sw).map(|(a, b)| a - b).collect();
+        let dsg: Vec<f64> = sg.iter().zip(&base_sg).map(|(a, b)| a - b).collect();
+
+        let cols: Vec<Vec<Layer>> = (0..n)
+            .into_par_iter()
+            .map(|i| model.column(i, &states[i]))
+            .collect();
+        let t_res: Vec<f64> = cols.iter().map(|c| forward::interval_time(c)).collect();
+        let clean = clean_traces(&model, &cols, &angles, &times);
+        let obs = observe(clean, step as u64 + 1);
+
+        // Overburden: stretch above compacting sands (Hatchell & Bourne 2005).
+        let compaction: Vec<f64> = (0..n)
+            .map(|i| res.net_thickness(i) * s.compaction_coefficient * dp[i])
+            .collect();
+        let smooth =
+            spectral::gaussian_smooth(&compaction, s.nx, s.ny, s.overburden_smoothing / s.spacing);
+        let noise_top = ts_field(step, 0);
+        let noise_base = ts_field(step, 1);
+
+        let rows: Vec<[f64; 9]> = (0..n)
+            .into_par_iter()
+            .map(|i| {
+                let w = window[i];
+                let span = i * samples..i * samples + w;
+                let mut out = [0.0; 9];
+                for st in 0..nst {
+                    out[st] = seismic::rms(&obs[st][span.clone()])
+                        - seismic::rms(&base_obs[st][span.clone()]);
+                }
+                let full = |tr: &Vec<Vec<f64>>| -> Vec<f64> {
+                    (0..w)
+                        .map(|k| {
+                            (0..nst).map(|st| tr[st][i * samples + k]).sum::<f64>() / nst as f64
+                        })
+                        .collect()
+                };
+                let (fb, fm) = (full(&base_obs), full(&obs));
+                out[3] = seismic::sum_negative(&fm) - seismic::sum_negative(&fb);
+                let top = |tr: &Vec<Vec<f64>>| -> Vec<f64> {
+                    (0..nst)
+                        .map(|st| tr[st][i * samples + pad_samples])
+                        .collect()
+                };
+                let (ab, bb) = seismic::fit_intercept_gradient(&centres, &top(&base_obs));
+                let (am, bm) = seismic::fit_intercept_gradient(&centres, &top(&obs));
+                out[4] = am - ab;
+                out[5] = bm - bb;
+                let z = res.sands[0].top[i];
+                let eps = -s.overburden_transfer * smooth[i] / z;
+                let t_ob = 2.0 * z / s.overburden_velocity;
+                let dt_ob = t_ob * seismic::strained_time_change(eps, s.r_factor);
+                let shift_top = dt_ob * 1000.0 + noise_top[i];
+                let shift_base = (dt_ob + t_res[i] - t_res_base[i]) * 1000.0 + noise_base[i];
+                out[6] = shift_base;
+                out[7] = (shift_base - shift_top) / ((t_res_base[i] + 2.0 * pad) * 1000.0);
+                out[8] = 100.0 * seismic::nrms(&fb, &fm);
+                out
+            })
+            .collect();
+        attributes.push(
+            (0..ATTRIBUTE_NAMES.len())
+                .map(|a| rows.iter().map(|r| r[a]).collect())
+                .collect(),
+        );
+        truth.push(vec![dp, dsw, dsg]);
+    }
+
+    // Wells: world coordinates and the measurements at each monitor after their start.
+    let well_list: Vec<SynthWell> = model
+        .wells
+        .iter()
+        .map(|w| {
+            let (x, y) = model.world(w.x, w.y);
+            SynthWell {
+                name: w.name.clone(),
+                x,
+                y,
+                kind: w.kind,
+                rate: w.rate,
+                start: w.start,
+            }
+        })
+        .collect();
+    let sd = [s.well_noise_dp, s.well_noise_dsw, s.well_noise_dsg];
+    let names = s.step_names();
+    let mut well_rows = Vec::new();
+    for (step, &t) in s.monitor_years().iter().enumerate() {
+        for (wi, (w, world)) in model.wells.iter().zip(&well_list).enumerate() {
+            if w.start >= t {
+                continue;
+            }
+            let mut rng = StdRng::seed_from_u64(sub_seed(s.seed, &[9, wi as u64, step as u64]));
+            let values = (0..3)
+                .map(|k| {
+                    let e: f64 = rng.sample(StandardNormal);
+                    let v = model.bilinear_local(&truth[step][k], w.x, w.y) + sd[k] * e;
+                    v.clamp(TARGET_BOUNDS[k].0, TARGET_BOUNDS[k].1)
+                })
+                .collect();
+            well_rows.push((
+                world.name.clone(),
+                world.x,
+                world.y,
+                names[step].clone(),
+                values,
+            ));
+        }
+    }
+    let hcpv = (0..n).map(|i| res.hcpv(i)).collect();
+    Ok(SynthField {
+        step_names: names,
+        attribute_names: ATTRIBUTE_NAMES.iter().map(|a| a.to_string()).collect(),
+        attributes,
+        target_names: TARGET_NAMES.iter().map(|a| a.to_string()).collect(),
+        truth,
+        wells: well_list,
+        well_rows,
+        hcpv,
+    })
+}

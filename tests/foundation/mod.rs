@@ -1,1 +1,10 @@
-//! Integration tests: foundation.
+//! Integration tests: foundation (grid geometry, readers and writers, manifest, extraction at wells,
+//! `tidemark check`).
+
+mod bad_inputs;
+mod check;
+pub(crate) mod fixtures;
+mod geotiff;
+mod grid;
+mod sample;
+mod xyz;

@@ -1,0 +1,917 @@
+//! Regression trees on binned features, stored as flat node arrays.
+//!
+//! Growing follows CART (Breiman, Friedman, Olshen & Stone 1984): each split maximises the
+//! weighted variance reduction, summed over the (standardised) outputs for a multi-output tree.
+//! Split search is histogram-based (Ke et al. 2017, LightGBM, NeurIPS): large nodes accumulate
+//! per-bin sums of weight and weighted target for every feature, and a child's histogram is the
+//! parent's minus its sibling's (histogram subtraction), so only the smaller child is scanned.
+//! Small nodes sort their rows by bin code instead, which costs less than touching 255 bins.
+//! Missing values (NaN, their own bin) try both sides at every split and the better side is
+//! kept (sparsity-aware split finding, Chen & Guestrin 2016, XGBoost, KDD); when a node saw no
+//! missing value for the chosen feature, missing values follow the child with more rows.
+//!
+//! A fitted [`Tree`] is a flat array of [`Node`]s: internal nodes hold a raw-valued threshold,
+//! leaves point to themselves. [`Tree::apply`] maps a row to its leaf id (0..n_leaves), and leaf
+//! values are stored per leaf and output.
+
+use rand::RngExt;
+use rand::rngs::StdRng;
+use serde::{Deserialize, Serialize};
+
+use super::binning::{BinMapper, MISSING_BIN};
+
+/// Sentinel in `leaf_of_node` for internal nodes.
+pub(crate) const NOT_LEAF: u32 = u32::MAX;
+
+/// Nodes with at least this many rows search splits on full histograms (and pass them on by
+/// subtraction); smaller nodes sort their rows by bin code.
+const HIST_MIN_ROWS: usize = 384;
+
+/// One node of a fitted tree. An internal node sends a row to `left` when its value of
+/// `feature` is `<= threshold`, to `right` when it is larger, and to `missing` when it is NaN.
+/// A leaf has `left == right == missing ==` its own index.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
+pub struct Node {
+    /// Split threshold on the raw feature value (`f64::MAX`: every non-missing value goes left).
+    pub threshold: f64,
+    /// Feature (column) index tested by the split; 0 for leaves.
+    pub feature: u32,
+    /// Child for values `<= threshold`.
+    pub left: u32,
+    /// Child for values `> threshold`.
+    pub right: u32,
+    /// Child for missing values (either `left` or `right`).
+    pub missing: u32,
+}
+
+/// A fitted regression tree: flat node arrays, a leaf id per leaf node, and leaf values.
+#[derive(Clone, Debug, Serialize, Deserialize)]
+pub struct Tree {
+    nodes: Vec<Node>,
+    /// Leaf id of each node, `u32::MAX` for internal nodes.
+    leaf_of_node: Vec<u32>,
+    n_outputs: usize,
+    /// Leaf values, `n_leaves x n_outputs`, row-major.
+    values: Vec<f64>,
+}
+
+impl Tree {
+    /// Number of nodes (internal and leaves).
+    pub fn n_nodes(&self) -> usize {
+        self.nodes.len()
+    }
+
+    /// Number of leaves.
+    pub fn n_leaves(&self) -> usize {
+        self.values.len() / self.n_outputs.max(1)
+    }
+
+    /// Number of outputs per leaf.
+    pub fn n_outputs(&self) -> usize {
+        self.n_outputs
+    }
+
+    /// The flat node array (node 0 is the root).
+    pub fn nodes(&self) -> &[Node] {
+        &self.nodes
+    }
+
+    /// Largest number of splits from the root to a leaf.
+    pub fn depth(&self) -> usize {
+        let mut depth = vec![0usize; self.nodes.len()];
+        let mut max = 0;
+        for (i, nd) in self.nodes.iter().enumerate() {
+            if nd.left as usize != i {
+                for c in [nd.left, nd.right] {
+                    depth[c as usize] = depth[i] + 1;
+                    max = max.max(depth[i] + 1);
+                }
+            }
+        }
+        max
+    }
+
+    /// Leaf id (0..n_leaves) reached by one row of raw feature values (NaN = missing).
+    ///
+    /// # Panics
+    /// If `row` is shorter than the number of features the tree was grown on.
+    pub fn apply(&self, row: &[f64]) -> usize {
+        let mut i = 0usize;
+        loop {
+            let nd = &self.nodes[i];
+            let v = row[nd.feature as usize];
+            let next = if v.is_nan() {
+                nd.missing
+            } else if v <= nd.threshold {
+                nd.left
+            } else {
+                nd.right
+            } as usize;
+            if next == i {
+                return self.leaf_of_node[i] as usize;
+            }
+            i = next;
+        }
+    }
+
+    /// Value of output `output` in leaf `leaf`.
+    pub fn leaf_value(&self, leaf: usize, output: usize) -> f64 {
+        self.values[leaf * self.n_outputs + output]
+    }
+
+    /// All outputs of leaf `leaf`.
+    pub fn leaf_values(&self, leaf: usize) -> &[f64] {
+        &self.values[leaf * self.n_outputs..(leaf + 1) * self.n_outputs]
+    }
+
+    /// Prediction (all outputs) for one row.
+    pub fn predict_row(&self, row: &[f64]) -> &[f64] {
+        self.leaf_values(self.apply(row))
+    }
+
+    /// Leaf ids of a block of rows (row-major, `p` values per row), written to `out`.
+    /// Eight rows walk the tree in lockstep so their memory loads overlap.
+    pub(crate) fn apply_rows(&self, rows: &[f64], p: usize, out: &mut [u32]) {
+        const LANES: usize = 8;
+        let nodes = &self.nodes[..];
+        let n = out.len();
+        let mut r0 = 0;
+        while r0 + LANES <= n {
+            let block = &rows[r0 * p..(r0 + LANES) * p];
+            let mut idx = [0u32; LANES];
+            loop {
+                let mut moved = false;
+                for (j, cur) in idx.iter_mut().enumerate() {
+                    let nd = &nodes[*cur as usize];
+                    let v = block[j * p + nd.feature as usize];
+                    let mut next = if v <= nd.threshold { nd.left } else { nd.right };
+                    if v.is_nan() {
+                        next = nd.missing;
+                    }
+                    moved |= next != *cur;
+                    *cur = next;
+                }
+                if !moved {
+                    break;
+                }
+            }
+            for j in 0..LANES {
+                out[r0 + j] = self.leaf_of_node[idx[j] as usize];
+            }
+            r0 += LANES;
+        }
+        for r in r0..n {
+            out[r] = self.apply(&rows[r * p..(r + 1) * p]) as u32;
+        }
+    }
+
+    /// Replaces the leaf values (`n_leaves x n_outputs`, row-major).
+    pub(crate) fn set_values(&mut self, n_outputs: usize, values: Vec<f64>) {
+        debug_assert_eq!(values.len(), self.n_leaves_from_nodes() * n_outputs);
+        self.n_outputs = n_outputs;
+        self.values = values;
+    }
+
+    fn n_leaves_from_nodes(&self) -> usize {
+        self.leaf_of_node.iter().filter(|&&l| l != NOT_LEAF).count()
+    }
+
+    /// Checks internal consistency (used after loading a model from a file).
+    pub(crate) fn validate(&self, n_features: usize) -> Result<(), String> {
+        let nn = self.nodes.len();
+        if nn == 0 || self.leaf_of_node.len() != nn || self.n_outputs == 0 {
+            return Err("tree has no nodes or mismatched node arrays".into());
+        }
+        let n_leaves = self.n_leaves_from_nodes();
+        if self.values.len() != n_leaves * self.n_outputs {
+            return Err(format!(
+                "tree has {n_leaves} leaves but {} leaf values for {} outputs",
+                self.values.len(),
+                self.n_outputs
+            ));
+        }
+        let mut seen = vec![false; n_leaves];
+        for (i, nd) in self.nodes.iter().enumerate() {
+            let is_leaf = nd.left as usize == i;
+            let leaf = self.leaf_of_node[i];
+            if is_leaf {
+                if nd.right as usize != i || nd.missing as usize != i {
+                    return Err(format!("leaf node {i} does not point to itself"));
+                }
+                if leaf as usize >= n_leaves || seen[leaf as usize] {
+                    return Err(format!("leaf node {i} has an invalid leaf id"));
+                }
+                seen[leaf as usize] = true;
+            } else {
+                // children come after their parent, so every walk ends at a leaf
+                let ok = |c: u32| (c as usize) > i && (c as usize) < nn;
+                if leaf != NOT_LEAF
+                    || !ok(nd.left)
+                    || !ok(nd.right)
+                    || (nd.missing != nd.left && nd.missing != nd.right)
+                    || nd.feature as usize >= n_features
+                    || nd.threshold.is_nan()
+                {
+                    return Err(format!("internal node {i} is malformed"));
+                }
+            }
+        }
+        Ok(())
+    }
+}
+
+/// Binned training features shared by every tree of an ensemble.
+pub(crate) struct Binned<'a> {
+    /// Bin codes, column-major: row `r`, feature `f` at `f * n + r`.
+    pub codes: &'a [u8],
+    /// Number of training rows.
+    pub n: usize,
+    /// Number of features.
+    pub p: usize,
+    /// Non-missing bins per feature.
+    pub n_bins: Vec<usize>,
+    /// Cut points, to turn a bin split into a raw threshold.
+    pub mapper: &'a BinMapper,
+}
+
+impl<'a> Binned<'a> {
+    /// Wraps binned codes produced by `mapper.transform`.
+    pub fn new(codes: &'a [u8], n: usize, mapper: &'a BinMapper) -> Self {
+        let p = mapper.n_features();
+        Binned {
+            codes,
+            n,
+            p,
+            n_bins: (0..p).map(|f| mapper.n_bins(f)).collect(),
+            mapper,
+        }
+    }
+}
+
+/// Limits on growing one tree.
+#[derive(Clone, Copy, Debug)]
+pub(crate) struct GrowParams {
+    /// Maximum depth (number of splits from root to leaf); `usize::MAX` for none.
+    pub max_depth: usize,
+    /// Minimum number of distinct training rows in a leaf.
+    pub min_samples_leaf: usize,
+    /// Number of non-constant features tried per split (all when `>= p`).
+    pub n_try: usize,
+}
+
+/// A grown tree with the training rows of each leaf.
+pub(crate) struct Grown {
+    /// The tree; its leaf values are set by the caller.
+    pub tree: Tree,
+    /// Training rows used, grouped by leaf (ascending within a leaf).
+    pub rows: Vec<u32>,
+    /// For each leaf id, its range in `rows`.
+    pub leaf_ranges: Vec<(usize, usize)>,
+    /// Weighted variance reduction credited to each feature.
+    pub gains: Vec<f64>,
+}
+
+/// A node waiting to be split or turned into a leaf.
+struct Pending {
+    node: usize,
+    start: usize,
+    end: usize,
+    depth: usize,
+    /// Weight, weighted target sums, count (stride `k + 2`).
+    sums: Vec<f64>,
+    /// Full histogram (all features) when the node is large.
+    hist: Option<Vec<f64>>,
+}
+
+/// Best split found so far in a node.
+struct Best {
+    score: f64,
+    feature: usize,
+    bin: u8,
+    missing_left: bool,
+    left: Vec<f64>,
+}
+
+/// Grows one tree.
+///
+/// `targets` is `n x k` row-major (standardised outputs for a forest, pseudo-residuals for
+/// boosting); `weight[r]` is the effective weight of row `r` (sample weight times in-bag count);
+/// `rows` lists the distinct rows to use (all with positive weight).
+pub(crate) fn grow(
+    data: &Binned<'_>,
+    targets: &[f64],
+    k: usize,
+    weight: &[f64],
+    rows: Vec<u32>,
+    params: &GrowParams,
+    rng: &mut StdRng,
+) -> Grown {
+    let stride = k + 2;
+    let mut wy = vec![0.0; data.n * k];
+    for &r in &rows {
+        let r = r as usize;
+        for j in 0..k {
+            wy[r * k + j] = weight[r] * targets[r * k + j];
+        }
+    }
+    let mut g = Grower {
+        data,
+        targets,
+        k,
+        stride,
+        weight,
+        wy,
+        params: *params,
+        pool: Vec::new(),
+        keys: Vec::new(),
+        ebins: Vec::new(),
+        esums: Vec::new(),
+        miss: vec![0.0; stride],
+        acc: vec![0.0; stride],
+        tmp: vec![0.0; stride],
+        order: (0..data.p).collect(),
+        scratch: Vec::new(),
+    };
+    g.run(rows, rng)
+}
+
+struct Grower<'a> {
+    data: &'a Binned<'a>,
+    targets: &'a [f64],
+    k: usize,
+    stride: usize,
+    weight: &'a [f64],
+    wy: Vec<f64>,
+    params: GrowParams,
+    pool: Vec<Vec<f64>>,
+    keys: Vec<u32>,
+    ebins: Vec<u8>,
+    esums: Vec<f64>,
+    miss: Vec<f64>,
+    acc: Vec<f64>,
+    tmp: Vec<f64>,
+    order: Vec<usize>,
+    scratch: Vec<u32>,
+}
+
+impl Grower<'_> {
+    fn run(&mut self, mut rows: Vec<u32>, rng: &mut StdRng) -> Grown {
+        let p = self.data.p;
+        let mut nodes: Vec<Node> = vec![leaf_node(0)];
+        let mut leaf_of_node: Vec<u32> = vec![NOT_LEAF];
+        let mut leaf_ranges: Vec<(usize, usize)> = Vec::new();
+        let mut gains = vec![0.0; p];
+
+        let mut root_sums = vec![0.0; self.stride];
+        self.add_rows(&rows, &mut root_sums);
+        let root_hist = if rows.len() >= HIST_MIN_ROWS && self.splittable(rows.len(), 0) {
+            let mut h = self.take_hist();
+            self.build_hist(&rows, &mut h);
+            Some(h)
+        } else {
+            None
+        };
+        let mut stack = vec![Pending {
+            node: 0,
+            start: 0,
+            end: rows.len(),
+            depth: 0,
+            sums: root_sums,
+            hist: root_hist,
+        }];
+        let mut best = Best {
+            score: 0.0,
+            feature: 0,
+            bin: 0,
+            missing_left: false,
+            left: vec![0.0; self.stride],
+        };
+
+        while let Some(pend) = stack.pop() {
+            let Pending {
+                node,
+                start,
+                end,
+                depth,
+                sums,
+                hist,
+            } = pend;
+            let m = end - start;
+            let found = if self.splittable(m, depth) {
+                self.find_split(&rows[start..end], &sums, hist.as_deref(), rng, &mut best)
+            } else {
+                None
+            };
+            let Some(gain) = found else {
+                if let Some(h) = hist {
+                    self.pool.push(h);
+                }
+                nodes[node] = leaf_node(node as u32);
+                leaf_of_node[node] = leaf_ranges.len() as u32;
+                leaf_ranges.push((start, end));
+                continue;
+            };
+            gains[best.feature] += gain;
+
+            // partition rows (stable) by the split
+            let f = best.feature;
+            let col = &self.data.codes[f * self.data.n..(f + 1) * self.data.n];
+            let (bin, miss_left) = (best.bin, best.missing_left);
+            let goes_left = |r: u32| {
+                let c = col[r as usize];
+                if c == MISSING_BIN {
+                    miss_left
+                } else {
+                    c <= bin
+                }
+            };
+            self.scratch.clear();
+            let mut w = start;
+            for i in start..end {
+                let r = rows[i];
+                if goes_left(r) {
+                    rows[w] = r;
+                    w += 1;
+                } else {
+                    self.scratch.push(r);
+                }
+            }
+            rows[w..end].copy_from_slice(&self.scratch);
+            let mid = w;
+            let (m_left, m_right) = (mid - start, end - mid);
+
+            let left_sums = best.left.clone();
+            let right_sums: Vec<f64> = sums.iter().zip(&left_sums).map(|(t, l)| t - l).collect();
+            let has_missing = rows[start..end]
+                .iter()
+                .any(|&r| col[r as usize] == MISSING_BIN);
+            let missing_left = if has_missing {
+                miss_left
+            } else {
+                m_left >= m_right
+            };
+            let (li, ri) = (nodes.len(), nodes.len() + 1);
+            nodes[node] = Node {
+                threshold: self.data.mapper.threshold(f, bin),
+                feature: f as u32,
+                left: li as u32,
+                right: ri as u32,
+                missing: if missing_left { li } else { ri } as u32,
+            };
+            nodes.push(leaf_node(li as u32));
+            nodes.push(leaf_node(ri as u32));
+            leaf_of_node.push(NOT_LEAF);
+            leaf_of_node.push(NOT_LEAF);
+
+            // children's histograms: build the smaller child's, subtract for the larger
+            let want_l = m_left >= HIST_MIN_ROWS && self.splittable(m_left, depth + 1);
+            let want_r = m_right >= HIST_MIN_ROWS && self.splittable(m_right, depth + 1);
+            let (mut hl, mut hr) = (None, None);
+            match hist {
+                Some(mut parent) if want_l || want_r => {
+                    let left_small = m_left <= m_right;
+                    let (s0, s1) = if left_small { (start, mid) } else { (mid, end) };
+                    let mut small = self.take_hist();
+                    self.build_hist(&rows[s0..s1], &mut small);
+                    for (a, b) in parent.iter_mut().zip(&small) {
+                        *a -= *b;
+                    }
+                    let (h_small, h_large) = (small, parent);
+                    let (want_small, want_large) = if left_small {
+                        (want_l, want_r)
+                    } else {
+                        (want_r, want_l)
+                    };
+                    let small_opt = if want_small {
+                        Some(h_small)
+                    } else {
+                        self.pool.push(h_small);
+                        None
+                    };
+                    let large_opt = if want_large {
+                        Some(h_large)
+                    } else {
+                        self.pool.push(h_large);
+                        None
+                    };
+                    if left_small {
+                        (hl, hr) = (small_opt, large_opt);
+                    } else {
+                        (hl, hr) = (large_opt, small_opt);
+                    }
+                }
+                Some(parent) => self.pool.push(parent),
+                None => {
+                    if want_l {
+                        let mut h = self.take_hist();
+                        self.build_hist(&rows[start..mid], &mut h);
+                        hl = Some(h);
+                    }
+                    if want_r {
+                        let mut h = self.take_hist();
+                        self.build_hist(&rows[mid..end], &mut h);
+                        hr = Some(h);
+                    }
+                }
+            }
+            // right pushed first so the left subtree is grown first
+            stack.push(Pending {
+                node: ri,
+                start: mid,
+                end,
+                depth: depth + 1,
+                sums: right_sums,
+                hist: hr,
+            });
+            stack.push(Pending {
+                node: li,
+                start,
+                end: mid,
+                depth: depth + 1,
+                sums: left_sums,
+                hist: hl,
+            });
+        }
+
+        Grown {
+            tree: Tree {
+                nodes,
+                leaf_of_node,
+                n_outputs: self.k,
+                values: Vec::new(),
+            },
+            rows,
+            leaf_ranges,
+            gains,
+        }
+    }
+
+    fn scan_ctx(&mut self) -> ScanCtx<'_> {
+        ScanCtx {
+            k: self.k,
+            min_leaf: self.params.min_samples_leaf as f64,
+            acc: &mut self.acc,
+            tmp: &mut self.tmp,
+        }
+    }
+
+    fn splittable(&self, m: usize, depth: usize) -> bool {
+        depth < self.params.max_depth && m >= 2 * self.params.min_samples_leaf
+    }
+
+    fn take_hist(&mut self) -> Vec<f64> {
+        let len = self.data.p * 256 * self.stride;
+        match self.pool.pop() {
+            Some(h) => h,
+            None => vec![0.0; len],
+        }
+    }
+
+    fn add_rows(&self, rows: &[u32], sums: &mut [f64]) {
+        let k = self.k;
+        for &r in rows {
+            let r = r as usize;
+            sums[0] += self.weight[r];
+            for j in 0..k {
+                sums[1 + j] += self.wy[r * k + j];
+            }
+            sums[k + 1] += 1.0;
+        }
+    }
+
+    /// Per-feature, per-bin sums of weight, weighted targets and counts.
+    fn build_hist(&self, rows: &[u32], h: &mut [f64]) {
+        h.fill(0.0);
+        let (n, k, s) = (self.data.n, self.k, self.stride);
+        for f in 0..self.data.p {
+            let col = &self.data.codes[f * n..(f + 1) * n];
+            let hf = &mut h[f * 256 * s..(f + 1) * 256 * s];
+            if k == 1 {
+                for &r in rows {
+                    let r = r as usize;
+                    let b = col[r] as usize * 3;
+                    hf[b] += self.weight[r];
+                    hf[b + 1] += self.wy[r];
+                    hf[b + 2] += 1.0;
+                }
+            } else {
+                for &r in rows {
+                    let r = r as usize;
+                    let b = col[r] as usize * s;
+                    hf[b] += self.weight[r];
+                    for j in 0..k {
+                        hf[b + 1 + j] += self.wy[r * k + j];
+                    }
+                    hf[b + k + 1] += 1.0;
+                }
+            }
+        }
+    }
+
+    /// Finds the best split of a node; returns its gain (weighted SSE reduction) and fills
+    /// `best`, or `None` when no split satisfies the limits or improves the fit.
+    fn find_split(
+        &mut self,
+        rows: &[u32],
+        sums: &[f64],
+        hist: Option<&[f64]>,
+        rng: &mut StdRng,
+        best: &mut Best,
+    ) -> Option<f64> {
+        let (k, s, p) = (self.k, self.stride, self.data.p);
+        let w_tot = sums[0];
+        if w_tot <= 0.0 {
+            return None;
+        }
+        // sum of squares, to tell a pure node and to scale the gain tolerance
+        let mut sq = 0.0;
+        for &r in rows {
+            let r = r as usize;
+            for j in 0..k {
+                sq += self.wy[r * k + j] * self.targets[r * k + j];
+            }
+        }
+        let parent_score: f64 = (0..k).map(|j| sums[1 + j] * sums[1 + j] / w_tot).sum();
+        let tol = 1e-12 * sq.abs().max(f64::MIN_POSITIVE);
+        if sq - parent_score <= tol {
+            return None;
+        }
+        best.score = f64::NEG_INFINITY;
+        let all = self.params.n_try >= p;
+        let mut tried = 0;
+        for i in 0..p {
+            if !all {
+                let j = rng.random_range(i..p);
+                self.order.swap(i, j);
+            }
+            let f = self.order[i];
+            let nonconstant = match hist {
+                Some(h) => {
+                    let hf = &h[f * 256 * s..(f + 1) * 256 * s];
+                    let nb = self.data.n_bins[f];
+                    let miss_at = MISSING_BIN as usize * s;
+                    let miss = &hf[miss_at..miss_at + s];
+                    scan(
+                        &mut self.scan_ctx(),
+                        f,
+                        &IDENTITY[..nb],
+                        &hf[..nb * s],
+                        miss,
+                        sums,
+                        best,
+                    )
+                }
+                None => {
+                    self.sparse_entries(f, rows);
+                    let (ebins, esums, miss) = (&self.ebins, &self.esums, &self.miss);
+                    let mut ctx = ScanCtx {
+                        k,
+                        min_leaf: self.params.min_samples_leaf as f64,
+                        acc: &mut self.acc,
+                        tmp: &mut self.tmp,
+                    };
+                    scan(&mut ctx, f, ebins, esums, miss, sums, best)
+                }
+            };
+            if nonconstant {
+                tried += 1;
+                if tried >= self.params.n_try {
+                    break;
+                }
+            }
+        }
+        let gain = best.score - parent_score;
+        if best.score.is_finite() && gain > tol {
+            Some(gain)
+        } else {
+            None
+        }
+    }
+
+    /// Sorts the node's rows by their bin code of feature `f` and sums each run of equal codes
+    /// into `ebins`/`esums`; missing rows are summed into `miss`.
+    fn sparse_entries(&mut self, f: usize, rows: &[u32]) {
+        let (n, k, s) = (self.data.n, self.k, self.stride);
+        let col = &self.data.codes[f * n..(f + 1) * n];
+        self.keys.clear();
+        self.keys.extend(
+            rows.iter()
+                .enumerate()
+                .map(|(i, &r)| ((col[r as usize] as u32) << 24) | i as u32),
+        );
+        self.keys.sort_unstable();
+        self.ebins.clear();
+        self.esums.clear();
+        self.miss.fill(0.0);
+        for &key in &self.keys {
+            let b = (key >> 24) as u8;
+            let r = rows[(key & 0x00FF_FFFF) as usize] as usize;
+            let target = if b == MISSING_BIN {
+                &mut self.miss[..]
+            } else {
+                if self.ebins.last() != Some(&b) {
+                    self.ebins.push(b);
+                    self.esums.extend(std::iter::repeat_n(0.0, s));
+                }
+                let at = self.esums.len() - s;
+                &mut self.esums[at..]
+            };
+            target[0] += self.weight[r];
+            for j in 0..k {
+                target[1 + j] += self.wy[r * k + j];
+            }
+            target[k + 1] += 1.0;
+        }
+    }
+}
+
+/// Scratch and limits for [`scan`].
+struct ScanCtx<'a> {
+    k: usize,
+    min_leaf: f64,
+    acc: &'a mut [f64],
+    tmp: &'a mut [f64],
+}
+
+/// Bin codes 0..=255, the entry ids of a dense histogram.
+static IDENTITY: [u8; 256] = {
+    let mut a = [0u8; 256];
+    let mut i = 0;
+    while i < 256 {
+        a[i] = i as u8;
+        i += 1;
+    }
+    a
+};
+
+/// Scans the non-missing bins of feature `f` in ascending order (`bins[e]` is the code of
+/// entry `e`, `esums` its sums), trying a split after every non-empty bin with the missing
+/// rows (`miss`) on either side, and records improvements in `best`. Returns whether the
+/// feature is non-constant in the node (rows in two or more bins, counting the missing bin).
+fn scan(
+    ctx: &mut ScanCtx<'_>,
+    f: usize,
+    bins: &[u8],
+    esums: &[f64],
+    miss: &[f64],
+    total: &[f64],
+    best: &mut Best,
+) -> bool {
+    let k = ctx.k;
+    let s = k + 2;
+    let min_leaf = ctx.min_leaf;
+    let c_tot = total[k + 1];
+    let c_miss = miss[k + 1];
+    let mut nonempty = usize::from(c_miss > 0.0);
+    ctx.acc.fill(0.0);
+    for (e, &b) in bins.iter().enumerate() {
+        let entry = &esums[e * s..(e + 1) * s];
+        if entry[k + 1] == 0.0 {
+            continue;
+        }
+        nonempty += 1;
+        for (a, v) in ctx.acc.iter_mut().zip(entry) {
+            *a += v;
+        }
+        let c_left = ctx.acc[k + 1];
+        if c_tot - c_left < min_leaf {
+            // no later split leaves enough rows on the right; rows left over mean more bins
+            return nonempty >= 2 || c_tot - c_left > 0.5;
+        }
+        // missing values to the right
+        if c_left >= min_leaf {
+            let sc = split_score(ctx.acc, total, k);
+            if sc > best.score {
+                best.score = sc;
+                best.feature = f;
+                best.bin = b;
+                best.missing_left = false;
+                best.left.copy_from_slice(ctx.acc);
+            }
+        }
+        // missing values to the left
+        if c_miss > 0.0 && c_left + c_miss >= min_leaf && c_tot - c_left - c_miss >= min_leaf {
+            for ((t, a), m) in ctx.tmp.iter_mut().zip(ctx.acc.iter()).zip(miss) {
+                *t = a + m;
+            }
+            let sc = split_score(ctx.tmp, total, k);
+            if sc > best.score {
+                best.score = sc;
+                best.feature = f;
+                best.bin = b;
+                best.missing_left = true;
+                best.left.copy_from_slice(ctx.tmp);
+            }
+        }
+    }
+    nonempty >= 2
+}
+
+/// Sum over outputs of `S_L^2 / W_L + S_R^2 / W_R` (the split's between-child sum of squares
+/// plus a constant): larger is a larger variance reduction.
+#[inline]
+fn split_score(left: &[f64], total: &[f64], k: usize) -> f64 {
+    let wl = left[0];
+    let wr = total[0] - wl;
+    if wl <= 0.0 || wr <= 0.0 {
+        return f64::NEG_INFINITY;
+    }
+    let mut sc = 0.0;
+    for j in 1..=k {
+        let sl = left[j];
+        let sr = total[j] - sl;
+        sc += sl * sl / wl + sr * sr / wr;
+    }
+    sc
+}
+
+fn leaf_node(i: u32) -> Node {
+    Node {
+        threshold: 0.0,
+        feature: 0,
+        left: i,
+        right: i,
+        missing: i,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use ndarray::Array2;
+    use rand::SeedableRng;
+
+    fn grow_simple(x: &Array2<f64>, y: &[f64], min_leaf: usize) -> Grown {
+        let mapper = BinMapper::fit(x.view(), 255);
+        let codes = mapper.transform(x.view());
+        let data = Binned::new(&codes, x.nrows(), &mapper);
+        let w = vec![1.0; x.nrows()];
+        let rows: Vec<u32> = (0..x.nrows() as u32).collect();
+        let params = GrowParams {
+            max_depth: usize::MAX,
+            min_samples_leaf: min_leaf,
+            n_try: x.ncols(),
+        };
+        let mut rng = StdRng::seed_from_u64(1);
+        grow(&data, y, 1, &w, rows, &params, &mut rng)
+    }
+
+    #[test]
+    fn step_function_is_split_exactly() {
+        let x = Array2::from_shape_fn((10, 1), |(i, _)| i as f64);
+        let y: Vec<f64> = (0..10).map(|i| if i < 4 { 1.0 } else { 5.0 }).collect();
+        let g = grow_simple(&x, &y, 1);
+        assert_eq!(g.leaf_ranges.len(), 2);
+        assert_eq!(g.tree.nodes()[0].threshold, 3.5);
+        assert_eq!(g.tree.apply(&[3.0]), g.tree.apply(&[0.0]));
+        assert_ne!(g.tree.apply(&[4.0]), g.tree.apply(&[3.0]));
+    }
+
+    #[test]
+    fn missing_values_learn_their_side() {
+        // rows with NaN behave like the high group, so they must go right
+        let xs = [0.0, 1.0, 2.0, 3.0, 10.0, 11.0, 12.0, f64::NAN, f64::NAN];
+        let y = [0.0, 0.0, 0.0, 0.0, 9.0, 9.0, 9.0, 9.0, 9.0];
+        let x = Array2::from_shape_vec((9, 1), xs.to_vec()).unwrap();
+        let g = grow_simple(&x, &y, 1);
+        assert_eq!(g.leaf_ranges.len(), 2);
+        assert_eq!(g.tree.apply(&[f64::NAN]), g.tree.apply(&[11.0]));
+    }
+
+    #[test]
+    fn histogram_and_sorted_paths_agree() {
+        // a large node (histogram path) must pick the same first split as the exact scan
+        let n = 2000;
+        let x = Array2::from_shape_fn((n, 3), |(i, j)| ((i * (7 + 13 * j)) % 101) as f64);
+        let y: Vec<f64> = (0..n)
+            .map(|i| (x[[i, 1]] - 50.0).abs() + 0.1 * x[[i, 0]])
+            .collect();
+        let g = grow_simple(&x, &y, 5);
+        // exact best threshold on feature 1 by brute force
+        let mut best = (f64::NEG_INFINITY, 0.0);
+        for t in 0..100 {
+            let t = t as f64 + 0.5;
+            let (mut sl, mut nl, mut sr, mut nr) = (0.0, 0.0, 0.0, 0.0);
+            for i in 0..n {
+                if x[[i, 1]] <= t {
+                    sl += y[i];
+                    nl += 1.0;
+                } else {
+                    sr += y[i];
+                    nr += 1.0;
+                }
+            }
+            if nl >= 5.0 && nr >= 5.0 {
+                let sc = sl * sl / nl + sr * sr / nr;
+                if sc > best.0 {
+                    best = (sc, t);
+                }
+            }
+        }
+        let root = g.tree.nodes()[0];
+        assert_eq!(root.feature, 1);
+        assert_eq!(root.threshold, best.1);
+        let total: usize = g.leaf_ranges.iter().map(|(a, b)| b - a).sum();
+        assert_eq!(total, n);
+    }
+}

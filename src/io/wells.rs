@@ -1,0 +1,281 @@
+//! The wells CSV (RFC 4180 comma-separated values), long form: one row per (well, step) with the
+//! reservoir penetration point `x, y` of that step, the measured changes (one column per target,
+//! empty cell = not measured) and an optional weight.
+//!
+//! Every error names the file, the line (the header is line 1) and, for a cell, the column.
+
+use super::IoError;
+use std::collections::HashMap;
+use std::path::Path;
+
+/// One row of the wells CSV.
+#[derive(Clone, Debug, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct WellRecord {
+    /// Well name.
+    pub well: String,
+    /// World x of the penetration point for this step.
+    pub x: f64,
+    /// World y of the penetration point for this step.
+    pub y: f64,
+    /// Step name (one of the manifest's steps).
+    pub step: String,
+    /// One value per target in manifest order; `NaN` for an empty cell (not measured).
+    pub targets: Vec<f64>,
+    /// Row weight (> 0), 1 when the file has no weight column.
+    pub weight: f64,
+    /// 1-based line number of the row in the file.
+    pub line: u64,
+}
+
+/// A target column and its physical bounds.
+#[derive(Clone, Debug, PartialEq)]
+pub struct TargetColumn {
+    /// Column name in the CSV.
+    pub column: String,
+    /// Smallest physically possible value.
+    pub min: f64,
+    /// Largest physically possible value.
+    pub max: f64,
+}
+
+/// Which columns of the CSV hold what.
+#[derive(Clone, Debug, PartialEq)]
+pub struct WellColumns {
+    /// Column of well names.
+    pub well: String,
+    /// Column of x coordinates.
+    pub x: String,
+    /// Column of y coordinates.
+    pub y: String,
+    /// Column of step names.
+    pub step: String,
+    /// Column of row weights.
+    pub weight: String,
+    /// When true the weight column must exist; when false a missing one means weight 1.
+    pub weight_required: bool,
+    /// Target columns in manifest order.
+    pub targets: Vec<TargetColumn>,
+}
+
+/// Reads the wells CSV. `steps` are the manifest's step names; a row naming any other step is an
+/// error. Values outside a target's bounds, a non-numeric cell, a missing column, a repeated
+/// (well, step) pair and a file with no rows are errors too.
+pub fn read(
+    path: &Path,
+    columns: &WellColumns,
+    steps: &[String],
+) -> Result<Vec<WellRecord>, IoError> {
+    let bytes = std::fs::read(path).map_err(|e| IoError::os(path, e))?;
+    parse(path, &bytes, columns, steps)
+}
+
+/// Parses wells CSV bytes already in memory; `path` labels errors.
+pub fn parse(
+    path: &Path,
+    bytes: &[u8],
+    columns: &WellColumns,
+    steps: &[String],
+) -> Result<Vec<WellRecord>, IoError> {
+    let csv_err = |e: csv::Error| {
+        let line = e.position().map(|p| p.line()).unwrap_or(1);
+        let message = match e.kind() {
+            csv::ErrorKind::UnequalLengths {
+                expected_len, len, ..
+            } => format!("expected {expected_len} fields like the header, found {len}"),
+            csv::ErrorKind::Utf8 { .. } => "not UTF-8 text".to_string(),
+            _ => e.to_string(),
+        };
+        IoError::Line {
+            path: path.to_path_buf(),
+            line,
+            message,
+        }
+    };
+    let mut rdr = csv::ReaderBuilder::new()
+        .has_headers(true)
+        .trim(csv::Trim::All)
+        .comment(Some(b'#'))
+        .from_reader(bytes);
+    let header = rdr.headers().map_err(csv_err)?.clone();
+    if header.is_empty() || header.iter().all(|h| h.is_empty()) {
+        return Err(IoError::format(path, "empty file: no header line"));
+    }
+    let header_line = header.position().map_or(1, |p| p.line()).max(1);
+    let mut index: HashMap<&str, usize> = HashMap::new();
+    for (k, name) in header.iter().enumerate() {
+        if index.insert(name, k).is_some() {
+            return Err(IoError::Cell {
+                path: path.to_path_buf(),
+                line: header_line,
+                column: name.to_string(),
+                message: "column name appears twice in the header".into(),
+            });
+        }
+    }
+    let have: Vec<&str> = header.iter().collect();
+    let find = |name: &str| -> Result<usize, IoError> {
+        index.get(name).copied().ok_or_else(|| IoError::Cell {
+            path: path.to_path_buf(),
+            line: header_line,
+            column: name.to_string(),
+            message: format!("missing column (the header has: {})", have.join(", ")),
+        })
+    };
+    let c_well = find(&columns.well)?;
+    let c_x = find(&columns.x)?;
+    let c_y = find(&columns.y)?;
+    let c_step = find(&columns.step)?;
+    let c_weight = if columns.weight_required {
+        Some(find(&columns.weight)?)
+    } else {
+        index.get(columns.weight.as_str()).copied()
+    };
+    let c_targets = columns
+        .targets
+        .iter()
+        .map(|t| find(&t.column))
+        .collect::<Result<Vec<_>, _>>()?;
+
+    let mut out = Vec::new();
+    let mut pairs: HashMap<(String, String), u64> = HashMap::new();
+    for rec in rdr.records() {
+        let rec = rec.map_err(csv_err)?;
+        let line = rec.position().map(|p| p.line()).unwrap_or(0);
+        let cell_err = |col: &str, message: String| IoError::Cell {
+            path: path.to_path_buf(),
+            line,
+            column: col.to_string(),
+            message,
+        };
+        let get = |k: usize| rec.get(k).unwrap_or("");
+        let number = |k: usize, col: &str| -> Result<f64, IoError> {
+            let s = get(k);
+            if s.is_empty() {
+                return Err(cell_err(col, "empty, a number is required".into()));
+            }
+            match s.parse::<f64>() {
+                Ok(v) if v.is_finite() => Ok(v),
+                _ => Err(cell_err(col, format!("'{s}' is not a finite number"))),
+            }
+        };
+        let well = get(c_well).to_string();
+        if well.is_empty() {
+            return Err(cell_err(&columns.well, "empty well name".into()));
+        }
+        let x = number(c_x, &columns.x)?;
+        let y = number(c_y, &columns.y)?;
+        let step = get(c_step).to_string();
+        if !steps.contains(&step) {
+            return Err(cell_err(
+                &columns.step,
+                format!(
+                    "step '{step}' is not in the manifest (steps: {})",
+                    steps.join(", ")
+                ),
+            ));
+        }
+        let weight = match c_weight {
+            Some(k) => {
+                let w = number(k, &columns.weight)?;
+                if w <= 0.0 {
+                    return Err(cell_err(
+                        &columns.weight,
+                        format!("weight must be > 0, got {w}"),
+                    ));
+                }
+                w
+            }
+            None => 1.0,
+        };
+        let mut targets = Vec::with_capacity(c_targets.len());
+        for (t, &k) in columns.targets.iter().zip(&c_targets) {
+            let s = get(k);
+            if s.is_empty() {
+                targets.push(f64::NAN);
+                continue;
+            }
+            let v = match s.parse::<f64>() {
+                Ok(v) if v.is_finite() => v,
+                _ => {
+                    return Err(cell_err(
+                        &t.column,
+                        format!(
+                            "'{s}' is not a finite number (leave the cell empty if not measured)"
+                        ),
+                    ));
+                }
+            };
+            if v < t.min || v > t.max {
+                return Err(cell_err(
+                    &t.column,
+                    format!(
+                        "{v} lies outside the physical bounds [{}, {}] declared for this target",
+                        t.min, t.max
+                    ),
+                ));
+            }
+            targets.push(v);
+        }
+        if let Some(first) = pairs.insert((well.clone(), step.clone()), line) {
+            return Err(IoError::Line {
+                path: path.to_path_buf(),
+                line,
+                message: format!("well '{well}' step '{step}' already given on line {first}"),
+            });
+        }
+        out.push(WellRecord {
+            well,
+            x,
+            y,
+            step,
+            targets,
+            weight,
+            line,
+        });
+    }
+    if out.is_empty() {
+        return Err(IoError::format(path, "no well rows after the header"));
+    }
+    Ok(out)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn cols() -> WellColumns {
+        WellColumns {
+            well: "well".into(),
+            x: "x".into(),
+            y: "y".into(),
+            step: "step".into(),
+            weight: "weight".into(),
+            weight_required: false,
+            targets: vec![TargetColumn {
+                column: "dSw".into(),
+                min: -1.0,
+                max: 1.0,
+            }],
+        }
+    }
+
+    #[test]
+    fn reads_rows_with_empty_cells() {
+        let text = b"well,x,y,step,dSw\nA,1,2,m1,0.2\nA,1.5,2,m2,\n";
+        let steps = vec!["m1".to_string(), "m2".to_string()];
+        let r = parse(Path::new("w.csv"), text, &cols(), &steps).unwrap();
+        assert_eq!(r.len(), 2);
+        assert_eq!(r[0].line, 2);
+        assert_eq!(r[1].line, 3);
+        assert!(r[1].targets[0].is_nan());
+        assert_eq!(r[0].weight, 1.0);
+    }
+
+    #[test]
+    fn ragged_row_names_line() {
+        let text = b"well,x,y,step,dSw\nA,1,2,m1,0.2\nB,1,2\n";
+        let steps = vec!["m1".to_string()];
+        let e = parse(Path::new("w.csv"), text, &cols(), &steps).unwrap_err();
+        assert!(e.to_string().starts_with("w.csv, line 3"), "{e}");
+    }
+}

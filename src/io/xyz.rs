@@ -1,0 +1,209 @@
+//! XYZ text grids: one `x y value` point per line.
+//!
+//! Fields are separated by whitespace or commas; `#` starts a comment; blank lines are skipped; the
+//! first data line may be a header (its first field is not a number). Each point snaps to the grid
+//! node within `snap_tolerance` (a fraction of the spacing along each axis). Nodes the file does not
+//! mention are null, and so is a value equal to the grid's null value (or `NaN`). A point that lands
+//! on no node, a second point on the same node and a malformed line are errors naming file and line.
+
+use super::{IoError, atomic, check_len};
+use crate::grid::Grid;
+use std::path::Path;
+
+/// How many off-grid points an error lists.
+const OFF_GRID_LISTED: usize = 5;
+
+/// Writes a map as XYZ text, atomically: a `#` comment header, then one `x y value` line per node
+/// in index order, nulls written as the grid's null value. Coordinates and values use the shortest
+/// decimal form that reads back to the same `f64`.
+pub fn write(path: &Path, grid: &Grid, values: &[f64]) -> Result<(), IoError> {
+    check_len(path, grid, values)?;
+    atomic::write_with(path, |w| {
+        writeln!(
+            w,
+            "# x y value; {} x {} nodes, dx={} dy={} rotation={}, null={}",
+            grid.nx, grid.ny, grid.dx, grid.dy, grid.rotation, grid.null_value
+        )?;
+        for j in 0..grid.ny {
+            for i in 0..grid.nx {
+                let (x, y) = grid.node_xy(i, j);
+                let v = values[grid.index(i, j)];
+                let v = if v.is_nan() { grid.null_value } else { v };
+                writeln!(w, "{x} {y} {v}")?;
+            }
+        }
+        Ok(())
+    })
+}
+
+/// Splits a data line into fields on whitespace and commas.
+fn fields(line: &str) -> impl Iterator<Item = &str> {
+    line.split(|c: char| c == ',' || c.is_whitespace())
+        .filter(|f| !f.is_empty())
+}
+
+/// Reads an XYZ text grid onto `grid`, snapping each point to its node.
+pub fn read_on_grid(path: &Path, grid: &Grid, snap_tolerance: f64) -> Result<Vec<f64>, IoError> {
+    let text = std::fs::read(path).map_err(|e| IoError::os(path, e))?;
+    let text = String::from_utf8(text).map_err(|e| {
+        let upto = &e.as_bytes()[..e.utf8_error().valid_up_to()];
+        let line = upto.iter().filter(|&&b| b == b'\n').count() as u64 + 1;
+        IoError::Line {
+            path: path.to_path_buf(),
+            line,
+            message: "not UTF-8 text".into(),
+        }
+    })?;
+    parse(path, &text, grid, snap_tolerance)
+}
+
+/// Parses XYZ text already in memory; `path` labels errors.
+pub fn parse(
+    path: &Path,
+    text: &str,
+    grid: &Grid,
+    snap_tolerance: f64,
+) -> Result<Vec<f64>, IoError> {
+    let line_err = |line: u64, message: String| IoError::Line {
+        path: path.to_path_buf(),
+        line,
+        message,
+    };
+    let mut values = vec![f64::NAN; grid.len()];
+    // Line that set each node (0 = none yet).
+    let mut seen = vec![0u64; grid.len()];
+    let mut header_allowed = true;
+    let mut points = 0usize;
+    let mut off_count = 0usize;
+    let mut off_first: Vec<String> = Vec::new();
+    let (nxm, nym) = (grid.nx as f64 - 1.0, grid.ny as f64 - 1.0);
+    let null = grid.null_value;
+    let null_tol = 1e-9 * null.abs().max(1.0);
+    for (n, raw) in text.lines().enumerate() {
+        let line = n as u64 + 1;
+        let data = match raw.find('#') {
+            Some(k) => &raw[..k],
+            None => raw,
+        };
+        let mut it = fields(data);
+        let Some(f0) = it.next() else { continue };
+        let first = f0.parse::<f64>();
+        if first.is_err() && header_allowed {
+            header_allowed = false;
+            continue;
+        }
+        header_allowed = false;
+        let (f1, f2) = (it.next(), it.next());
+        let extra = it.count();
+        let (Some(f1), Some(f2)) = (f1, f2) else {
+            return Err(line_err(
+                line,
+                format!(
+                    "expected 3 fields (x y value), found {}",
+                    1 + usize::from(f1.is_some())
+                ),
+            ));
+        };
+        if extra > 0 {
+            return Err(line_err(
+                line,
+                format!("expected 3 fields (x y value), found {}", 3 + extra),
+            ));
+        }
+        let num = |s: &str, what: &str| -> Result<f64, IoError> {
+            match s.parse::<f64>() {
+                Ok(v) if v.is_finite() => Ok(v),
+                Ok(v) if v.is_nan() && what == "value" => Ok(v),
+                _ => Err(line_err(
+                    line,
+                    format!("{what} '{s}' is not a finite number"),
+                )),
+            }
+        };
+        let x = match first {
+            Ok(v) if v.is_finite() => v,
+            _ => return Err(line_err(line, format!("x '{f0}' is not a finite number"))),
+        };
+        let y = num(f1, "y")?;
+        let v = num(f2, "value")?;
+        points += 1;
+        let (fi, fj) = grid.fractional_ij(x, y);
+        let (ri, rj) = (fi.round(), fj.round());
+        let on_node = (fi - ri).abs() <= snap_tolerance
+            && (fj - rj).abs() <= snap_tolerance
+            && ri >= 0.0
+            && rj >= 0.0
+            && ri <= nxm
+            && rj <= nym;
+        if !on_node {
+            off_count += 1;
+            if off_first.len() < OFF_GRID_LISTED {
+                off_first.push(format!("line {line} ({x}, {y})"));
+            }
+            continue;
+        }
+        let k = grid.index(ri as usize, rj as usize);
+        if seen[k] != 0 {
+            return Err(line_err(
+                line,
+                format!(
+                    "point ({x}, {y}) falls on node (i={}, j={}) already given on line {}",
+                    ri as usize, rj as usize, seen[k]
+                ),
+            ));
+        }
+        seen[k] = line;
+        values[k] = if v.is_nan() || (v - null).abs() <= null_tol {
+            f64::NAN
+        } else {
+            v
+        };
+    }
+    if off_count > 0 {
+        return Err(IoError::OffGrid {
+            path: path.to_path_buf(),
+            count: off_count,
+            tolerance: snap_tolerance,
+            first: off_first,
+        });
+    }
+    if points == 0 {
+        return Err(IoError::format(path, "no data points"));
+    }
+    Ok(values)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn grid() -> Grid {
+        Grid {
+            origin_x: 0.0,
+            origin_y: 0.0,
+            dx: 10.0,
+            dy: 10.0,
+            nx: 3,
+            ny: 2,
+            rotation: 0.0,
+            epsg: None,
+            null_value: -999.25,
+        }
+    }
+
+    #[test]
+    fn header_comments_commas_nulls() {
+        let text = "# exported\nX,Y,Z\n0,0,1 # first\n\n10 0 -999.25\n20.05, 10.0, 3\n";
+        let v = parse(Path::new("m.xyz"), text, &grid(), 0.01).unwrap();
+        assert_eq!(v[0], 1.0);
+        assert!(v[1].is_nan());
+        assert!(v[2].is_nan(), "absent node is null");
+        assert_eq!(v[grid().index(2, 1)], 3.0);
+    }
+
+    #[test]
+    fn second_header_is_an_error() {
+        let err = parse(Path::new("m.xyz"), "x y z\n0 0 1\nfoo 0 1\n", &grid(), 0.01).unwrap_err();
+        assert!(err.to_string().contains("m.xyz, line 3"), "{err}");
+    }
+}

@@ -1,0 +1,473 @@
+//! [`ReportInput`]: the plain data the review page is built from.
+//!
+//! Plain numbers and strings only (no types of other modules), so that `run` can save it as
+//! `RESULTS/report-data.json` and `tidemark report RESULTS` can rebuild the page later. Every
+//! piece is optional in the sense that an empty list or a `null` makes the page say "not computed"
+//! instead of failing. Scalars that may be missing are `Option<f64>`; number lists store `NaN` as
+//! JSON `null`.
+
+use std::path::{Path, PathBuf};
+
+use serde::{Deserialize, Serialize};
+
+use super::ReportError;
+
+/// File name of the saved page input inside a results folder.
+pub const DATA_FILE: &str = "report-data.json";
+/// File name of the page inside a results folder.
+pub const PAGE_FILE: &str = "report.html";
+
+/// Everything the review page shows.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct ReportInput {
+    /// Project (field) name shown as the page title.
+    pub project: String,
+    /// Run metadata.
+    pub run: RunInfo,
+    /// Statement of the P10/P50/P90 convention in force.
+    pub convention: String,
+    /// Cautions that go with the outputs (decision support, not a reserves estimate; qualified
+    /// review before drilling or disclosure; local rules). Defaults are used when empty.
+    pub cautions: Vec<String>,
+    /// Unit of the map coordinates (e.g. "m").
+    pub xy_unit: String,
+    /// Names of the time steps (monitor-minus-base differences), in order.
+    pub steps: Vec<String>,
+    /// Per target: summary, diagnostics and sensitivity studies.
+    pub targets: Vec<TargetReport>,
+    /// Map pictures, per target and step (and per step for applicability).
+    pub maps: Vec<MapEntry>,
+    /// Risked infill targets, when ranked.
+    pub infill: Option<InfillSection>,
+    /// Scores against truth maps (synthetic projects), when computed.
+    pub truth: Option<TruthSection>,
+}
+
+/// Run metadata.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct RunInfo {
+    /// tidemark version that made the results.
+    pub tidemark_version: String,
+    /// When the run was made (free text, e.g. an RFC 3339 time stamp).
+    pub created: String,
+    /// Master seed.
+    pub seed: Option<u64>,
+    /// The manifest the run read.
+    pub project_file: String,
+    /// Settings worth showing, as name/value pairs.
+    pub settings: Vec<KeyValue>,
+    /// Wall time per stage.
+    pub timings: Vec<Timing>,
+    /// Run-level warnings.
+    pub warnings: Vec<String>,
+}
+
+/// A name/value pair.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct KeyValue {
+    /// Name.
+    pub key: String,
+    /// Value, as text.
+    pub value: String,
+}
+
+/// Wall time of one stage.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct Timing {
+    /// Stage name.
+    pub stage: String,
+    /// Seconds.
+    pub seconds: Option<f64>,
+}
+
+/// Everything about one predicted quantity (dP, dSw, dSg, ...).
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct TargetReport {
+    /// Short name, as in the manifest (e.g. "dSw").
+    pub name: String,
+    /// Longer description (e.g. "change in water saturation").
+    pub description: String,
+    /// Unit of the values (e.g. "fraction", "MPa").
+    pub unit: String,
+    /// Summary metrics (leave-wells-out).
+    pub summary: TargetSummary,
+    /// Truth against out-of-fold prediction at wells, before and after the end-bias correction.
+    pub crossplot: Option<CrossplotData>,
+    /// Band coverage by decile of the truth.
+    pub coverage_by_decile: Option<DecileCoverage>,
+    /// Reliability of the exceedance probabilities, one table per threshold.
+    pub reliability: Vec<ReliabilityTable>,
+    /// Histogram of the probability integral transform of the truth.
+    pub pit: Option<PitHistogram>,
+    /// Skill and coverage against the number of training wells.
+    pub learning_curve: Option<LearningCurve>,
+    /// Permutation importance by attribute and by family.
+    pub importance: Option<Importance>,
+    /// Skill with and without the angle-dependent attributes.
+    pub ablation: Option<Ablation>,
+}
+
+/// Summary metrics of one target, from held-out wells.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct TargetSummary {
+    /// Wells with this target measured.
+    pub wells: Option<usize>,
+    /// Training rows (well x step) with this target.
+    pub rows: Option<usize>,
+    /// Learner chosen (e.g. "forest", "booster").
+    pub learner: Option<String>,
+    /// Whether the end-bias (isotonic) correction was kept.
+    pub end_correction_kept: Option<bool>,
+    /// Coefficient of determination of the out-of-fold P50.
+    pub r2: Option<f64>,
+    /// Root mean square error, in the target's unit.
+    pub rmse: Option<f64>,
+    /// Mean of prediction minus truth, in the target's unit.
+    pub bias: Option<f64>,
+    /// Nominal coverage of the band (e.g. 0.8 for P10-P90).
+    pub nominal_coverage: Option<f64>,
+    /// Fraction of held-out truths inside the band.
+    pub coverage: Option<f64>,
+    /// Coverage among the lowest tenth of truths.
+    pub coverage_bottom_decile: Option<f64>,
+    /// Coverage among the highest tenth of truths.
+    pub coverage_top_decile: Option<f64>,
+    /// Mean band width (P90 - P10), in the target's unit.
+    pub mean_width: Option<f64>,
+    /// Warnings about this target.
+    pub warnings: Vec<String>,
+}
+
+/// Paired values at wells: truth, raw out-of-fold prediction, corrected prediction.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct CrossplotData {
+    /// Truth at each row.
+    #[serde(with = "nan_as_null")]
+    pub truth: Vec<f64>,
+    /// Out-of-fold P50 before the end-bias correction.
+    #[serde(with = "nan_as_null")]
+    pub raw: Vec<f64>,
+    /// Out-of-fold P50 after the correction (empty when there is none).
+    #[serde(with = "nan_as_null")]
+    pub corrected: Vec<f64>,
+}
+
+/// Band coverage per decile of the truth.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct DecileCoverage {
+    /// Nominal coverage (e.g. 0.8).
+    pub nominal: Option<f64>,
+    /// One row per decile, lowest truths first.
+    pub rows: Vec<DecileRow>,
+}
+
+/// One decile of the truth.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct DecileRow {
+    /// Decile number, 1 (lowest truths) to 10.
+    pub decile: usize,
+    /// Lowest truth in the decile.
+    pub truth_low: Option<f64>,
+    /// Highest truth in the decile.
+    pub truth_high: Option<f64>,
+    /// Rows in the decile.
+    pub count: usize,
+    /// Fraction of rows whose truth lies inside the band.
+    pub coverage: Option<f64>,
+    /// Mean band width in the decile.
+    pub mean_width: Option<f64>,
+}
+
+/// Reliability of the probability of exceeding one threshold.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct ReliabilityTable {
+    /// Label of the event (e.g. "dSw > 0.2").
+    pub label: String,
+    /// Threshold value, in the target's unit.
+    pub threshold: Option<f64>,
+    /// Brier score of the forecasts.
+    pub brier: Option<f64>,
+    /// Forecast-probability bins.
+    pub bins: Vec<ReliabilityBin>,
+}
+
+/// One bin of a reliability diagram.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct ReliabilityBin {
+    /// Lower edge of the forecast-probability bin.
+    pub forecast_low: f64,
+    /// Upper edge of the bin.
+    pub forecast_high: f64,
+    /// Mean forecast probability of the rows in the bin.
+    pub mean_forecast: Option<f64>,
+    /// Observed frequency of the event among them.
+    pub observed_frequency: Option<f64>,
+    /// Rows in the bin.
+    pub count: usize,
+}
+
+/// PIT histogram: counts in equal-width bins on [0, 1].
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct PitHistogram {
+    /// Count per bin, from 0 upwards.
+    pub counts: Vec<usize>,
+}
+
+/// Learning curve: leave-wells-out skill against the number of training wells.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct LearningCurve {
+    /// Random well subsets drawn per size.
+    pub repeats: usize,
+    /// One point per subset size.
+    pub points: Vec<LearningPoint>,
+}
+
+/// One subset size of the learning curve.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct LearningPoint {
+    /// Number of training wells.
+    pub wells: usize,
+    /// Mean R2 over repeats.
+    pub r2_mean: Option<f64>,
+    /// Lowest R2 over repeats.
+    pub r2_min: Option<f64>,
+    /// Highest R2 over repeats.
+    pub r2_max: Option<f64>,
+    /// Mean band coverage over repeats.
+    pub coverage_mean: Option<f64>,
+}
+
+/// Permutation importance.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct Importance {
+    /// What the value measures (e.g. "increase in RMSE when the attribute is permuted").
+    pub measure: String,
+    /// Unit of the values.
+    pub unit: String,
+    /// One entry per attribute.
+    pub by_attribute: Vec<AttributeImportance>,
+    /// One entry per family (amplitudes, AVO intercept/gradient, timing, ...).
+    pub by_family: Vec<FamilyImportance>,
+}
+
+/// Importance of one attribute.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct AttributeImportance {
+    /// Attribute name.
+    pub attribute: String,
+    /// Family it belongs to.
+    pub family: String,
+    /// Importance value.
+    pub value: Option<f64>,
+    /// Spread over repeats (e.g. one standard deviation).
+    pub spread: Option<f64>,
+}
+
+/// Importance of one family of attributes (permuted together).
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct FamilyImportance {
+    /// Family name.
+    pub family: String,
+    /// Importance value.
+    pub value: Option<f64>,
+}
+
+/// Skill with all attributes and without some (e.g. the angle-dependent ones).
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct Ablation {
+    /// What was removed and why.
+    pub description: String,
+    /// Attributes removed.
+    pub removed: Vec<String>,
+    /// Skill with all attributes.
+    pub with_all: Skill,
+    /// Skill without the removed attributes.
+    pub without: Skill,
+}
+
+/// Leave-wells-out skill figures.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct Skill {
+    /// R2 of the P50.
+    pub r2: Option<f64>,
+    /// RMSE, in the target's unit.
+    pub rmse: Option<f64>,
+    /// Band coverage.
+    pub coverage: Option<f64>,
+    /// Mean band width, in the target's unit.
+    pub mean_width: Option<f64>,
+}
+
+/// Where a picture comes from: a PNG file inside the results folder, or PNG bytes in base64.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum PictureRef {
+    /// Path relative to the results folder (e.g. "maps/2026/dSw_p50.png").
+    File(String),
+    /// PNG bytes, base64 (standard alphabet).
+    PngBase64(String),
+}
+
+impl PictureRef {
+    /// Wraps PNG bytes.
+    pub fn from_png(bytes: &[u8]) -> Self {
+        use base64::Engine;
+        PictureRef::PngBase64(base64::engine::general_purpose::STANDARD.encode(bytes))
+    }
+}
+
+/// One map picture.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct MapEntry {
+    /// Step name.
+    pub step: String,
+    /// Target name; `None` for step-wide maps such as applicability.
+    #[serde(default)]
+    pub target: Option<String>,
+    /// What the map shows (e.g. "P50", "band width P90 - P10", "P(dSw > 0.2)", "applicability").
+    pub kind: String,
+    /// The picture.
+    pub picture: PictureRef,
+    /// Optional caption.
+    #[serde(default)]
+    pub caption: String,
+}
+
+/// Ranked infill targets.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct InfillSection {
+    /// The remaining-oil criterion and ranking rule, in words.
+    pub criterion: String,
+    /// Unit of the risked volume (e.g. "m3").
+    pub volume_unit: String,
+    /// Map of the targets.
+    pub picture: Option<PictureRef>,
+    /// Ranked locations.
+    pub rows: Vec<InfillRow>,
+}
+
+/// One ranked infill location.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct InfillRow {
+    /// Rank, 1 first.
+    pub rank: usize,
+    /// x coordinate.
+    pub x: f64,
+    /// y coordinate.
+    pub y: f64,
+    /// Chance of the criterion (e.g. of not being swept).
+    pub chance: Option<f64>,
+    /// Chance times in-place volume within the drainage radius.
+    pub risked_volume: Option<f64>,
+    /// Nearest existing well.
+    pub nearest_well: String,
+    /// Distance to it.
+    pub distance: Option<f64>,
+    /// Inside the area of applicability.
+    pub inside: bool,
+}
+
+/// Scores of the maps against the truth at every node (synthetic projects).
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct TruthSection {
+    /// One row per target (and step, when scored per step).
+    pub scores: Vec<TruthScore>,
+    /// Maps of prediction minus truth.
+    pub error_maps: Vec<MapEntry>,
+}
+
+/// Scores of one target against the truth.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct TruthScore {
+    /// Target name.
+    pub target: String,
+    /// Step name, or `None` for all steps together.
+    pub step: Option<String>,
+    /// Unit of the target.
+    pub unit: String,
+    /// Nodes scored.
+    pub nodes: Option<usize>,
+    /// R2 of the P50.
+    pub r2: Option<f64>,
+    /// RMSE.
+    pub rmse: Option<f64>,
+    /// Mean of prediction minus truth.
+    pub bias: Option<f64>,
+    /// Fraction of nodes whose truth lies in the band.
+    pub coverage: Option<f64>,
+    /// Mean band width.
+    pub mean_width: Option<f64>,
+}
+
+impl ReportInput {
+    /// Reads `RESULTS/report-data.json` (or any path); errors name the file, line and column.
+    pub fn load(path: &Path) -> Result<ReportInput, ReportError> {
+        let text = std::fs::read_to_string(path).map_err(|source| ReportError::Io {
+            path: path.to_path_buf(),
+            source,
+        })?;
+        serde_json::from_str(&text).map_err(|e| ReportError::Json {
+            path: path.to_path_buf(),
+            line: e.line(),
+            column: e.column(),
+            message: e.to_string(),
+        })
+    }
+
+    /// Writes the input as pretty JSON to `results_dir/report-data.json` (temporary file, then
+    /// rename) and returns the path.
+    pub fn save(&self, results_dir: &Path) -> Result<PathBuf, ReportError> {
+        let text = serde_json::to_string_pretty(self).map_err(|e| ReportError::Json {
+            path: results_dir.join(DATA_FILE),
+            line: 0,
+            column: 0,
+            message: e.to_string(),
+        })?;
+        let path = results_dir.join(DATA_FILE);
+        super::html::write_atomic(&path, text.as_bytes())?;
+        Ok(path)
+    }
+}
+
+/// Serialises `Vec<f64>` with `NaN` (and infinities) as JSON `null`, and reads `null` back as `NaN`.
+pub mod nan_as_null {
+    use serde::{Deserialize, Deserializer, Serialize, Serializer};
+
+    /// Serialises the values, non-finite ones as `null`.
+    pub fn serialize<S: Serializer>(v: &[f64], s: S) -> Result<S::Ok, S::Error> {
+        let o: Vec<Option<f64>> = v
+            .iter()
+            .map(|x| if x.is_finite() { Some(*x) } else { None })
+            .collect();
+        o.serialize(s)
+    }
+
+    /// Reads numbers and `null`s, `null` becoming `NaN`.
+    pub fn deserialize<'de, D: Deserializer<'de>>(d: D) -> Result<Vec<f64>, D::Error> {
+        let o: Vec<Option<f64>> = Vec::deserialize(d)?;
+        Ok(o.into_iter().map(|x| x.unwrap_or(f64::NAN)).collect())
+    }
+}

@@ -1,0 +1,465 @@
+//! A table of bad inputs: each gives a problem naming the file and the line or manifest key, never a
+//! panic, and leaves no file behind. Checked through the library and, for some, the built binary.
+
+use super::fixtures::*;
+use std::path::Path;
+use std::process::Command;
+use tidemark::check::{Severity, check_project};
+use tidemark::io::{geotiff, xyz};
+
+/// Replaces `from` by `to` in `dir/rel` (which must contain it).
+fn edit(dir: &Path, rel: &str, from: &str, to: &str) {
+    let path = dir.join(rel);
+    let text = std::fs::read_to_string(&path).unwrap();
+    assert!(text.contains(from), "{rel} lacks {from:?}");
+    std::fs::write(&path, text.replacen(from, to, 1)).unwrap();
+}
+
+/// Fields of 1-based line `n` of a text file (split on whitespace and commas).
+fn line_fields(dir: &Path, rel: &str, n: usize) -> Vec<String> {
+    let text = std::fs::read_to_string(dir.join(rel)).unwrap();
+    text.lines()
+        .nth(n - 1)
+        .unwrap()
+        .split([',', ' '])
+        .map(str::to_string)
+        .collect()
+}
+
+/// Replaces 1-based line `n` of a text file.
+fn set_line(dir: &Path, rel: &str, n: usize, line: &str) {
+    let path = dir.join(rel);
+    let text = std::fs::read_to_string(&path).unwrap();
+    let mut lines: Vec<String> = text.lines().map(str::to_string).collect();
+    lines[n - 1] = line.to_string();
+    std::fs::write(&path, lines.join("\n") + "\n").unwrap();
+}
+
+const TS: &str = "maps/m1/time_shift.xyz";
+const NA: &str = "maps/m2/near_amp.tif";
+const W: &str = "wells.csv";
+const P: &str = "project.toml";
+
+struct Case {
+    name: &'static str,
+    mutate: fn(&Path),
+    /// Every one of these must appear in one problem message.
+    expect: &'static [&'static str],
+    /// A warning that leaves the project runnable (rows left out), not an error.
+    warning_only: bool,
+}
+
+const fn err(name: &'static str, mutate: fn(&Path), expect: &'static [&'static str]) -> Case {
+    Case {
+        name,
+        mutate,
+        expect,
+        warning_only: false,
+    }
+}
+
+fn cases() -> Vec<Case> {
+    vec![
+        err(
+            "malformed XYZ value",
+            |d| {
+                let f = line_fields(d, TS, 5);
+                set_line(d, TS, 5, &format!("{} {} abc", f[0], f[1]));
+            },
+            &[
+                "time_shift.xyz, line 5",
+                "value 'abc' is not a finite number",
+            ],
+        ),
+        err(
+            "XYZ line with two fields",
+            |d| {
+                let f = line_fields(d, TS, 7);
+                set_line(d, TS, 7, &format!("{} {}", f[0], f[1]));
+            },
+            &[
+                "time_shift.xyz, line 7",
+                "expected 3 fields (x y value), found 2",
+            ],
+        ),
+        err(
+            "off-grid XYZ point",
+            |d| {
+                let f = line_fields(d, TS, 4);
+                let x: f64 = f[0].parse().unwrap();
+                set_line(d, TS, 4, &format!("{} {} {}", x + 3.0, f[1], f[2]));
+            },
+            &[
+                "time_shift.xyz",
+                "1 point(s) lie off the grid nodes",
+                "line 4 (",
+            ],
+        ),
+        err(
+            "duplicate XYZ node",
+            |d| {
+                let f = line_fields(d, TS, 5);
+                set_line(d, TS, 6, &format!("{} {} 1.0", f[0], f[1]));
+            },
+            &["time_shift.xyz, line 6", "already given on line 5"],
+        ),
+        err(
+            "entirely null map",
+            |d| {
+                let g = tiny_grid();
+                xyz::write(&d.join(TS), &g, &vec![f64::NAN; g.len()]).unwrap();
+            },
+            &["time_shift.xyz", "every node is null", "step 'm1'"],
+        ),
+        err(
+            "missing map file",
+            |d| std::fs::remove_file(d.join(TS)).unwrap(),
+            &["time_shift.xyz"],
+        ),
+        err(
+            "GeoTIFF of another size",
+            |d| {
+                let mut g = tiny_grid();
+                g.nx = 7;
+                geotiff::write(&d.join(NA), &g, &vec![0.0; g.len()], None).unwrap();
+            },
+            &["near_amp.tif", "size 7 x 5 nodes, expected 6 x 5"],
+        ),
+        err(
+            "GeoTIFF with a shifted origin",
+            |d| {
+                let mut g = tiny_grid();
+                g.origin_x += 5.0;
+                geotiff::write(&d.join(NA), &g, &vec![0.0; g.len()], None).unwrap();
+            },
+            &[
+                "near_amp.tif",
+                "origin (node 0,0) at (1005, 2000), expected (1000, 2000)",
+            ],
+        ),
+        err(
+            "GeoTIFF with another EPSG code",
+            |d| {
+                let mut g = tiny_grid();
+                g.epsg = Some(32632);
+                geotiff::write(&d.join(NA), &g, &vec![0.0; g.len()], None).unwrap();
+            },
+            &["near_amp.tif", "EPSG:32632, expected EPSG:32631"],
+        ),
+        err(
+            "unreadable GeoTIFF",
+            |d| std::fs::write(d.join(NA), b"II*\0garbage").unwrap(),
+            &["near_amp.tif", "not a readable TIFF"],
+        ),
+        err(
+            "attribute missing in one step",
+            |d| {
+                edit(d, P, "time_shift = \"maps/m2/time_shift.xyz\"\n", "");
+            },
+            &["project.toml", "step 'm2' has no attribute 'time_shift'"],
+        ),
+        err(
+            "extra attribute in one step",
+            |d| {
+                edit(
+                    d,
+                    P,
+                    "time_shift = \"maps/m2/time_shift.xyz\"\n",
+                    "time_shift = \"maps/m2/time_shift.xyz\"\nfar_amp = \"maps/m2/far.xyz\"\n",
+                );
+            },
+            &["project.toml", "step 'm2' has attribute 'far_amp'"],
+        ),
+        err(
+            "unknown manifest key",
+            |d| edit(d, P, "epsg = 32631", "epsg = 32631\ncolour = \"red\""),
+            &["project.toml, line 12", "unknown field `colour`"],
+        ),
+        err(
+            "TOML syntax error",
+            |d| edit(d, P, "nx = 6", "nx = = 6"),
+            &["project.toml, line 9"],
+        ),
+        err(
+            "wrong value type",
+            |d| edit(d, P, "nx = 6", "nx = \"six\""),
+            &["project.toml, line 9", "invalid type"],
+        ),
+        err(
+            "missing required key",
+            |d| edit(d, P, "dy = 10.0\n", ""),
+            &["project.toml", "missing field `dy`"],
+        ),
+        err(
+            "negative spacing",
+            |d| edit(d, P, "dx = 10.0", "dx = -10.0"),
+            &[
+                "project.toml",
+                "grid.dx must be a finite number > 0, got -10",
+            ],
+        ),
+        err(
+            "too few nodes",
+            |d| edit(d, P, "nx = 6", "nx = 1"),
+            &["project.toml", "grid.nx must be >= 2, got 1"],
+        ),
+        err(
+            "target bounds reversed",
+            |d| edit(d, P, "min = -1.0\nmax = 1.0", "min = 1.0\nmax = -1.0"),
+            &["project.toml", "target 'dSw': min (1) must be < max (-1)"],
+        ),
+        err(
+            "duplicate step name",
+            |d| edit(d, P, "name = \"m2\"", "name = \"m1\""),
+            &["project.toml", "step.name = 'm1' is used twice"],
+        ),
+        err(
+            "bad step name",
+            |d| edit(d, P, "name = \"m1\"", "name = \"m 1\""),
+            &["project.toml", "step[0].name = 'm 1'"],
+        ),
+        err(
+            "threshold on an unknown target",
+            |d| {
+                edit(
+                    d,
+                    P,
+                    "target = \"dSw\"\ndirection = \"above\"",
+                    "target = \"dSq\"\ndirection = \"above\"",
+                );
+            },
+            &[
+                "project.toml",
+                "threshold 'swept'.target = 'dSq' names no target",
+            ],
+        ),
+        err(
+            "threshold outside the target bounds",
+            |d| edit(d, P, "value = -2.0", "value = -80.0"),
+            &[
+                "project.toml",
+                "threshold 'depleted': value -80 lies outside",
+            ],
+        ),
+        err(
+            "mean extraction without a radius",
+            |d| {
+                let mut t = std::fs::read_to_string(d.join(P)).unwrap();
+                t.push_str("\n[extract]\nmethod = \"mean\"\n");
+                std::fs::write(d.join(P), t).unwrap();
+            },
+            &["project.toml", "extract.radius: required"],
+        ),
+        err(
+            "wells CSV missing a column",
+            |d| edit(d, W, "dSw,dP", "dSx,dP"),
+            &["wells.csv, line 1, column 'dSw'", "missing column"],
+        ),
+        err(
+            "wells CSV non-numeric value",
+            |d| {
+                let mut f = line_fields(d, W, 3);
+                f[1] = "12a".into();
+                set_line(d, W, 3, &f.join(","));
+            },
+            &[
+                "wells.csv, line 3, column 'x'",
+                "'12a' is not a finite number",
+            ],
+        ),
+        err(
+            "wells CSV unknown step",
+            |d| {
+                let mut f = line_fields(d, W, 4);
+                f[3] = "m9".into();
+                set_line(d, W, 4, &f.join(","));
+            },
+            &[
+                "wells.csv, line 4, column 'step'",
+                "step 'm9' is not in the manifest",
+            ],
+        ),
+        err(
+            "wells CSV value outside physical bounds",
+            |d| {
+                let mut f = line_fields(d, W, 2);
+                f[4] = "1.5".into();
+                set_line(d, W, 2, &f.join(","));
+            },
+            &[
+                "wells.csv, line 2, column 'dSw'",
+                "outside the physical bounds [-1, 1]",
+            ],
+        ),
+        err(
+            "wells CSV repeated well and step",
+            |d| {
+                let f = line_fields(d, W, 2);
+                set_line(d, W, 6, &f.join(","));
+            },
+            &[
+                "wells.csv, line 6",
+                "well 'W0' step 'm1' already given on line 2",
+            ],
+        ),
+        err(
+            "wells CSV ragged row",
+            |d| {
+                let f = line_fields(d, W, 3);
+                set_line(d, W, 3, &f[..5].join(","));
+            },
+            &[
+                "wells.csv, line 3",
+                "expected 7 fields like the header, found 5",
+            ],
+        ),
+        err(
+            "empty wells file",
+            |d| std::fs::write(d.join(W), "").unwrap(),
+            &["wells.csv", "empty file"],
+        ),
+        err(
+            "wells file with only a header",
+            |d| std::fs::write(d.join(W), "well,x,y,step,dSw,dP,weight\n").unwrap(),
+            &["wells.csv", "no well rows"],
+        ),
+        err(
+            "too few wells for the folds",
+            |d| edit(d, P, "folds = 4", "folds = 9"),
+            &[
+                "target 'dSw' is measured at 8 usable well(s)",
+                "needs at least 9",
+            ],
+        ),
+        Case {
+            name: "well outside the grid",
+            mutate: |d| {
+                let mut f = line_fields(d, W, 4);
+                f[1] = "500".into();
+                set_line(d, W, 4, &f.join(","));
+            },
+            expect: &[
+                "well 'W1' step 'm1'",
+                "outside the grid",
+                "wells.csv line 4",
+            ],
+            warning_only: true,
+        },
+    ]
+}
+
+#[test]
+fn bad_inputs_table() {
+    let cases = cases();
+    assert!(cases.len() >= 15);
+    for case in &cases {
+        let dir = tempfile::tempdir().unwrap();
+        let manifest = tiny_project(dir.path());
+        (case.mutate)(dir.path());
+        let before = list_files(dir.path());
+        let report = std::panic::catch_unwind(|| check_project(&manifest))
+            .unwrap_or_else(|_| panic!("case '{}': check panicked", case.name));
+        assert_eq!(
+            report.runnable, case.warning_only,
+            "case '{}': runnable = {}\n{report}",
+            case.name, report.runnable
+        );
+        let severity = if case.warning_only {
+            Severity::Warning
+        } else {
+            Severity::Error
+        };
+        let hit = report
+            .problems
+            .iter()
+            .any(|p| p.severity == severity && case.expect.iter().all(|e| p.message.contains(e)));
+        assert!(
+            hit,
+            "case '{}': no {severity:?} containing {:?}\n{report}",
+            case.name, case.expect
+        );
+        assert_eq!(
+            list_files(dir.path()),
+            before,
+            "case '{}': files changed",
+            case.name
+        );
+    }
+}
+
+#[test]
+fn bad_inputs_through_the_binary() {
+    let wanted = [
+        "malformed XYZ value",
+        "unknown manifest key",
+        "negative spacing",
+        "unreadable GeoTIFF",
+        "wells CSV missing a column",
+        "wells CSV unknown step",
+    ];
+    for case in cases().iter().filter(|c| wanted.contains(&c.name)) {
+        let dir = tempfile::tempdir().unwrap();
+        let manifest = tiny_project(dir.path());
+        (case.mutate)(dir.path());
+        let before = list_files(dir.path());
+        for json in [false, true] {
+            let mut cmd = Command::new(env!("CARGO_BIN_EXE_tidemark"));
+            cmd.args(["check", manifest.to_str().unwrap()]);
+            if json {
+                cmd.arg("--json");
+            }
+            let out = cmd.output().unwrap();
+            let stdout = String::from_utf8_lossy(&out.stdout);
+            let stderr = String::from_utf8_lossy(&out.stderr);
+            assert_eq!(
+                out.status.code(),
+                Some(1),
+                "case '{}': {stdout}{stderr}",
+                case.name
+            );
+            assert!(
+                !stderr.contains("panicked"),
+                "case '{}': {stderr}",
+                case.name
+            );
+            if json {
+                let v: serde_json::Value = serde_json::from_str(&stdout).expect("JSON report");
+                assert_eq!(v["runnable"], false);
+                let msgs = v["problems"].to_string();
+                assert!(msgs.contains("\"severity\":\"error\""), "{msgs}");
+            } else {
+                for e in case.expect {
+                    assert!(
+                        stdout.contains(e),
+                        "case '{}': missing {e:?} in\n{stdout}",
+                        case.name
+                    );
+                }
+                assert!(stdout.contains("NOT RUNNABLE"), "{stdout}");
+            }
+        }
+        assert_eq!(
+            list_files(dir.path()),
+            before,
+            "case '{}': files changed",
+            case.name
+        );
+    }
+}
+
+#[test]
+fn missing_manifest_is_reported_not_panicked() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("nothing.toml");
+    let report = check_project(&path);
+    assert!(!report.runnable);
+    assert!(
+        report.problems[0].message.contains("nothing.toml"),
+        "{report}"
+    );
+    let out = Command::new(env!("CARGO_BIN_EXE_tidemark"))
+        .args(["check", path.to_str().unwrap()])
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(1));
+}
