@@ -1,1 +1,4 @@
 //! Integration tests: synth.
+
+mod dynamics;
+mod physics;
