@@ -33,6 +33,7 @@ const HIST_MIN_ROWS: usize = 384;
 #[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
 pub struct Node {
     /// Split threshold on the raw feature value (`f64::MAX`: every non-missing value goes left).
+    #[serde(with = "super::persist::exact")]
     pub threshold: f64,
     /// Feature (column) index tested by the split; 0 for leaves.
     pub feature: u32,
@@ -52,6 +53,7 @@ pub struct Tree {
     leaf_of_node: Vec<u32>,
     n_outputs: usize,
     /// Leaf values, `n_leaves x n_outputs`, row-major.
+    #[serde(with = "super::persist::exact_vec")]
     values: Vec<f64>,
 }
 
