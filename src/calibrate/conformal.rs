@@ -14,16 +14,26 @@
 //! Wasserman & Ramdas, JASA 2023); it reduces to the ordinary rule when every well has one row.
 //! The expected fraction of a new well's rows inside the band is at least `1-a`.
 //!
-//! **Scores.** [`BandMethod::CvResidual`]: residuals of the corrected predictor on held-out wells,
-//! the band centred on the predictor — the K-fold "CV" band that Barber, Candes, Ramdas &
-//! Tibshirani (2021, Ann. Stat. 49:486) set beside CV+; it uses one final model at prediction time
-//! instead of the K fold models CV+ needs at every grid node. [`BandMethod::Cqr`]: conformalised
-//! quantile regression (Romano, Patterson & Candes 2019, NeurIPS), scores
-//! `E_lo = q_lo(x) - y`, `E_hi = y - q_hi(x)` on the forest's conditional quantiles.
+//! **Scores.** Each row has a base band `[b_lo, b_hi]` around its prediction and a scale `s > 0`;
+//! the scores are `(b_lo - y)/s` and `(y - b_hi)/s`, and the band is
+//! `[b_lo - Q_lo s, b_hi + Q_hi s]`.
+//! - [`BandMethod::CvResidual`]: `b_lo = b_hi = mid`, `s = 1`: residuals of the corrected
+//!   predictor on held-out wells, the band centred on the predictor. This is the K-fold "CV"
+//!   band that Barber, Candes, Ramdas & Tibshirani (2021, Ann. Stat. 49:486) set beside CV+; it
+//!   needs one final model at prediction time instead of the K fold models CV+ needs at every
+//!   grid node.
+//! - [`BandMethod::Cqr`]: conformalised quantile regression (Romano, Patterson & Candes 2019,
+//!   NeurIPS): `b_lo`, `b_hi` are conditional quantiles, `s = 1`.
+//! - [`BandMethod::Normalized`]: `b_lo = b_hi = mid` with `s` a local spread (locally weighted
+//!   split conformal; Papadopoulos, Gammerman & Vovk 2008; Lei et al. 2018 sec. 5.2), so the
+//!   width follows the local uncertainty.
 //!
 //! **Ends.** Scores are calibrated separately in Mondrian bins of the predicted value (Vovk et al.
 //! 2005, ch. 4.5), starting from `max_bins` equal-weight bins and merging the smallest bin into its
-//! smaller neighbour until every bin holds enough wells.
+//! smaller neighbour until every bin holds enough wells. Every bin pays the finite-sample price
+//! of conformal validity (about `1/(n_bin + 1)` extra coverage per edge), so bins are worth it only
+//! when the scores differ between them; the calibration step chooses the number of bins by the
+//! out-of-fold interval score.
 //!
 //! **Too few wells.** When `ceil((n+1)(1-a/2)) > n` the data cannot back a finite edge at the
 //! requested level; the edge is then the target's physical bound and the band is flagged.
@@ -39,6 +49,8 @@ pub enum BandMethod {
     CvResidual,
     /// Conformalised quantile regression on the forest's quantiles; band `[q_lo - Q_lo, q_hi + Q_hi]`.
     Cqr,
+    /// Residuals scaled by a local spread `s`; band `[mid - Q_lo s, mid + Q_hi s]`.
+    Normalized,
 }
 
 /// Tolerance on cumulative weights (guards `0.9 * 10 = 9.000000000000002`).
@@ -220,8 +232,9 @@ pub struct BandCalibration {
     pub bin_info: Vec<BinInfo>,
 }
 
-/// One row's inputs to a band: the predicted value and the base edges the scores refer to
-/// (`mid` itself for [`BandMethod::CvResidual`], forest quantiles for [`BandMethod::Cqr`]).
+/// One row's inputs to a band: the predicted value, the base edges the scores refer to (`mid`
+/// itself for [`BandMethod::CvResidual`] and [`BandMethod::Normalized`], forest quantiles for
+/// [`BandMethod::Cqr`]) and the scale of the scores (1 except for `Normalized`).
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct BandBase {
     /// Corrected point prediction (decides the Mondrian bin).
@@ -230,6 +243,20 @@ pub struct BandBase {
     pub lo: f64,
     /// Base upper edge.
     pub hi: f64,
+    /// Scale of the scores, > 0.
+    pub scale: f64,
+}
+
+impl BandBase {
+    /// A base centred on `mid` with unit scale (residual scores).
+    pub fn centred(mid: f64) -> Self {
+        Self {
+            mid,
+            lo: mid,
+            hi: mid,
+            scale: 1.0,
+        }
+    }
 }
 
 impl BandCalibration {
@@ -257,8 +284,8 @@ impl BandCalibration {
         let mut wells: Vec<Vec<usize>> = vec![Vec::new(); nb];
         for i in 0..base.len().min(y.len()).min(group.len()) {
             let b = bins.bin(base[i].mid);
-            s_lo[b].push(base[i].lo - y[i]);
-            s_hi[b].push(y[i] - base[i].hi);
+            s_lo[b].push((base[i].lo - y[i]) / base[i].scale);
+            s_hi[b].push((y[i] - base[i].hi) / base[i].scale);
             wt[b].push(w[i]);
             wells[b].push(group[i]);
         }
@@ -301,8 +328,8 @@ impl BandCalibration {
     /// cannot back it is the physical bound.
     pub fn apply(&self, base: BandBase, bounds: (f64, f64)) -> (f64, f64, f64) {
         let info = &self.bin_info[self.bins.bin(base.mid).min(self.bin_info.len() - 1)];
-        let lo = info.q_lo.map_or(bounds.0, |q| base.lo - q);
-        let hi = info.q_hi.map_or(bounds.1, |q| base.hi + q);
+        let lo = info.q_lo.map_or(bounds.0, |q| base.lo - q * base.scale);
+        let hi = info.q_hi.map_or(bounds.1, |q| base.hi + q * base.scale);
         order_within_bounds(lo, base.mid, hi, bounds)
     }
 }

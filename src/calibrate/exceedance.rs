@@ -54,25 +54,39 @@ pub fn bounded_cdf(p: f64, t: f64, bounds: (f64, f64)) -> f64 {
 }
 
 /// Mondrian conformal predictive system (Vovk et al. 2019): sorted held-out residuals per bin of
-/// the predicted value, with cumulative well weights.
+/// the predicted value, with cumulative well weights. Residuals may be scaled by a local spread
+/// `s` (`a_i = (y_i - mid_i)/s_i`, and `Q(t)` uses `(t - mid)/s`), which keeps the system's
+/// validity for any fixed scale function.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct PredictiveSystem {
     /// Bins of the predicted value.
     pub bins: MondrianBins,
-    /// Residuals `y - mid` per bin, ascending.
+    /// Scaled residuals `(y - mid)/s` per bin, ascending.
     pub residuals: Vec<Vec<f64>>,
     /// Cumulative well weight per bin, aligned with `residuals` (last entry = bin total).
     pub cum_weight: Vec<Vec<f64>>,
 }
 
 impl PredictiveSystem {
-    /// Fit from held-out rows: predicted value `mid`, truth `y`, well id `group`, and the bins.
+    /// Fit from held-out rows: predicted value `mid`, truth `y`, well id `group`, and the bins;
+    /// residuals unscaled.
     pub fn fit(mid: &[f64], y: &[f64], group: &[usize], bins: MondrianBins) -> Self {
+        Self::fit_scaled(mid, &vec![1.0; mid.len()], y, group, bins)
+    }
+
+    /// As [`PredictiveSystem::fit`] with residuals divided by `scale` (> 0) per row.
+    pub fn fit_scaled(
+        mid: &[f64],
+        scale: &[f64],
+        y: &[f64],
+        group: &[usize],
+        bins: MondrianBins,
+    ) -> Self {
         let w = well_unit_weights(group);
         let nb = bins.len();
         let mut per: Vec<Vec<(f64, f64)>> = vec![Vec::new(); nb];
-        for i in 0..mid.len().min(y.len()) {
-            let r = y[i] - mid[i];
+        for i in 0..mid.len().min(y.len()).min(scale.len()) {
+            let r = (y[i] - mid[i]) / scale[i];
             if r.is_finite() {
                 per[bins.bin(mid[i])].push((r, w[i]));
             }
@@ -98,16 +112,21 @@ impl PredictiveSystem {
     }
 
     /// `Q(t)` at predicted value `mid` with tie-breaking `tau` in `[0, 1]`:
-    /// `[W{mid + a_i < t} + tau (W{mid + a_i = t} + 1)] / (W + 1)`.
+    /// `[W{mid + a_i < t} + tau (W{mid + a_i = t} + 1)] / (W + 1)` (unscaled residuals).
     pub fn cdf(&self, mid: f64, t: f64, tau: f64) -> f64 {
-        if !mid.is_finite() || !t.is_finite() {
+        self.cdf_scaled(mid, 1.0, t, tau)
+    }
+
+    /// `Q(t)` for scaled residuals: `[W{mid + s a_i < t} + tau (W{mid + s a_i = t} + 1)] / (W + 1)`.
+    pub fn cdf_scaled(&self, mid: f64, scale: f64, t: f64, tau: f64) -> f64 {
+        if !mid.is_finite() || !t.is_finite() || scale.is_nan() || scale <= 0.0 {
             return f64::NAN;
         }
         let b = self.bins.bin(mid).min(self.residuals.len() - 1);
         let r = &self.residuals[b];
         let cw = &self.cum_weight[b];
         let total = cw.last().copied().unwrap_or(0.0);
-        let d = t - mid;
+        let d = (t - mid) / scale;
         let below = r.partition_point(|&a| a < d);
         let at_or_below = r.partition_point(|&a| a <= d);
         let w_below = if below == 0 { 0.0 } else { cw[below - 1] };
@@ -119,9 +138,10 @@ impl PredictiveSystem {
         (w_below + tau * (w_at + 1.0)) / (total + 1.0)
     }
 
-    /// `P(Y <= t)` for a map: `Q(t)` with `tau = 1/2`, forced to the physical bounds.
-    pub fn prob_below(&self, mid: f64, t: f64, bounds: (f64, f64)) -> f64 {
-        bounded_cdf(self.cdf(mid, t, 0.5), t, bounds)
+    /// `P(Y <= t)` for a map: `Q(t)` with `tau = 1/2` and residual scale `scale` (1 when
+    /// unscaled), forced to the physical bounds.
+    pub fn prob_below(&self, mid: f64, scale: f64, t: f64, bounds: (f64, f64)) -> f64 {
+        bounded_cdf(self.cdf_scaled(mid, scale, t, 0.5), t, bounds)
     }
 }
 
@@ -175,6 +195,7 @@ impl PitRecalibration {
                 increasing: true,
                 y_min: Some(0.0),
                 y_max: Some(1.0),
+                centred: false,
             },
         )?;
         Ok(Self { map })
@@ -203,8 +224,17 @@ mod tests {
         assert!((cps.cdf(0.0, 2.5, 0.5) - 2.5 / 4.0).abs() < 1e-12);
         assert!((cps.cdf(0.0, 2.0, 0.25) - 1.5 / 4.0).abs() < 1e-12);
         assert!((cps.cdf(10.0, 12.0, 0.0) - 0.25).abs() < 1e-12);
-        assert_eq!(cps.prob_below(0.0, -1.0, (-0.5, 5.0)), 0.0);
-        assert_eq!(cps.prob_below(0.0, 5.0, (-0.5, 5.0)), 1.0);
+        assert_eq!(cps.prob_below(0.0, 1.0, -1.0, (-0.5, 5.0)), 0.0);
+        assert_eq!(cps.prob_below(0.0, 1.0, 5.0, (-0.5, 5.0)), 1.0);
+        // Scaled: residuals 1, 2, 3 with scale 2 are 0.5, 1, 1.5; at scale 4, t = 5 is 1.25.
+        let s = PredictiveSystem::fit_scaled(
+            &[0.0; 3],
+            &[2.0; 3],
+            &[1.0, 2.0, 3.0],
+            &[0, 1, 2],
+            MondrianBins::single(),
+        );
+        assert!((s.cdf_scaled(0.0, 4.0, 5.0, 0.5) - 2.5 / 4.0).abs() < 1e-12);
     }
 
     #[test]

@@ -107,6 +107,9 @@ pub enum CalibrateError {
     /// Isotonic regression input was unusable.
     #[error("isotonic regression: {0}")]
     Isotonic(String),
+    /// Metrics could not be computed.
+    #[error(transparent)]
+    Metrics(#[from] crate::metrics::MetricsError),
 }
 
 /// Number of distinct well ids in `group`.

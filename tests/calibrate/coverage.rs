@@ -15,16 +15,13 @@ const REPEATS: usize = 100;
 const TEST_WELLS: usize = 200;
 const SIZES: [usize; 3] = [20, 50, 100];
 
-/// Base edges of one row for a method: the cheap model's value, or for CQR a deliberately
-/// too-narrow Gaussian band around it (the scores must widen it).
+/// Base edges of one row for a method: the cheap model's value; for CQR a deliberately
+/// too-narrow Gaussian band around it (the scores must widen it); for normalised scores a scale
+/// that grows with `x` as the noise does.
 fn base(method: BandMethod, x: f64) -> BandBase {
     let mid = cheap_model(x);
     match method {
-        BandMethod::CvResidual => BandBase {
-            mid,
-            lo: mid,
-            hi: mid,
-        },
+        BandMethod::CvResidual => BandBase::centred(mid),
         BandMethod::Cqr => {
             // 10 % and 90 % of N(mid, (0.5 sd)^2): z = 1.2815515655 (statrs Normal inverse CDF).
             let h = 1.2815515655 * 0.5 * noise_sd(x);
@@ -32,8 +29,13 @@ fn base(method: BandMethod, x: f64) -> BandBase {
                 mid,
                 lo: mid - h,
                 hi: mid + h,
+                scale: 1.0,
             }
         }
+        BandMethod::Normalized => BandBase {
+            scale: noise_sd(x),
+            ..BandBase::centred(mid)
+        },
     }
 }
 
@@ -90,7 +92,11 @@ fn coverage_validity_mapie_pattern() {
     // in [1 - a, 1 - a + 2/(n+1)]: the single-score figure 1 - a + 1/(n+1) does not apply to a
     // band whose two edges are calibrated separately.
     let alpha = 1.0 - LEVEL;
-    let methods = [BandMethod::CvResidual, BandMethod::Cqr];
+    let methods = [
+        BandMethod::CvResidual,
+        BandMethod::Cqr,
+        BandMethod::Normalized,
+    ];
     // Three quantities, two one-sided tests each, per (method, size); family-wise level 0.05.
     let bonferroni = 0.05 / (3 * 2 * methods.len() * SIZES.len()) as f64;
     for method in methods {

@@ -55,6 +55,7 @@ fn bounds_clip_the_fit() {
         increasing: true,
         y_min: Some(2.0),
         y_max: Some(4.0),
+        ..IsotonicSettings::default()
     };
     let m = IsotonicMap::fit(&x, &x, None, &s).unwrap();
     close(&m.predict_many(&x), &[2.0, 2.0, 2.0, 3.0, 4.0, 4.0], 1e-12);

@@ -7,14 +7,7 @@ fn calibrate(n_wells: usize, level: f64) -> BandCalibration {
     let group: Vec<usize> = (0..n_wells).flat_map(|w| [w, w]).collect();
     let y: Vec<f64> = (0..group.len()).map(|i| (i as f64 * 0.37).sin()).collect();
     let base: Vec<BandBase> = (0..y.len())
-        .map(|i| {
-            let m = 0.01 * i as f64;
-            BandBase {
-                mid: m,
-                lo: m,
-                hi: m,
-            }
-        })
+        .map(|i| BandBase::centred(0.01 * i as f64))
         .collect();
     BandCalibration::fit(BandMethod::CvResidual, &base, &y, &group, level, 3, 10)
 }
@@ -26,11 +19,7 @@ fn eight_wells_cannot_back_an_80_percent_band() {
     assert_eq!(min_wells_for_band(0.8), 9);
     let few = calibrate(8, 0.8);
     assert!(few.too_few_wells());
-    let b = BandBase {
-        mid: 0.1,
-        lo: 0.1,
-        hi: 0.1,
-    };
+    let b = BandBase::centred(0.1);
     assert_eq!(few.apply(b, (-1.0, 1.0)), (-1.0, 0.1, 1.0));
 
     let enough = calibrate(9, 0.8);
