@@ -59,12 +59,12 @@ pub struct Args {
 fn read_settings(path: &Path) -> anyhow::Result<SynthSettings> {
     let text =
         std::fs::read_to_string(path).with_context(|| format!("reading {}", path.display()))?;
-    if let Ok(record) = serde_json::from_str::<SynthRecord>(&text) {
+    if let Ok(record) = SynthRecord::from_json(&text) {
         return Ok(record.settings);
     }
-    serde_json::from_str::<SynthSettings>(&text).with_context(|| {
-        format!(
-            "{}: neither a synth.json nor a settings object",
+    SynthSettings::from_json(&text).map_err(|e| {
+        anyhow::anyhow!(
+            "{}: neither a synth.json nor a settings object: {e}",
             path.display()
         )
     })

@@ -14,6 +14,7 @@
 pub mod dynamics;
 pub mod fluids;
 pub mod forward;
+pub mod json;
 pub mod noise;
 pub mod project;
 pub mod reservoir;
@@ -534,6 +535,13 @@ impl SynthSettings {
         nonneg("well_noise_dsw", self.well_noise_dsw)?;
         nonneg("well_noise_dsg", self.well_noise_dsg)?;
         Ok(())
+    }
+
+    /// Reads settings from JSON text exactly (every float as written); unknown keys are refused and
+    /// missing keys take their defaults.
+    pub fn from_json(text: &str) -> Result<SynthSettings, String> {
+        let value = json::parse(text)?;
+        serde_json::from_value(value).map_err(|e| e.to_string())
     }
 
     /// The map grid these settings describe.

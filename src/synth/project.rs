@@ -71,10 +71,16 @@ impl SynthRecord {
             path: path.to_path_buf(),
             message: e.to_string(),
         })?;
-        serde_json::from_str(&text).map_err(|e| SynthError::Output {
+        Self::from_json(&text).map_err(|message| SynthError::Output {
             path: path.to_path_buf(),
-            message: format!("not a synth.json of this version: {e}"),
+            message,
         })
+    }
+
+    /// Parses the text of a `synth.json`, every float exactly as written.
+    pub fn from_json(text: &str) -> Result<SynthRecord, String> {
+        let value = super::json::parse(text)?;
+        serde_json::from_value(value).map_err(|e| format!("not a synth.json of this version: {e}"))
     }
 }
 
