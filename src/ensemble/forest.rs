@@ -173,13 +173,13 @@ impl ForestSettings {
 
         let mapper = BinMapper::fit(x, self.max_bins);
         let codes = mapper.transform(x);
+        let draws = ((self.sample_fraction * n as f64).round() as usize).clamp(1, n);
         let data = Binned::new(&codes, n, &mapper);
         let params = GrowParams {
             max_depth: self.max_depth.unwrap_or(usize::MAX),
             min_samples_leaf: self.min_samples_leaf,
             n_try: ((self.max_features * p as f64).round() as usize).clamp(1, p),
         };
-        let draws = ((self.sample_fraction * n as f64).round() as usize).clamp(1, n);
 
         let fits: Vec<TreeFit> = (0..self.n_trees)
             .into_par_iter()
@@ -309,10 +309,10 @@ impl ForestSettings {
         }
         let mut tree = grown.tree;
         tree.set_values(k, values);
-        let oob = (0..n)
-            .filter(|&r| !in_tree[r])
-            .map(|r| (r as u32, tree.apply(&x_train[r * p..(r + 1) * p]) as u32))
-            .collect();
+        let oob_rows: Vec<u32> = (0..n as u32).filter(|&r| !in_tree[r as usize]).collect();
+        let mut leaves = vec![0u32; oob_rows.len()];
+        tree.apply_selected(x_train, p, &oob_rows, &mut leaves);
+        let oob = oob_rows.into_iter().zip(leaves).collect();
         TreeFit {
             tree,
             members: LeafMembers {
