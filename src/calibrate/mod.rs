@@ -22,6 +22,13 @@ pub mod conformal;
 pub mod exceedance;
 pub mod folds;
 pub mod isotonic;
+pub mod target;
+
+pub use target::{
+    BandCandidate, BandDiagnostics, CalibratedTarget, CalibrationSettings,
+    EndCorrectionDiagnostics, ExceedanceDiagnostics, LearnerDiagnostics, LearnerScore, OofRow,
+    StepMetrics, TargetData, TargetDiagnostics, TargetPrediction, Threshold, calibrate_target,
+};
 
 use serde::{Deserialize, Serialize};
 
@@ -107,6 +114,9 @@ pub enum CalibrateError {
     /// Isotonic regression input was unusable.
     #[error("isotonic regression: {0}")]
     Isotonic(String),
+    /// A forest or booster could not be fitted (bad settings or data).
+    #[error("model: {0}")]
+    Ensemble(#[from] crate::ensemble::EnsembleError),
     /// Metrics could not be computed.
     #[error(transparent)]
     Metrics(#[from] crate::metrics::MetricsError),

@@ -8,4 +8,5 @@ mod generated;
 mod isotonic;
 mod metrics;
 mod pit;
+mod target;
 mod too_few;
