@@ -413,7 +413,11 @@ impl BoostSettings {
         };
         let mut trees = Vec::new();
         let mut curve = Vec::new();
-        let mut best = (valid.map_or(f64::INFINITY, |_| valid_loss(&fv)), 0usize);
+        let mut best = (f64::INFINITY, 0usize);
+        if valid.is_some() {
+            best.0 = valid_loss(&fv);
+            curve.push(best.0);
+        }
         let mut grad = vec![0.0; nt];
         let mut rw = vec![0.0; nt];
         let mut idx: Vec<u32> = (0..nt as u32).collect();
@@ -425,8 +429,8 @@ impl BoostSettings {
             if n_sub == nt {
                 rw.copy_from_slice(&wt);
             } else {
-                for i in 0..nt {
-                    idx[i] = i as u32;
+                for (i, v) in idx.iter_mut().enumerate() {
+                    *v = i as u32;
                 }
                 for i in 0..n_sub {
                     let j = rng.random_range(i..nt);
@@ -481,11 +485,7 @@ impl BoostSettings {
                 }
             }
         }
-        let best_rounds = if valid.is_some() {
-            best.1.max(1)
-        } else {
-            trees.len()
-        };
+        let best_rounds = if valid.is_some() { best.1 } else { trees.len() };
         trees.truncate(best_rounds);
         Run {
             init,
@@ -501,10 +501,12 @@ impl BoostSettings {
 pub struct Booster {
     settings: BoostSettings,
     n_features: usize,
+    #[serde(with = "super::persist::exact")]
     init: f64,
     /// Trees with learning-rate-scaled leaf values.
     trees: Vec<Tree>,
     early_stopped: bool,
+    #[serde(with = "super::persist::exact_vec")]
     validation_curve: Vec<f64>,
 }
 
@@ -563,12 +565,14 @@ impl Booster {
         self.trees.len()
     }
 
-    /// Whether early stopping ended boosting before `n_rounds`.
+    /// Whether early stopping kept fewer than `n_rounds` trees.
     pub fn early_stopped(&self) -> bool {
         self.early_stopped
     }
 
-    /// Held-out loss after each round of the early-stopping run (empty without one).
+    /// Held-out loss of the early-stopping run: entry 0 for the initial constant, entry `m`
+    /// after `m` trees (empty when early stopping did not run). The final model keeps the
+    /// number of trees with the lowest loss (possibly 0: the constant alone).
     pub fn validation_curve(&self) -> &[f64] {
         &self.validation_curve
     }
@@ -614,6 +618,7 @@ impl Booster {
 /// Boosters for several quantile levels, made non-crossing at prediction.
 #[derive(Clone, Debug, Serialize, Deserialize)]
 pub struct QuantileBoosters {
+    #[serde(with = "super::persist::exact_vec")]
     levels: Vec<f64>,
     boosters: Vec<Booster>,
 }

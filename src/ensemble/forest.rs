@@ -28,7 +28,7 @@ use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
 use super::binning::BinMapper;
-use super::persist::{self, FOREST_FORMAT, FOREST_VERSION, nan_as_null};
+use super::persist::{self, FOREST_FORMAT, FOREST_VERSION, exact_vec};
 use super::quantile::QrfKernel;
 use super::tree::{Binned, GrowParams, Tree, grow};
 use super::{
@@ -173,13 +173,13 @@ impl ForestSettings {
 
         let mapper = BinMapper::fit(x, self.max_bins);
         let codes = mapper.transform(x);
+        let draws = ((self.sample_fraction * n as f64).round() as usize).clamp(1, n);
         let data = Binned::new(&codes, n, &mapper);
         let params = GrowParams {
             max_depth: self.max_depth.unwrap_or(usize::MAX),
             min_samples_leaf: self.min_samples_leaf,
             n_try: ((self.max_features * p as f64).round() as usize).clamp(1, p),
         };
-        let draws = ((self.sample_fraction * n as f64).round() as usize).clamp(1, n);
 
         let fits: Vec<TreeFit> = (0..self.n_trees)
             .into_par_iter()
@@ -309,10 +309,10 @@ impl ForestSettings {
         }
         let mut tree = grown.tree;
         tree.set_values(k, values);
-        let oob = (0..n)
-            .filter(|&r| !in_tree[r])
-            .map(|r| (r as u32, tree.apply(&x_train[r * p..(r + 1) * p]) as u32))
-            .collect();
+        let oob_rows: Vec<u32> = (0..n as u32).filter(|&r| !in_tree[r as usize]).collect();
+        let mut leaves = vec![0u32; oob_rows.len()];
+        tree.apply_selected(x_train, p, &oob_rows, &mut leaves);
+        let oob = oob_rows.into_iter().zip(leaves).collect();
         TreeFit {
             tree,
             members: LeafMembers {
@@ -366,16 +366,21 @@ pub struct Forest {
     trees: Vec<Tree>,
     members: Vec<LeafMembers>,
     /// Training features, row-major (kept for OOB distributions).
-    #[serde(with = "nan_as_null")]
+    #[serde(with = "exact_vec")]
     x_train: Vec<f64>,
     /// Training targets in original units, row-major `n_train x n_outputs`.
+    #[serde(with = "exact_vec")]
     y_train: Vec<f64>,
+    #[serde(with = "exact_vec")]
     train_weights: Vec<f64>,
+    #[serde(with = "exact_vec")]
     y_mean: Vec<f64>,
+    #[serde(with = "exact_vec")]
     y_scale: Vec<f64>,
     /// OOB mean predictions, row-major, NaN where a row was in every bag.
-    #[serde(with = "nan_as_null")]
+    #[serde(with = "exact_vec")]
     oob: Vec<f64>,
+    #[serde(with = "exact_vec")]
     impurity: Vec<f64>,
 }
 
@@ -694,6 +699,33 @@ impl Forest {
             )
             .collect();
         parts.into_iter().flatten().collect()
+    }
+
+    /// Quantile-forest weights of the training rows for one query row (Meinshausen 2006):
+    /// `w_i(x) = (1/k) sum_t c_it / C_t(x)`, in training-row order, summing to 1. The
+    /// effective number of training rows behind a prediction is `1 / sum_i w_i^2`.
+    ///
+    /// # Panics
+    /// If `row` is shorter than [`Forest::n_features`].
+    pub fn quantile_weights(&self, row: &[f64]) -> Vec<f64> {
+        assert!(row.len() >= self.n_features, "row has too few features");
+        let mut w = vec![0.0; self.n_train];
+        let n_t = self.trees.len() as f64;
+        for (tree, mem) in self.trees.iter().zip(&self.members) {
+            let (rows, counts) = mem.leaf(tree.apply(row));
+            let c: Vec<f64> = rows
+                .iter()
+                .zip(counts)
+                .map(|(&r, &c)| self.train_weights[r as usize] * c as f64)
+                .collect();
+            let tot: f64 = c.iter().sum();
+            if tot > 0.0 {
+                for (&r, ci) in rows.iter().zip(&c) {
+                    w[r as usize] += ci / (tot * n_t);
+                }
+            }
+        }
+        w
     }
 
     /// Out-of-bag mean predictions, rows x outputs (training rows in fitting order); NaN where

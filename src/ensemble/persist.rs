@@ -3,11 +3,14 @@
 //! A saved model is `{"format": "<name>", "version": <n>, "model": {...}}`. Loading checks the
 //! format name and version before reading the model, so a file written by a different layout
 //! fails with a clear [`EnsembleError::FormatVersion`] instead of a confusing field error.
-//! Floats are written with shortest round-trip formatting (serde_json), so a reloaded model
-//! predicts bit-for-bit the same numbers.
+//! Model floats (thresholds, leaf values, training targets) are written as decimal strings in
+//! their shortest round-trip form and read back with Rust's correctly rounded parser: serde_json's
+//! default number parser can be one unit in the last place off, which would change
+//! predictions. A reloaded model therefore predicts bit-for-bit the same numbers; NaN (e.g. an
+//! OOB prediction for a row in every bag) is written as "NaN".
 
-use serde::Serialize;
 use serde::de::DeserializeOwned;
+use serde::{Deserialize, Serialize, Serializer};
 
 use super::EnsembleError;
 
@@ -75,20 +78,63 @@ pub(crate) fn from_json<T: DeserializeOwned>(
     Ok(serde_json::from_value(model)?)
 }
 
-/// Serde helper for `Vec<f64>` that may hold NaN: NaN is written as `null` (JSON has no NaN).
-pub(crate) mod nan_as_null {
+/// A float as written in a model file: a decimal string (or, when hand-written, a number).
+#[derive(Deserialize)]
+#[serde(untagged)]
+enum NumOrStr {
+    Num(f64),
+    Str(String),
+}
+
+impl NumOrStr {
+    fn value<E: serde::de::Error>(self) -> Result<f64, E> {
+        match self {
+            NumOrStr::Num(v) => Ok(v),
+            NumOrStr::Str(s) => s
+                .parse::<f64>()
+                .map_err(|_| E::custom(format!("not a number: {s:?}"))),
+        }
+    }
+}
+
+/// A float that serialises exactly.
+struct Exact(f64);
+
+impl Serialize for Exact {
+    fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        // Debug gives the shortest string that parses back to the same value, with an
+        // exponent for very large or small magnitudes; NaN and inf are spelled out.
+        s.collect_str(&format_args!("{:?}", self.0))
+    }
+}
+
+/// Serde helper for one `f64` written exactly (see the module docs).
+pub(crate) mod exact {
+    use super::{Exact, NumOrStr};
     use serde::{Deserialize, Deserializer, Serialize, Serializer};
 
+    pub fn serialize<S: Serializer>(v: &f64, s: S) -> Result<S::Ok, S::Error> {
+        Exact(*v).serialize(s)
+    }
+
+    pub fn deserialize<'de, D: Deserializer<'de>>(d: D) -> Result<f64, D::Error> {
+        NumOrStr::deserialize(d)?.value()
+    }
+}
+
+/// Serde helper for `Vec<f64>` written exactly (see the module docs); NaN survives.
+pub(crate) mod exact_vec {
+    use super::{Exact, NumOrStr};
+    use serde::{Deserialize, Deserializer, Serializer};
+
     pub fn serialize<S: Serializer>(v: &[f64], s: S) -> Result<S::Ok, S::Error> {
-        let opt: Vec<Option<f64>> = v
-            .iter()
-            .map(|x| if x.is_finite() { Some(*x) } else { None })
-            .collect();
-        opt.serialize(s)
+        s.collect_seq(v.iter().map(|x| Exact(*x)))
     }
 
     pub fn deserialize<'de, D: Deserializer<'de>>(d: D) -> Result<Vec<f64>, D::Error> {
-        let opt: Vec<Option<f64>> = Vec::deserialize(d)?;
-        Ok(opt.into_iter().map(|x| x.unwrap_or(f64::NAN)).collect())
+        Vec::<NumOrStr>::deserialize(d)?
+            .into_iter()
+            .map(NumOrStr::value)
+            .collect()
     }
 }

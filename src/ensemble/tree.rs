@@ -23,25 +23,101 @@ use super::binning::{BinMapper, MISSING_BIN};
 /// Sentinel in `leaf_of_node` for internal nodes.
 pub(crate) const NOT_LEAF: u32 = u32::MAX;
 
-/// Nodes with at least this many rows search splits on full histograms (and pass them on by
-/// subtraction); smaller nodes sort their rows by bin code.
-const HIST_MIN_ROWS: usize = 384;
+/// Nodes with at least `HIST_ROWS_PER_TRIED * p / n_try` rows (and at least this many) search
+/// splits on full histograms of every feature, passed on to children by subtraction; smaller
+/// nodes sum only the features they try, touching only the bins that hold rows.
+const HIST_MIN_ROWS: usize = 512;
 
-/// One node of a fitted tree. An internal node sends a row to `left` when its value of
-/// `feature` is `<= threshold`, to `right` when it is larger, and to `missing` when it is NaN.
-/// A leaf has `left == right == missing ==` its own index.
+/// See [`HIST_MIN_ROWS`]: a full histogram costs about 256 bins per feature to clear and
+/// subtract, worth it only when many rows share the work.
+const HIST_ROWS_PER_TRIED: usize = 1024;
+
+/// Bit of [`Node`]'s packed feature field that sends missing values left.
+const MISSING_LEFT: u32 = 1 << 31;
+
+/// One node of a fitted tree, 16 bytes. An internal node sends a row to its left child
+/// (`left`) when its value of the feature is `<= threshold` and to the right child
+/// (`left + 1`, siblings are stored side by side) when it is larger; a missing value (NaN)
+/// goes to the side learned at fitting. A leaf points to itself (`left` = its own index) with
+/// an infinite threshold, so a walk that reaches it stays there.
 #[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(from = "NodeRepr", into = "NodeRepr")]
 pub struct Node {
-    /// Split threshold on the raw feature value (`f64::MAX`: every non-missing value goes left).
-    pub threshold: f64,
-    /// Feature (column) index tested by the split; 0 for leaves.
-    pub feature: u32,
-    /// Child for values `<= threshold`.
-    pub left: u32,
-    /// Child for values `> threshold`.
-    pub right: u32,
-    /// Child for missing values (either `left` or `right`).
-    pub missing: u32,
+    threshold: f64,
+    /// Feature index, with [`MISSING_LEFT`] set when missing values go left.
+    packed: u32,
+    left: u32,
+}
+
+/// The written form of a [`Node`].
+#[derive(Serialize, Deserialize)]
+struct NodeRepr {
+    #[serde(with = "super::persist::exact")]
+    threshold: f64,
+    feature: u32,
+    left: u32,
+    missing_left: bool,
+}
+
+impl From<NodeRepr> for Node {
+    fn from(r: NodeRepr) -> Node {
+        Node {
+            threshold: r.threshold,
+            packed: (r.feature & !MISSING_LEFT) | if r.missing_left { MISSING_LEFT } else { 0 },
+            left: r.left,
+        }
+    }
+}
+
+impl From<Node> for NodeRepr {
+    fn from(n: Node) -> NodeRepr {
+        NodeRepr {
+            threshold: n.threshold,
+            feature: n.feature(),
+            left: n.left,
+            missing_left: n.missing_goes_left(),
+        }
+    }
+}
+
+impl Node {
+    /// Split threshold on the raw feature value (`f64::MAX`: every non-missing value goes
+    /// left; infinite for a leaf).
+    pub fn threshold(&self) -> f64 {
+        self.threshold
+    }
+
+    /// Feature (column) index tested by the split (0 for a leaf).
+    pub fn feature(&self) -> u32 {
+        self.packed & !MISSING_LEFT
+    }
+
+    /// Index of the child for values `<= threshold` (the node itself for a leaf).
+    pub fn left(&self) -> u32 {
+        self.left
+    }
+
+    /// Index of the child for values `> threshold` (the node itself for a leaf).
+    pub fn right(&self, own_index: u32) -> u32 {
+        if self.left == own_index {
+            own_index
+        } else {
+            self.left + 1
+        }
+    }
+
+    /// Whether missing values go to the left child.
+    pub fn missing_goes_left(&self) -> bool {
+        self.packed & MISSING_LEFT != 0
+    }
+
+    /// Index of the next node for value `v` (branch-free).
+    #[inline(always)]
+    fn next(&self, v: f64) -> u32 {
+        let nan = v.is_nan();
+        let right = (v > self.threshold) | (nan & (self.packed & MISSING_LEFT == 0));
+        self.left + right as u32
+    }
 }
 
 /// A fitted regression tree: flat node arrays, a leaf id per leaf node, and leaf values.
@@ -52,6 +128,7 @@ pub struct Tree {
     leaf_of_node: Vec<u32>,
     n_outputs: usize,
     /// Leaf values, `n_leaves x n_outputs`, row-major.
+    #[serde(with = "super::persist::exact_vec")]
     values: Vec<f64>,
 }
 
@@ -82,7 +159,7 @@ impl Tree {
         let mut max = 0;
         for (i, nd) in self.nodes.iter().enumerate() {
             if nd.left as usize != i {
-                for c in [nd.left, nd.right] {
+                for c in [nd.left, nd.left + 1] {
                     depth[c as usize] = depth[i] + 1;
                     max = max.max(depth[i] + 1);
                 }
@@ -99,14 +176,7 @@ impl Tree {
         let mut i = 0usize;
         loop {
             let nd = &self.nodes[i];
-            let v = row[nd.feature as usize];
-            let next = if v.is_nan() {
-                nd.missing
-            } else if v <= nd.threshold {
-                nd.left
-            } else {
-                nd.right
-            } as usize;
+            let next = nd.next(row[nd.feature() as usize]) as usize;
             if next == i {
                 return self.leaf_of_node[i] as usize;
             }
@@ -130,38 +200,56 @@ impl Tree {
     }
 
     /// Leaf ids of a block of rows (row-major, `p` values per row), written to `out`.
-    /// Eight rows walk the tree in lockstep so their memory loads overlap.
     pub(crate) fn apply_rows(&self, rows: &[f64], p: usize, out: &mut [u32]) {
+        self.walk(rows, |r| r * p, out);
+    }
+
+    /// Leaf ids of the rows `which` of a row-major table with `p` columns.
+    pub(crate) fn apply_selected(&self, table: &[f64], p: usize, which: &[u32], out: &mut [u32]) {
+        self.walk(table, |r| which[r] as usize * p, out);
+    }
+
+    /// Walks `out.len()` rows, row `r` starting at `data[offset(r)]`. Several rows walk the
+    /// tree in lockstep so that their memory loads overlap; a walk that reaches a leaf stays
+    /// there, and the block stops when no row moved.
+    #[inline(always)]
+    fn walk(&self, data: &[f64], offset: impl Fn(usize) -> usize, out: &mut [u32]) {
         const LANES: usize = 8;
         let nodes = &self.nodes[..];
         let n = out.len();
         let mut r0 = 0;
         while r0 + LANES <= n {
-            let block = &rows[r0 * p..(r0 + LANES) * p];
+            let base: [usize; LANES] = std::array::from_fn(|j| offset(r0 + j));
             let mut idx = [0u32; LANES];
             loop {
-                let mut moved = false;
-                for (j, cur) in idx.iter_mut().enumerate() {
+                let mut moved = 0u32;
+                for (cur, &b) in idx.iter_mut().zip(&base) {
                     let nd = &nodes[*cur as usize];
-                    let v = block[j * p + nd.feature as usize];
-                    let mut next = if v <= nd.threshold { nd.left } else { nd.right };
-                    if v.is_nan() {
-                        next = nd.missing;
-                    }
-                    moved |= next != *cur;
+                    let next = nd.next(data[b + nd.feature() as usize]);
+                    moved |= next ^ *cur;
                     *cur = next;
                 }
-                if !moved {
+                if moved == 0 {
                     break;
                 }
             }
-            for j in 0..LANES {
-                out[r0 + j] = self.leaf_of_node[idx[j] as usize];
+            for (o, &i) in out[r0..r0 + LANES].iter_mut().zip(&idx) {
+                *o = self.leaf_of_node[i as usize];
             }
             r0 += LANES;
         }
-        for r in r0..n {
-            out[r] = self.apply(&rows[r * p..(r + 1) * p]) as u32;
+        for (r, o) in out.iter_mut().enumerate().skip(r0) {
+            let b = offset(r);
+            let mut i = 0u32;
+            loop {
+                let nd = &nodes[i as usize];
+                let next = nd.next(data[b + nd.feature() as usize]);
+                if next == i {
+                    break;
+                }
+                i = next;
+            }
+            *o = self.leaf_of_node[i as usize];
         }
     }
 
@@ -195,7 +283,8 @@ impl Tree {
             let is_leaf = nd.left as usize == i;
             let leaf = self.leaf_of_node[i];
             if is_leaf {
-                if nd.right as usize != i || nd.missing as usize != i {
+                // a leaf must keep every value (and NaN) on itself
+                if nd.threshold != f64::INFINITY || !nd.missing_goes_left() {
                     return Err(format!("leaf node {i} does not point to itself"));
                 }
                 if leaf as usize >= n_leaves || seen[leaf as usize] {
@@ -204,12 +293,11 @@ impl Tree {
                 seen[leaf as usize] = true;
             } else {
                 // children come after their parent, so every walk ends at a leaf
-                let ok = |c: u32| (c as usize) > i && (c as usize) < nn;
+                let l = nd.left as usize;
                 if leaf != NOT_LEAF
-                    || !ok(nd.left)
-                    || !ok(nd.right)
-                    || (nd.missing != nd.left && nd.missing != nd.right)
-                    || nd.feature as usize >= n_features
+                    || l <= i
+                    || l + 1 >= nn
+                    || nd.feature() as usize >= n_features
                     || nd.threshold.is_nan()
                 {
                     return Err(format!("internal node {i} is malformed"));
@@ -271,14 +359,13 @@ pub(crate) struct Grown {
     pub gains: Vec<f64>,
 }
 
-/// A node waiting to be split or turned into a leaf.
+/// A node waiting to be split or turned into a leaf; its sums (weight, weighted targets,
+/// count; stride `k + 2`) are kept per node id in one flat array.
 struct Pending {
     node: usize,
     start: usize,
     end: usize,
     depth: usize,
-    /// Weight, weighted target sums, count (stride `k + 2`).
-    sums: Vec<f64>,
     /// Full histogram (all features) when the node is large.
     hist: Option<Vec<f64>>,
 }
@@ -289,6 +376,8 @@ struct Best {
     feature: usize,
     bin: u8,
     missing_left: bool,
+    /// Whether the node has rows with a missing value of `feature`.
+    has_missing: bool,
     left: Vec<f64>,
 }
 
@@ -314,6 +403,11 @@ pub(crate) fn grow(
             wy[r * k + j] = weight[r] * targets[r * k + j];
         }
     }
+    let ww = if k == 1 {
+        (0..data.n).map(|r| [weight[r], wy[r]]).collect()
+    } else {
+        Vec::new()
+    };
     let mut g = Grower {
         data,
         targets,
@@ -321,12 +415,12 @@ pub(crate) fn grow(
         stride,
         weight,
         wy,
+        ww,
+        fh1: Box::new([[0.0; 3]; 256]),
         params: *params,
         pool: Vec::new(),
-        keys: Vec::new(),
-        ebins: Vec::new(),
-        esums: Vec::new(),
-        miss: vec![0.0; stride],
+        fh: vec![0.0; 256 * stride],
+        touched: Vec::new(),
         acc: vec![0.0; stride],
         tmp: vec![0.0; stride],
         order: (0..data.p).collect(),
@@ -342,12 +436,16 @@ struct Grower<'a> {
     stride: usize,
     weight: &'a [f64],
     wy: Vec<f64>,
+    /// Single output: (weight, weight * target) per row.
+    ww: Vec<[f64; 2]>,
+    /// Single output: one feature's histogram for a small node (zero between uses).
+    fh1: Box<[[f64; 3]; 256]>,
     params: GrowParams,
     pool: Vec<Vec<f64>>,
-    keys: Vec<u32>,
-    ebins: Vec<u8>,
-    esums: Vec<f64>,
-    miss: Vec<f64>,
+    /// One feature's histogram for a small node (zero between uses).
+    fh: Vec<f64>,
+    /// Non-missing bins of `fh` holding rows, ascending.
+    touched: Vec<u8>,
     acc: Vec<f64>,
     tmp: Vec<f64>,
     order: Vec<usize>,
@@ -364,19 +462,21 @@ impl Grower<'_> {
 
         let mut root_sums = vec![0.0; self.stride];
         self.add_rows(&rows, &mut root_sums);
-        let root_hist = if rows.len() >= HIST_MIN_ROWS && self.splittable(rows.len(), 0) {
+        let root_hist = if self.wants_hist(rows.len(), 0) {
             let mut h = self.take_hist();
             self.build_hist(&rows, &mut h);
             Some(h)
         } else {
             None
         };
+        let s = self.stride;
+        let mut node_sums = root_sums;
+        let mut sums = vec![0.0; s];
         let mut stack = vec![Pending {
             node: 0,
             start: 0,
             end: rows.len(),
             depth: 0,
-            sums: root_sums,
             hist: root_hist,
         }];
         let mut best = Best {
@@ -384,6 +484,7 @@ impl Grower<'_> {
             feature: 0,
             bin: 0,
             missing_left: false,
+            has_missing: false,
             left: vec![0.0; self.stride],
         };
 
@@ -393,9 +494,9 @@ impl Grower<'_> {
                 start,
                 end,
                 depth,
-                sums,
                 hist,
             } = pend;
+            sums.copy_from_slice(&node_sums[node * s..(node + 1) * s]);
             let m = end - start;
             let found = if self.splittable(m, depth) {
                 self.find_split(&rows[start..end], &sums, hist.as_deref(), rng, &mut best)
@@ -440,12 +541,9 @@ impl Grower<'_> {
             let mid = w;
             let (m_left, m_right) = (mid - start, end - mid);
 
-            let left_sums = best.left.clone();
-            let right_sums: Vec<f64> = sums.iter().zip(&left_sums).map(|(t, l)| t - l).collect();
-            let has_missing = rows[start..end]
-                .iter()
-                .any(|&r| col[r as usize] == MISSING_BIN);
-            let missing_left = if has_missing {
+            node_sums.extend_from_slice(&best.left);
+            node_sums.extend(sums.iter().zip(&best.left).map(|(t, l)| t - l));
+            let missing_left = if best.has_missing {
                 miss_left
             } else {
                 m_left >= m_right
@@ -453,10 +551,8 @@ impl Grower<'_> {
             let (li, ri) = (nodes.len(), nodes.len() + 1);
             nodes[node] = Node {
                 threshold: self.data.mapper.threshold(f, bin),
-                feature: f as u32,
+                packed: f as u32 | if missing_left { MISSING_LEFT } else { 0 },
                 left: li as u32,
-                right: ri as u32,
-                missing: if missing_left { li } else { ri } as u32,
             };
             nodes.push(leaf_node(li as u32));
             nodes.push(leaf_node(ri as u32));
@@ -464,8 +560,8 @@ impl Grower<'_> {
             leaf_of_node.push(NOT_LEAF);
 
             // children's histograms: build the smaller child's, subtract for the larger
-            let want_l = m_left >= HIST_MIN_ROWS && self.splittable(m_left, depth + 1);
-            let want_r = m_right >= HIST_MIN_ROWS && self.splittable(m_right, depth + 1);
+            let want_l = self.wants_hist(m_left, depth + 1);
+            let want_r = self.wants_hist(m_right, depth + 1);
             let (mut hl, mut hr) = (None, None);
             match hist {
                 Some(mut parent) if want_l || want_r => {
@@ -520,7 +616,6 @@ impl Grower<'_> {
                 start: mid,
                 end,
                 depth: depth + 1,
-                sums: right_sums,
                 hist: hr,
             });
             stack.push(Pending {
@@ -528,7 +623,6 @@ impl Grower<'_> {
                 start,
                 end: mid,
                 depth: depth + 1,
-                sums: left_sums,
                 hist: hl,
             });
         }
@@ -553,6 +647,13 @@ impl Grower<'_> {
             acc: &mut self.acc,
             tmp: &mut self.tmp,
         }
+    }
+
+    fn wants_hist(&self, m: usize, depth: usize) -> bool {
+        let min_rows = (HIST_ROWS_PER_TRIED * self.data.p
+            / self.params.n_try.clamp(1, self.data.p))
+        .max(HIST_MIN_ROWS);
+        m >= min_rows && self.splittable(m, depth)
     }
 
     fn splittable(&self, m: usize, depth: usize) -> bool {
@@ -625,10 +726,17 @@ impl Grower<'_> {
         }
         // sum of squares, to tell a pure node and to scale the gain tolerance
         let mut sq = 0.0;
-        for &r in rows {
-            let r = r as usize;
-            for j in 0..k {
-                sq += self.wy[r * k + j] * self.targets[r * k + j];
+        if k == 1 {
+            for &r in rows {
+                let r = r as usize;
+                sq += self.ww[r][1] * self.targets[r];
+            }
+        } else {
+            for &r in rows {
+                let r = r as usize;
+                for j in 0..k {
+                    sq += self.wy[r * k + j] * self.targets[r * k + j];
+                }
             }
         }
         let parent_score: f64 = (0..k).map(|j| sums[1 + j] * sums[1 + j] / w_tot).sum();
@@ -651,26 +759,49 @@ impl Grower<'_> {
                     let nb = self.data.n_bins[f];
                     let miss_at = MISSING_BIN as usize * s;
                     let miss = &hf[miss_at..miss_at + s];
-                    scan(
-                        &mut self.scan_ctx(),
-                        f,
-                        &IDENTITY[..nb],
-                        &hf[..nb * s],
-                        miss,
-                        sums,
-                        best,
-                    )
+                    if k == 1 {
+                        let entries =
+                            (0..nb).map(|b| (b as u8, [hf[3 * b], hf[3 * b + 1], hf[3 * b + 2]]));
+                        let miss = [miss[0], miss[1], miss[2]];
+                        let min_leaf = self.params.min_samples_leaf as f64;
+                        scan1(min_leaf, f, entries, miss, sums, best)
+                    } else {
+                        scan(
+                            &mut self.scan_ctx(),
+                            f,
+                            &IDENTITY[..nb],
+                            &hf[..nb * s],
+                            miss,
+                            sums,
+                            best,
+                        )
+                    }
                 }
+                None if k == 1 => self.small_split1(f, rows, sums, best),
                 None => {
-                    self.sparse_entries(f, rows);
-                    let (ebins, esums, miss) = (&self.ebins, &self.esums, &self.miss);
+                    self.small_hist(f, rows);
+                    let miss_at = MISSING_BIN as usize * s;
                     let mut ctx = ScanCtx {
                         k,
                         min_leaf: self.params.min_samples_leaf as f64,
                         acc: &mut self.acc,
                         tmp: &mut self.tmp,
                     };
-                    scan(&mut ctx, f, ebins, esums, miss, sums, best)
+                    let (fh, touched) = (&self.fh, &self.touched);
+                    let r = scan(
+                        &mut ctx,
+                        f,
+                        touched,
+                        fh,
+                        &fh[miss_at..miss_at + s],
+                        sums,
+                        best,
+                    );
+                    for &b in &self.touched {
+                        self.fh[b as usize * s..(b as usize + 1) * s].fill(0.0);
+                    }
+                    self.fh[miss_at..miss_at + s].fill(0.0);
+                    r
                 }
             };
             if nonconstant {
@@ -688,39 +819,62 @@ impl Grower<'_> {
         }
     }
 
-    /// Sorts the node's rows by their bin code of feature `f` and sums each run of equal codes
-    /// into `ebins`/`esums`; missing rows are summed into `miss`.
-    fn sparse_entries(&mut self, f: usize, rows: &[u32]) {
+    /// Single-output split search on feature `f` for a small node: sums the rows by bin code
+    /// into `fh1`, scans the bins that received rows in ascending order (a 256-bit set, so no
+    /// sort is needed) and clears them again. Returns whether the feature is non-constant.
+    fn small_split1(&mut self, f: usize, rows: &[u32], total: &[f64], best: &mut Best) -> bool {
+        let n = self.data.n;
+        let col = &self.data.codes[f * n..(f + 1) * n];
+        let fh = &mut *self.fh1;
+        let ww = &self.ww[..];
+        let mut bits = [0u64; 4];
+        for &r in rows {
+            let r = r as usize;
+            let b = col[r];
+            let [w, wy] = ww[r];
+            let e = &mut fh[b as usize];
+            e[0] += w;
+            e[1] += wy;
+            e[2] += 1.0;
+            bits[(b >> 6) as usize] |= 1u64 << (b & 63);
+        }
+        let miss = std::mem::take(&mut fh[MISSING_BIN as usize]);
+        bits[3] &= !(1u64 << 63);
+        let min_leaf = self.params.min_samples_leaf as f64;
+        // read each bin once, clearing it; bins left after an early end are cleared after
+        let mut entries = BitIter::new(bits).map(|b| (b, std::mem::take(&mut fh[b as usize])));
+        let nonconstant = scan1(min_leaf, f, entries.by_ref(), miss, total, best);
+        entries.for_each(drop);
+        nonconstant
+    }
+
+    /// Sums the node's rows by bin code of feature `f` into `fh` and lists the non-missing
+    /// bins that received rows, ascending, in `touched` (a 256-bit set walked in order, so no
+    /// sort is needed).
+    fn small_hist(&mut self, f: usize, rows: &[u32]) {
         let (n, k, s) = (self.data.n, self.k, self.stride);
         let col = &self.data.codes[f * n..(f + 1) * n];
-        self.keys.clear();
-        self.keys.extend(
-            rows.iter()
-                .enumerate()
-                .map(|(i, &r)| ((col[r as usize] as u32) << 24) | i as u32),
-        );
-        self.keys.sort_unstable();
-        self.ebins.clear();
-        self.esums.clear();
-        self.miss.fill(0.0);
-        for &key in &self.keys {
-            let b = (key >> 24) as u8;
-            let r = rows[(key & 0x00FF_FFFF) as usize] as usize;
-            let target = if b == MISSING_BIN {
-                &mut self.miss[..]
-            } else {
-                if self.ebins.last() != Some(&b) {
-                    self.ebins.push(b);
-                    self.esums.extend(std::iter::repeat_n(0.0, s));
-                }
-                let at = self.esums.len() - s;
-                &mut self.esums[at..]
-            };
-            target[0] += self.weight[r];
+        let mut bits = [0u64; 4];
+        let fh = &mut self.fh[..];
+        for &r in rows {
+            let r = r as usize;
+            let b = col[r] as usize;
+            let h = &mut fh[b * s..(b + 1) * s];
+            h[0] += self.weight[r];
             for j in 0..k {
-                target[1 + j] += self.wy[r * k + j];
+                h[1 + j] += self.wy[r * k + j];
             }
-            target[k + 1] += 1.0;
+            h[k + 1] += 1.0;
+            bits[b >> 6] |= 1 << (b & 63);
+        }
+        bits[3] &= !(1u64 << 63); // the missing bin is handled apart
+        self.touched.clear();
+        for (wi, mut word) in bits.into_iter().enumerate() {
+            while word != 0 {
+                self.touched
+                    .push((wi * 64 + word.trailing_zeros() as usize) as u8);
+                word &= word - 1;
+            }
         }
     }
 }
@@ -744,15 +898,15 @@ static IDENTITY: [u8; 256] = {
     a
 };
 
-/// Scans the non-missing bins of feature `f` in ascending order (`bins[e]` is the code of
-/// entry `e`, `esums` its sums), trying a split after every non-empty bin with the missing
+/// Scans the non-missing bins `bins` (ascending codes) of feature `f`, whose sums sit in
+/// `hist` at `code * (k + 2)`, trying a split after every non-empty bin with the missing
 /// rows (`miss`) on either side, and records improvements in `best`. Returns whether the
 /// feature is non-constant in the node (rows in two or more bins, counting the missing bin).
 fn scan(
     ctx: &mut ScanCtx<'_>,
     f: usize,
     bins: &[u8],
-    esums: &[f64],
+    hist: &[f64],
     miss: &[f64],
     total: &[f64],
     best: &mut Best,
@@ -764,8 +918,8 @@ fn scan(
     let c_miss = miss[k + 1];
     let mut nonempty = usize::from(c_miss > 0.0);
     ctx.acc.fill(0.0);
-    for (e, &b) in bins.iter().enumerate() {
-        let entry = &esums[e * s..(e + 1) * s];
+    for &b in bins {
+        let entry = &hist[b as usize * s..(b as usize + 1) * s];
         if entry[k + 1] == 0.0 {
             continue;
         }
@@ -786,6 +940,7 @@ fn scan(
                 best.feature = f;
                 best.bin = b;
                 best.missing_left = false;
+                best.has_missing = c_miss > 0.0;
                 best.left.copy_from_slice(ctx.acc);
             }
         }
@@ -800,11 +955,101 @@ fn scan(
                 best.feature = f;
                 best.bin = b;
                 best.missing_left = true;
+                best.has_missing = true;
                 best.left.copy_from_slice(ctx.tmp);
             }
         }
     }
     nonempty >= 2
+}
+
+/// [`scan`] for a single output, with the sums in registers: `entries` yields the
+/// non-missing bins in ascending code order with their (weight, weighted target, count).
+fn scan1(
+    min_leaf: f64,
+    f: usize,
+    entries: impl Iterator<Item = (u8, [f64; 3])>,
+    miss: [f64; 3],
+    total: &[f64],
+    best: &mut Best,
+) -> bool {
+    let (w_tot, s_tot, c_tot) = (total[0], total[1], total[2]);
+    let [w_miss, s_miss, c_miss] = miss;
+    let mut nonempty = usize::from(c_miss > 0.0);
+    let (mut wl, mut sl, mut cl) = (0.0, 0.0, 0.0);
+    for (b, [w, sy, c]) in entries {
+        if c == 0.0 {
+            continue;
+        }
+        nonempty += 1;
+        wl += w;
+        sl += sy;
+        cl += c;
+        if c_tot - cl < min_leaf {
+            return nonempty >= 2 || c_tot - cl > 0.5;
+        }
+        if cl >= min_leaf {
+            let wr = w_tot - wl;
+            if wl > 0.0 && wr > 0.0 {
+                let sr = s_tot - sl;
+                let sc = sl * sl / wl + sr * sr / wr;
+                if sc > best.score {
+                    best.score = sc;
+                    best.feature = f;
+                    best.bin = b;
+                    best.missing_left = false;
+                    best.has_missing = c_miss > 0.0;
+                    best.left.copy_from_slice(&[wl, sl, cl]);
+                }
+            }
+        }
+        if c_miss > 0.0 && cl + c_miss >= min_leaf && c_tot - cl - c_miss >= min_leaf {
+            let (wl2, sl2) = (wl + w_miss, sl + s_miss);
+            let wr = w_tot - wl2;
+            if wl2 > 0.0 && wr > 0.0 {
+                let sr = s_tot - sl2;
+                let sc = sl2 * sl2 / wl2 + sr * sr / wr;
+                if sc > best.score {
+                    best.score = sc;
+                    best.feature = f;
+                    best.bin = b;
+                    best.missing_left = true;
+                    best.has_missing = true;
+                    best.left.copy_from_slice(&[wl2, sl2, cl + c_miss]);
+                }
+            }
+        }
+    }
+    nonempty >= 2
+}
+
+/// The set bits of a 256-bit set, ascending.
+struct BitIter {
+    bits: [u64; 4],
+    word: usize,
+}
+
+impl BitIter {
+    fn new(bits: [u64; 4]) -> Self {
+        BitIter { bits, word: 0 }
+    }
+}
+
+impl Iterator for BitIter {
+    type Item = u8;
+
+    #[inline]
+    fn next(&mut self) -> Option<u8> {
+        while self.word < 4 {
+            let w = self.bits[self.word];
+            if w != 0 {
+                self.bits[self.word] = w & (w - 1);
+                return Some((self.word * 64 + w.trailing_zeros() as usize) as u8);
+            }
+            self.word += 1;
+        }
+        None
+    }
 }
 
 /// Sum over outputs of `S_L^2 / W_L + S_R^2 / W_R` (the split's between-child sum of squares
@@ -827,11 +1072,9 @@ fn split_score(left: &[f64], total: &[f64], k: usize) -> f64 {
 
 fn leaf_node(i: u32) -> Node {
     Node {
-        threshold: 0.0,
-        feature: 0,
+        threshold: f64::INFINITY,
+        packed: MISSING_LEFT,
         left: i,
-        right: i,
-        missing: i,
     }
 }
 
@@ -862,7 +1105,7 @@ mod tests {
         let y: Vec<f64> = (0..10).map(|i| if i < 4 { 1.0 } else { 5.0 }).collect();
         let g = grow_simple(&x, &y, 1);
         assert_eq!(g.leaf_ranges.len(), 2);
-        assert_eq!(g.tree.nodes()[0].threshold, 3.5);
+        assert_eq!(g.tree.nodes()[0].threshold(), 3.5);
         assert_eq!(g.tree.apply(&[3.0]), g.tree.apply(&[0.0]));
         assert_ne!(g.tree.apply(&[4.0]), g.tree.apply(&[3.0]));
     }
@@ -909,8 +1152,8 @@ mod tests {
             }
         }
         let root = g.tree.nodes()[0];
-        assert_eq!(root.feature, 1);
-        assert_eq!(root.threshold, best.1);
+        assert_eq!(root.feature(), 1);
+        assert_eq!(root.threshold(), best.1);
         let total: usize = g.leaf_ranges.iter().map(|(a, b)| b - a).sum();
         assert_eq!(total, n);
     }

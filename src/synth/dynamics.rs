@@ -175,6 +175,13 @@ pub struct Dynamics {
 }
 
 impl Dynamics {
+    /// Hydraulic diffusivity k / (phi mu c_t) of compartment `c`, m2/s.
+    pub fn diffusivity(&self, c: usize) -> f64 {
+        1.0 / (4.0 * self.comps[c].diffusion)
+    }
+}
+
+impl Dynamics {
     /// Flow parameters from the static model: per compartment, the mean net thickness and porosity.
     pub fn new(res: &Reservoir, s: &SynthSettings) -> Dynamics {
         let mu = s.viscosity_cp * 1e-3;

@@ -14,15 +14,20 @@
 pub mod dynamics;
 pub mod fluids;
 pub mod forward;
+pub mod json;
 pub mod noise;
+pub mod project;
 pub mod reservoir;
 pub mod rock;
 pub mod seismic;
 pub mod spectral;
 pub mod wells;
 
+use crate::grid::Grid;
+use crate::io::IoError;
 use dynamics::{Conditions, Dynamics, NodeState};
 use forward::Layer;
+pub use project::{SynthRecord, write_project};
 use rand::rngs::StdRng;
 use rand::{RngExt, SeedableRng};
 use rand_distr::StandardNormal;
@@ -31,6 +36,7 @@ use reservoir::Reservoir;
 use rock::{FrameParams, Mixing};
 use seismic::ReflectivityMethod;
 use serde::{Deserialize, Serialize};
+use std::path::PathBuf;
 pub use wells::{PlacedWell, SynthWell, WellKind};
 
 /// Errors of the synthetic-field generator.
@@ -49,6 +55,17 @@ pub enum SynthError {
     /// The field could not be generated with these settings.
     #[error("cannot generate the field: {0}")]
     Generation(String),
+    /// Writing a file of the project failed.
+    #[error(transparent)]
+    Io(#[from] IoError),
+    /// The output folder or a file in it cannot be used.
+    #[error("{}: {message}", path.display())]
+    Output {
+        /// The folder or file.
+        path: PathBuf,
+        /// What is wrong.
+        message: String,
+    },
 }
 
 /// Every knob of the generator. Defaults (in brackets) make the demo-sized Skerrow Bank field.
@@ -173,6 +190,9 @@ pub struct SynthSettings {
     pub viscosity_cp: f64,
     /// Total compressibility (rock + fluids), 1/MPa [1.5e-3].
     pub total_compressibility: f64,
+    /// Strength of the permeability heterogeneity that makes water fronts irregular [1]; 0 gives
+    /// circular fronts.
+    pub front_heterogeneity: f64,
     /// Rise of the oil-water contact by aquifer influx, m/year [1].
     pub aquifer_rise: f64,
     /// Uniaxial compaction coefficient of the sands, 1/MPa [1.5e-4].
@@ -286,6 +306,7 @@ impl Default for SynthSettings {
             permeability_md: 50.0,
             viscosity_cp: 0.9,
             total_compressibility: 1.5e-3,
+            front_heterogeneity: 1.0,
             aquifer_rise: 1.0,
             compaction_coefficient: 1.5e-4,
             overburden_transfer: 0.6,
@@ -455,6 +476,7 @@ impl SynthSettings {
         pos("permeability_md", self.permeability_md)?;
         pos("viscosity_cp", self.viscosity_cp)?;
         pos("total_compressibility", self.total_compressibility)?;
+        frac("front_heterogeneity", self.front_heterogeneity, 0.0, 5.0)?;
         nonneg("aquifer_rise", self.aquifer_rise)?;
         frac(
             "compaction_coefficient",
@@ -515,6 +537,28 @@ impl SynthSettings {
         Ok(())
     }
 
+    /// Reads settings from JSON text exactly (every float as written); unknown keys are refused and
+    /// missing keys take their defaults.
+    pub fn from_json(text: &str) -> Result<SynthSettings, String> {
+        let value = json::parse(text)?;
+        serde_json::from_value(value).map_err(|e| e.to_string())
+    }
+
+    /// The map grid these settings describe.
+    pub fn grid(&self) -> Grid {
+        Grid {
+            origin_x: self.origin_x,
+            origin_y: self.origin_y,
+            dx: self.spacing,
+            dy: self.spacing,
+            nx: self.nx,
+            ny: self.ny,
+            rotation: self.rotation,
+            epsg: self.epsg,
+            null_value: self.null_value,
+        }
+    }
+
     /// Names of the time steps: m1..mN.
     pub fn step_names(&self) -> Vec<String> {
         (1..=self.steps).map(|k| format!("m{k}")).collect()
@@ -565,6 +609,8 @@ pub fn sub_seed(seed: u64, tags: &[u64]) -> u64 {
 pub struct SynthModel {
     /// The settings it was built from.
     pub settings: SynthSettings,
+    /// The map grid (world coordinates of the nodes).
+    pub grid: Grid,
     /// Structure, sands, fault, lobe.
     pub reservoir: Reservoir,
     /// The wells, in local coordinates.
@@ -589,6 +635,7 @@ impl SynthModel {
         let dynamics = Dynamics::new(&reservoir, settings);
         Ok(SynthModel {
             settings: settings.clone(),
+            grid: settings.grid(),
             reservoir,
             wells,
             conditions,
@@ -635,14 +682,9 @@ impl SynthModel {
             .collect()
     }
 
-    /// World coordinates of a local point (the rotation convention of the grid).
+    /// World coordinates of a local point (metres along the grid's x and y axes from node (0, 0)).
     pub fn world(&self, x: f64, y: f64) -> (f64, f64) {
-        let s = &self.settings;
-        let r = s.rotation.to_radians();
-        (
-            s.origin_x + x * r.cos() - y * r.sin(),
-            s.origin_y + x * r.sin() + y * r.cos(),
-        )
+        self.grid.fractional_xy(x / self.grid.dx, y / self.grid.dy)
     }
 
     /// Bilinear interpolation of a node map at a local point (clamped to the grid).
@@ -685,6 +727,8 @@ pub const TARGET_BOUNDS: [(f64, f64); 3] = [(-60.0, 60.0), (-1.0, 1.0), (-1.0, 1
 /// A generated field in memory.
 #[derive(Clone, Debug)]
 pub struct SynthField {
+    /// The map grid.
+    pub grid: Grid,
     /// Step names m1..mN.
     pub step_names: Vec<String>,
     /// Attribute names ([`ATTRIBUTE_NAMES`]).
@@ -731,18 +775,6 @@ fn clean_traces(
         .collect()
 }
 
-/// RMS over every node's analysis window.
-fn window_rms(traces: &[f64], samples: usize, window: &[usize]) -> f64 {
-    let (mut s, mut c) = (0.0, 0.0);
-    for (i, w) in window.iter().enumerate() {
-        for v in &traces[i * samples..i * samples + w] {
-            s += v * v;
-            c += 1.0;
-        }
-    }
-    if c > 0.0 { (s / c).sqrt() } else { 0.0 }
-}
-
 /// Generates a field in memory.
 pub fn generate(settings: &SynthSettings) -> Result<SynthField, SynthError> {
     let model = SynthModel::build(settings)?;
@@ -778,7 +810,7 @@ pub fn generate(settings: &SynthSettings) -> Result<SynthField, SynthError> {
     let base_clean = clean_traces(&model, &base_cols, &angles, &times);
     let signal_rms: Vec<f64> = base_clean
         .iter()
-        .map(|t| window_rms(t, samples, &window))
+        .map(|t| noise::window_rms(t, samples, &window))
         .collect();
     let spec = noise::NoiseSpec {
         nx: s.nx,
@@ -789,23 +821,12 @@ pub fn generate(settings: &SynthSettings) -> Result<SynthField, SynthError> {
         frequency: s.wavelet_hz,
         stack_correlation: s.noise_stack_correlation,
     };
-    let observe = |clean: Vec<Vec<f64>>, survey: u64| -> Vec<Vec<f64>> {
-        let raw = noise::survey_noise(&spec, nst, s.seed, survey);
+    let observe = |mut clean: Vec<Vec<f64>>, survey: u64| -> Vec<Vec<f64>> {
+        let noise = noise::scaled_noise(&spec, s.seed, survey, &signal_rms, s.snr, &window);
+        for (c, n) in clean.iter_mut().zip(noise) {
+            c.iter_mut().zip(n).for_each(|(c, n)| *c += n);
+        }
         clean
-            .into_iter()
-            .zip(raw)
-            .enumerate()
-            .map(|(st, (mut c, r))| {
-                let raw_rms = window_rms(&r, samples, &window);
-                let scale = if raw_rms > 0.0 {
-                    signal_rms[st] / s.snr / raw_rms
-                } else {
-                    0.0
-                };
-                c.iter_mut().zip(&r).for_each(|(c, r)| *c += scale * r);
-                c
-            })
-            .collect()
     };
     let base_obs = observe(base_clean, 0);
     let (base_sw, base_sg): (Vec<f64>, Vec<f64>) =
@@ -940,6 +961,7 @@ pub fn generate(settings: &SynthSettings) -> Result<SynthField, SynthError> {
     }
     let hcpv = (0..n).map(|i| res.hcpv(i)).collect();
     Ok(SynthField {
+        grid: model.grid.clone(),
         step_names: names,
         attribute_names: ATTRIBUTE_NAMES.iter().map(|a| a.to_string()).collect(),
         attributes,

@@ -84,3 +84,36 @@ pub fn survey_noise(spec: &NoiseSpec, stacks: usize, seed: u64, survey: u64) -> 
     }
     out
 }
+
+/// Noise for one survey scaled to a signal-to-noise ratio: for each stack, the raw noise of
+/// [`survey_noise`] multiplied so that its RMS over the analysis windows (the first `window[i]`
+/// samples of node `i`) equals `signal_rms[stack] / snr`.
+pub fn scaled_noise(
+    spec: &NoiseSpec,
+    seed: u64,
+    survey: u64,
+    signal_rms: &[f64],
+    snr: f64,
+    window: &[usize],
+) -> Vec<Vec<f64>> {
+    let mut raw = survey_noise(spec, signal_rms.len(), seed, survey);
+    for (trace, s) in raw.iter_mut().zip(signal_rms) {
+        let r = window_rms(trace, spec.samples, window);
+        let scale = if r > 0.0 { s / snr / r } else { 0.0 };
+        trace.iter_mut().for_each(|v| *v *= scale);
+    }
+    raw
+}
+
+/// RMS over every node's analysis window: the first `window[i]` of the `samples` samples of node
+/// `i` in a `[node * samples + k]` array.
+pub fn window_rms(traces: &[f64], samples: usize, window: &[usize]) -> f64 {
+    let (mut s, mut c) = (0.0, 0.0);
+    for (i, w) in window.iter().enumerate() {
+        for v in &traces[i * samples..i * samples + w] {
+            s += v * v;
+            c += 1.0;
+        }
+    }
+    if c > 0.0 { (s / c).sqrt() } else { 0.0 }
+}

@@ -232,10 +232,10 @@ impl Reservoir {
                     (s.vclay - s.vclay_sd * (0.6 * zp + 0.8 * gv[idx]) - 0.5 * s.vclay * lobe[idx])
                         .clamp(0.0, 0.45);
                 sand.swi[idx] = (s.swi + 0.4 * (sand.vclay[idx] - s.vclay)).clamp(0.08, 0.45);
-                sand.flow[idx] = (0.35 * zp + 0.25 * gf[idx]).exp();
+                sand.flow[idx] = (s.front_heterogeneity * (0.35 * zp + 0.25 * gf[idx])).exp();
             }
-            for idx in 0..n {
-                top[idx] += sand.thickness[idx];
+            for (t, h) in top.iter_mut().zip(&sand.thickness) {
+                *t += h;
             }
             if k + 1 < s.sands {
                 let gs = field(50 + k as u64);
@@ -243,8 +243,8 @@ impl Reservoir {
                     .iter()
                     .map(|g| (s.interbed_thickness + s.interbed_thickness_sd * g).max(1.0))
                     .collect();
-                for idx in 0..n {
-                    top[idx] += gap[idx];
+                for (t, g) in top.iter_mut().zip(&gap) {
+                    *t += g;
                 }
                 interbed.push(gap);
             }

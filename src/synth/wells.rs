@@ -178,7 +178,7 @@ pub fn place(res: &Reservoir, s: &SynthSettings) -> Result<Vec<PlacedWell>, Synt
                 let mut tries = 0usize;
                 loop {
                     tries += 1;
-                    if tries % 4000 == 0 {
+                    if tries.is_multiple_of(4000) {
                         spacing *= 0.85;
                         if spacing < 0.5 * res.spacing {
                             return Err(SynthError::Generation(format!(

@@ -1,1 +1,9 @@
-//! Integration tests: ensemble.
+//! Integration tests: ensemble (binned trees, forests, quantile forests, gradient boosting).
+
+mod boost;
+mod common;
+mod determinism;
+mod errors;
+mod forest;
+mod persist;
+mod quantile;

@@ -1,1 +1,6 @@
 //! Integration tests: synth.
+
+mod dynamics;
+mod facts;
+mod field;
+mod physics;
