@@ -2,3 +2,4 @@
 
 mod end_to_end;
 mod infill;
+mod report;
