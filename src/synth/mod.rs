@@ -340,6 +340,9 @@ impl Default for SynthSettings {
     }
 }
 
+/// Largest grid the generator accepts (its angle-stack traces are held in memory).
+pub const MAX_NODES: usize = 500_000;
+
 /// Parses "YYYY-MM-DD" into (year, month, day).
 fn parse_date(d: &str) -> Option<(i32, u32, u32)> {
     let mut it = d.split('-');
@@ -395,6 +398,16 @@ impl SynthSettings {
         }
         if self.ny < 10 || self.ny > 4000 {
             return Err(bad("ny", self.ny, "must lie in 10..=4000"));
+        }
+        if self.nx * self.ny > MAX_NODES {
+            return Err(bad(
+                "nx",
+                self.nx,
+                &format!(
+                    "nx * ny = {} exceeds {MAX_NODES} nodes (the traces are held in memory)",
+                    self.nx * self.ny
+                ),
+            ));
         }
         pos("spacing", self.spacing)?;
         finite("origin_x", self.origin_x)?;
