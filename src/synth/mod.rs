@@ -72,177 +72,181 @@ pub enum SynthError {
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 #[serde(default, deny_unknown_fields)]
 pub struct SynthSettings {
-    /// Seed of every random choice [7].
+    /// Seed of every random choice \[7\].
     pub seed: u64,
-    /// Grid nodes along x [120], >= 10.
+    /// Grid nodes along x \[120\], >= 10.
     pub nx: usize,
-    /// Grid nodes along y [100], >= 10.
+    /// Grid nodes along y \[100\], >= 10.
     pub ny: usize,
-    /// Node spacing in metres, the same along x and y [50], > 0.
+    /// Node spacing in metres, the same along x and y \[50\], > 0.
     pub spacing: f64,
-    /// World x of node (0, 0), m [431000].
+    /// World x of node (0, 0), m \[431000\].
     pub origin_x: f64,
-    /// World y of node (0, 0), m [6712000].
+    /// World y of node (0, 0), m \[6712000\].
     pub origin_y: f64,
-    /// Grid rotation, degrees counter-clockwise from east [0].
+    /// Grid rotation, degrees counter-clockwise from east \[0\].
     pub rotation: f64,
-    /// EPSG code written to the maps [32631].
+    /// EPSG code written to the maps \[32631\].
     pub epsg: Option<u32>,
-    /// Null value in the files [-999.25].
+    /// Null value in the files \[-999.25\].
     pub null_value: f64,
 
-    /// Number of wells [45], >= 2.
+    /// Number of wells \[45\], >= 2.
     pub wells: usize,
-    /// Fraction of the wells that inject water [0.3], in [0, 1).
+    /// Fraction of the wells that inject water \[0.3\], in \[0, 1).
     pub injector_fraction: f64,
-    /// Minimum distance between wells, m [350] (relaxed when the grid is too small).
+    /// Minimum distance between wells, m \[350\] (relaxed when the grid is too small).
     pub min_well_spacing: f64,
-    /// Range of producer rates, reservoir m3/day [200, 700].
+    /// Range of producer rates, reservoir m3/day \[200, 700\].
     pub producer_rate: [f64; 2],
-    /// Range of injector rates, reservoir m3/day [400, 1400].
+    /// Range of injector rates, reservoir m3/day \[400, 1400\].
     pub injector_rate: [f64; 2],
-    /// Number of monitor surveys (time steps m1..mN) [4], 1..=40.
+    /// Number of monitor surveys (time steps m1..mN) \[4\], 1..=40.
     pub steps: usize,
-    /// Date of the base survey, YYYY-MM-DD ["2016-06-01"]; production starts then.
+    /// Date of the base survey, YYYY-MM-DD \["2016-06-01"\]; production starts then.
     pub base_date: String,
-    /// Years between monitors [1.5], > 0.
+    /// Years between monitors \[1.5\], > 0.
     pub monitor_interval_years: f64,
 
-    /// Number of stacked sands, 1 or 2 [2].
+    /// Number of stacked sands, 1 or 2 \[2\].
     pub sands: usize,
-    /// Whether a sealing fault splits the field into two pressure compartments [true].
+    /// Whether a sealing fault splits the field into two pressure compartments \[true\].
     pub fault: bool,
-    /// Fault position along x as a fraction of the grid width [0.62].
+    /// Fault position along x as a fraction of the grid width \[0.62\].
     pub fault_position: f64,
-    /// Fault strike, degrees counter-clockwise from the grid x axis [78].
+    /// Fault strike, degrees counter-clockwise from the grid x axis \[78\].
     pub fault_strike_deg: f64,
-    /// Fault throw, m (down to the far side) [25].
+    /// Fault throw, m (down to the far side) \[25\].
     pub fault_throw: f64,
-    /// Depth of the crest of the top sand, m [2350].
+    /// Depth of the crest of the top sand, m \[2350\].
     pub crest_depth: f64,
-    /// Relief of the dome from crest to flanks, m [160].
+    /// Relief of the dome from crest to flanks, m \[160\].
     pub structural_relief: f64,
-    /// Regional dip towards +x, degrees [1].
+    /// Regional dip towards +x, degrees \[1\].
     pub dip_deg: f64,
-    /// Standard deviation of the structural roughness, m [4].
+    /// Standard deviation of the structural roughness, m \[4\].
     pub structure_roughness: f64,
-    /// Fraction of each compartment whose top sand lies above its oil-water contact [0.75].
+    /// Fraction of each compartment whose top sand lies above its oil-water contact \[0.75\].
     pub oil_area_fraction: f64,
-    /// Mean net thickness of the upper sand, m [14] (the lower sand: 85 % of it).
+    /// Mean net thickness of the upper sand, m \[14\] (the lower sand: 85 % of it).
     pub sand_thickness: f64,
-    /// Standard deviation of net sand thickness, m [7]; thinner than 0 means the sand pinches out.
+    /// Standard deviation of net sand thickness, m \[7\]; thinner than 0 means the sand pinches out.
     pub sand_thickness_sd: f64,
-    /// Mean thickness of the shale between the sands, m [7].
+    /// Mean thickness of the shale between the sands, m \[7\].
     pub interbed_thickness: f64,
-    /// Standard deviation of the interbed thickness, m [3].
+    /// Standard deviation of the interbed thickness, m \[3\].
     pub interbed_thickness_sd: f64,
-    /// Mean porosity [0.24].
+    /// Mean porosity \[0.24\].
     pub porosity: f64,
-    /// Standard deviation of porosity [0.03].
+    /// Standard deviation of porosity \[0.03\].
     pub porosity_sd: f64,
-    /// Mean clay volume fraction of the sand mineral [0.12].
+    /// Mean clay volume fraction of the sand mineral \[0.12\].
     pub vclay: f64,
-    /// Standard deviation of the clay fraction [0.05].
+    /// Standard deviation of the clay fraction \[0.05\].
     pub vclay_sd: f64,
-    /// Mean irreducible water saturation [0.18].
+    /// Mean irreducible water saturation \[0.18\].
     pub swi: f64,
-    /// Residual oil saturation after water sweep [0.22].
+    /// Residual oil saturation after water sweep \[0.22\].
     pub sor: f64,
-    /// Correlation length of the rock property maps, m [900].
+    /// Correlation length of the rock property maps, m \[900\].
     pub correlation_length: f64,
-    /// Centre of the well-free porous lobe, fractions of the grid width and height [0.17, 0.78].
+    /// Centre of the well-free porous lobe, fractions of the grid width and height \[0.17, 0.78\].
     pub lobe_position: [f64; 2],
-    /// Radius of the lobe as a fraction of the shorter grid side [0.17].
+    /// Radius of the lobe as a fraction of the shorter grid side \[0.17\].
     pub lobe_radius: f64,
-    /// Extra net sand in the lobe, m [12].
+    /// Extra net sand in the lobe, m \[12\].
     pub lobe_thickness: f64,
-    /// Extra porosity in the lobe [0.04].
+    /// Extra porosity in the lobe \[0.04\].
     pub lobe_porosity: f64,
 
-    /// Temperature at the datum, C [6].
+    /// Temperature at the datum, C \[6\].
     pub surface_temperature: f64,
-    /// Geothermal gradient, C/m [0.032].
+    /// Geothermal gradient, C/m \[0.032\].
     pub temperature_gradient: f64,
-    /// Formation-water density for the hydrostatic gradient, kg/m3 [1040].
+    /// Formation-water density for the hydrostatic gradient, kg/m3 \[1040\].
     pub brine_density: f64,
-    /// Brine salinity, NaCl weight fraction [0.06].
+    /// Brine salinity, NaCl weight fraction \[0.06\].
     pub salinity: f64,
-    /// Mean overburden density for the vertical stress, kg/m3 [2250].
+    /// Mean overburden density for the vertical stress, kg/m3 \[2250\].
     pub overburden_density: f64,
-    /// Overpressure above hydrostatic at the contact, MPa [2].
+    /// Overpressure above hydrostatic at the contact, MPa \[2\].
     pub overpressure: f64,
-    /// Oil API gravity [33].
+    /// Oil API gravity \[33\].
     pub api: f64,
-    /// Gas specific gravity (air = 1) [0.7].
+    /// Gas specific gravity (air = 1) \[0.7\].
     pub gas_gravity: f64,
-    /// Initial dissolved gas-oil ratio, L/L [120].
+    /// Initial dissolved gas-oil ratio, L/L \[120\].
     pub gor: f64,
-    /// Bubble point below the lowest initial oil-leg pressure, MPa [2.5].
+    /// Bubble point below the lowest initial oil-leg pressure, MPa \[2.5\].
     pub bubble_point_margin: f64,
-    /// Largest gas saturation released from solution [0.15].
+    /// Largest gas saturation released from solution \[0.15\].
     pub gas_max: f64,
-    /// Pressure shortfall scale of gas release, MPa [5].
+    /// Pressure shortfall scale of gas release, MPa \[5\].
     pub gas_pressure_scale: f64,
 
-    /// Permeability for pressure diffusion, mD [50].
+    /// Permeability for pressure diffusion, mD \[50\].
     pub permeability_md: f64,
-    /// Fluid viscosity for pressure diffusion, cP [0.9].
+    /// Fluid viscosity for pressure diffusion, cP \[0.9\].
     pub viscosity_cp: f64,
-    /// Total compressibility (rock + fluids), 1/MPa [1.5e-3].
+    /// Total compressibility (rock + fluids), 1/MPa \[1.5e-3\].
     pub total_compressibility: f64,
-    /// Strength of the permeability heterogeneity that makes water fronts irregular [1]; 0 gives
+    /// Strength of the permeability heterogeneity that makes water fronts irregular \[1\]; 0 gives
     /// circular fronts.
     pub front_heterogeneity: f64,
-    /// Rise of the oil-water contact by aquifer influx, m/year [1].
+    /// Rise of the oil-water contact by aquifer influx, m/year \[1\].
     pub aquifer_rise: f64,
-    /// Uniaxial compaction coefficient of the sands, 1/MPa [1.5e-4].
+    /// Uniaxial compaction coefficient of the sands, 1/MPa \[1.5e-4\].
     pub compaction_coefficient: f64,
-    /// Fraction of the reservoir compaction taken up as overburden stretch [0.6].
+    /// Fraction of the reservoir compaction taken up as overburden stretch \[0.6\].
     pub overburden_transfer: f64,
-    /// Lateral smoothing (standard deviation) of the overburden stretch, m [600].
+    /// Lateral smoothing (standard deviation) of the overburden stretch, m \[600\].
     pub overburden_smoothing: f64,
-    /// Hatchell & Bourne R factor of the overburden [5].
+    /// Hatchell & Bourne R factor of the overburden \[5\].
     pub r_factor: f64,
-    /// Mean overburden P velocity for depth-to-time conversion, m/s [2400].
+    /// Mean overburden P velocity for depth-to-time conversion, m/s \[2400\].
     pub overburden_velocity: f64,
 
     /// Dry-frame stress law (MacBeth 2004) and porosity scaling.
     pub frame: FrameParams,
-    /// Fluid mixing law ["wood"] or "brie".
+    /// Fluid mixing law \["wood"\] or "brie".
     pub mixing: Mixing,
-    /// Brie exponent when mixing = "brie" [3].
+    /// Brie exponent when mixing = "brie" \[3\].
     pub brie_exponent: f64,
-    /// Shale P velocity at zero depth, m/s [1800].
+    /// Shale P velocity at zero depth, m/s \[1800\].
     pub shale_vp0: f64,
-    /// Shale P velocity gradient with depth, 1/s [0.5].
+    /// Shale P velocity gradient with depth, 1/s \[0.5\].
     pub shale_vp_gradient: f64,
 
-    /// Ricker peak frequency, Hz [25].
+    /// Ricker peak frequency, Hz \[25\].
     pub wavelet_hz: f64,
-    /// Trace sample interval, ms [2].
+    /// Trace sample interval, ms \[2\].
     pub sample_ms: f64,
-    /// Reflection coefficient formula ["zoeppritz"], "aki_richards" or "shuey".
+    /// Reflection coefficient formula \["zoeppritz"\], "aki_richards" or "shuey".
     pub reflectivity: ReflectivityMethod,
-    /// Angle ranges of the near, mid and far stacks, degrees [[5, 15], [15, 25], [25, 35]].
+    /// Angle ranges of the near, mid and far stacks, degrees \[\[5, 15\], \[15, 25\], \[25, 35\]\].
     pub angle_stacks: [[f64; 2]; 3],
-    /// Amplitude window above the reservoir top and below its base, ms [12].
+    /// Amplitude window above the reservoir top and below its base, ms \[12\].
     pub window_pad_ms: f64,
-    /// Signal-to-noise ratio of the amplitudes (RMS over RMS) [12].
+    /// Half-length of the window centred on the top horizon in which the stack amplitudes for the
+    /// intercept and gradient are averaged, ms \[0: the sample on the horizon\] (at most
+    /// `window_pad_ms`).
+    pub avo_window_ms: f64,
+    /// Signal-to-noise ratio of the amplitudes (RMS over RMS) \[12\].
     pub snr: f64,
-    /// Correlation length of the seismic noise across the grid, m [150].
+    /// Correlation length of the seismic noise across the grid, m \[150\].
     pub noise_correlation_length: f64,
-    /// Correlation of the noise between angle stacks [0.5].
+    /// Correlation of the noise between angle stacks \[0.5\].
     pub noise_stack_correlation: f64,
-    /// Standard deviation of the time-shift measurement error, ms [0.15].
+    /// Standard deviation of the time-shift measurement error, ms \[0.15\].
     pub time_shift_noise_ms: f64,
-    /// Correlation length of the time-shift error, m [300].
+    /// Correlation length of the time-shift error, m \[300\].
     pub time_shift_noise_correlation: f64,
 
-    /// Standard deviation of the pressure-change measurement at wells, MPa [0.3].
+    /// Standard deviation of the pressure-change measurement at wells, MPa \[0.3\].
     pub well_noise_dp: f64,
-    /// Standard deviation of the water-saturation-change measurement at wells [0.02].
+    /// Standard deviation of the water-saturation-change measurement at wells \[0.02\].
     pub well_noise_dsw: f64,
-    /// Standard deviation of the gas-saturation-change measurement at wells [0.01].
+    /// Standard deviation of the gas-saturation-change measurement at wells \[0.01\].
     pub well_noise_dsg: f64,
 }
 
@@ -323,6 +327,7 @@ impl Default for SynthSettings {
             reflectivity: ReflectivityMethod::Zoeppritz,
             angle_stacks: [[5.0, 15.0], [15.0, 25.0], [25.0, 35.0]],
             window_pad_ms: 12.0,
+            avo_window_ms: 0.0,
             snr: 12.0,
             noise_correlation_length: 150.0,
             noise_stack_correlation: 0.5,
@@ -334,6 +339,9 @@ impl Default for SynthSettings {
         }
     }
 }
+
+/// Largest grid the generator accepts (its angle-stack traces are held in memory).
+pub const MAX_NODES: usize = 500_000;
 
 /// Parses "YYYY-MM-DD" into (year, month, day).
 fn parse_date(d: &str) -> Option<(i32, u32, u32)> {
@@ -390,6 +398,16 @@ impl SynthSettings {
         }
         if self.ny < 10 || self.ny > 4000 {
             return Err(bad("ny", self.ny, "must lie in 10..=4000"));
+        }
+        if self.nx * self.ny > MAX_NODES {
+            return Err(bad(
+                "nx",
+                self.nx,
+                &format!(
+                    "nx * ny = {} exceeds {MAX_NODES} nodes (the traces are held in memory)",
+                    self.nx * self.ny
+                ),
+            ));
         }
         pos("spacing", self.spacing)?;
         finite("origin_x", self.origin_x)?;
@@ -518,6 +536,7 @@ impl SynthSettings {
             last = r[1];
         }
         frac("window_pad_ms", self.window_pad_ms, 0.0, 200.0)?;
+        frac("avo_window_ms", self.avo_window_ms, 0.0, 50.0)?;
         frac("snr", self.snr, 0.1, 1e9)?;
         nonneg("noise_correlation_length", self.noise_correlation_length)?;
         frac(
@@ -733,11 +752,11 @@ pub struct SynthField {
     pub step_names: Vec<String>,
     /// Attribute names ([`ATTRIBUTE_NAMES`]).
     pub attribute_names: Vec<String>,
-    /// Attribute maps `[step][attribute]`, each nx*ny, index j*nx+i.
+    /// Attribute maps `\[step\]\[attribute\]`, each nx*ny, index j*nx+i.
     pub attributes: Vec<Vec<Vec<f64>>>,
-    /// Target names ["dP", "dSw", "dSg"].
+    /// Target names \["dP", "dSw", "dSg"\].
     pub target_names: Vec<String>,
-    /// True changes `[step][target]`, each nx*ny.
+    /// True changes `\[step\]\[target\]`, each nx*ny.
     pub truth: Vec<Vec<Vec<f64>>>,
     /// The wells.
     pub wells: Vec<SynthWell>,
@@ -747,7 +766,7 @@ pub struct SynthField {
     pub hcpv: Vec<f64>,
 }
 
-/// Noise-free angle-stack traces of every node: `[stack][node * samples + k]`.
+/// Noise-free angle-stack traces of every node: `\[stack\]\[node * samples + k\]`.
 fn clean_traces(
     model: &SynthModel,
     columns: &[Vec<Layer>],
@@ -784,6 +803,7 @@ pub fn generate(settings: &SynthSettings) -> Result<SynthField, SynthError> {
     let dt = s.sample_ms / 1000.0;
     let pad_samples = (s.window_pad_ms / s.sample_ms).round() as usize;
     let pad = pad_samples as f64 * dt;
+    let avo_half = ((s.avo_window_ms / s.sample_ms).round() as usize).min(pad_samples);
     let angles = model.stack_angles();
     let centres = model.stack_centres();
     let nst = angles.len();
@@ -889,9 +909,14 @@ pub fn generate(settings: &SynthSettings) -> Result<SynthField, SynthError> {
                 };
                 let (fb, fm) = (full(&base_obs), full(&obs));
                 out[3] = seismic::sum_negative(&fm) - seismic::sum_negative(&fb);
+                // mean amplitude of each stack in a short window centred on the top horizon
                 let top = |tr: &Vec<Vec<f64>>| -> Vec<f64> {
                     (0..nst)
-                        .map(|st| tr[st][i * samples + pad_samples])
+                        .map(|st| {
+                            let c = i * samples + pad_samples;
+                            tr[st][c - avo_half..=c + avo_half].iter().sum::<f64>()
+                                / (2 * avo_half + 1) as f64
+                        })
                         .collect()
                 };
                 let (ab, bb) = seismic::fit_intercept_gradient(&centres, &top(&base_obs));

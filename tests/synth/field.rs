@@ -50,6 +50,8 @@ fn written_project_loads_and_matches_the_field() {
     let s = small(5);
     let field = synth::generate(&s).unwrap();
     let dir = write(&field, &s);
+    let report = tidemark::check::check_project(&dir.path().join("project.toml"));
+    assert!(report.runnable, "{:?}", report.problems);
     let survey = project::load_survey(&dir.path().join("project.toml")).unwrap();
     let p = &survey.project;
     assert_eq!(p.grid, field.grid);

@@ -1,5 +1,6 @@
 //! Integration tests: synth.
 
+mod demo;
 mod dynamics;
 mod facts;
 mod field;
