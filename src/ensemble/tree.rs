@@ -32,8 +32,10 @@ const HIST_MIN_ROWS: usize = 512;
 /// subtract, worth it only when many rows share the work.
 const HIST_ROWS_PER_TRIED: usize = 1024;
 
-/// Bit of [`Node`]'s packed feature field that sends missing values left.
-const MISSING_LEFT: u32 = 1 << 31;
+/// Bit of [`Node`]'s packed field that sends missing values left; the other bits hold the
+/// feature index times two, so that the packed field is the column to read in the two-copy
+/// row layout (see [`super::copy_rows_wide`]).
+const MISSING_LEFT: u32 = 1;
 
 /// One node of a fitted tree, 16 bytes. An internal node sends a row to its left child
 /// (`left`) when its value of the feature is `<= threshold` and to the right child
@@ -44,7 +46,7 @@ const MISSING_LEFT: u32 = 1 << 31;
 #[serde(from = "NodeRepr", into = "NodeRepr")]
 pub struct Node {
     threshold: f64,
-    /// Feature index, with [`MISSING_LEFT`] set when missing values go left.
+    /// `2 * feature + 1` when missing values go left, `2 * feature` otherwise.
     packed: u32,
     left: u32,
 }
@@ -63,7 +65,7 @@ impl From<NodeRepr> for Node {
     fn from(r: NodeRepr) -> Node {
         Node {
             threshold: r.threshold,
-            packed: (r.feature & !MISSING_LEFT) | if r.missing_left { MISSING_LEFT } else { 0 },
+            packed: (r.feature << 1) | if r.missing_left { MISSING_LEFT } else { 0 },
             left: r.left,
         }
     }
@@ -89,7 +91,7 @@ impl Node {
 
     /// Feature (column) index tested by the split (0 for a leaf).
     pub fn feature(&self) -> u32 {
-        self.packed & !MISSING_LEFT
+        self.packed >> 1
     }
 
     /// Index of the child for values `<= threshold` (the node itself for a leaf).
@@ -111,12 +113,24 @@ impl Node {
         self.packed & MISSING_LEFT != 0
     }
 
-    /// Index of the next node for value `v` (branch-free).
+    /// Index of the next node for a raw value `v` (NaN = missing).
     #[inline(always)]
     fn next(&self, v: f64) -> u32 {
-        let nan = v.is_nan();
-        let right = (v > self.threshold) | (nan & (self.packed & MISSING_LEFT == 0));
-        self.left + right as u32
+        let v = if !v.is_nan() {
+            v
+        } else if self.missing_goes_left() {
+            f64::NEG_INFINITY
+        } else {
+            f64::INFINITY
+        };
+        self.next_wide(v)
+    }
+
+    /// Index of the next node for the value read from the two-copy layout at column
+    /// `packed` (NaN already replaced by the infinity that takes the learned side).
+    #[inline(always)]
+    fn next_wide(&self, v: f64) -> u32 {
+        self.left + (v > self.threshold) as u32
     }
 }
 
@@ -127,6 +141,8 @@ pub struct Tree {
     /// Leaf id of each node, `u32::MAX` for internal nodes.
     leaf_of_node: Vec<u32>,
     n_outputs: usize,
+    /// Largest number of splits from the root to a leaf.
+    max_depth: u32,
     /// Leaf values, `n_leaves x n_outputs`, row-major.
     #[serde(with = "super::persist::exact_vec")]
     values: Vec<f64>,
@@ -155,6 +171,11 @@ impl Tree {
 
     /// Largest number of splits from the root to a leaf.
     pub fn depth(&self) -> usize {
+        self.max_depth as usize
+    }
+
+    /// Depth computed from the node array.
+    fn depth_from_nodes(&self) -> usize {
         let mut depth = vec![0usize; self.nodes.len()];
         let mut max = 0;
         for (i, nd) in self.nodes.iter().enumerate() {
@@ -199,57 +220,33 @@ impl Tree {
         self.leaf_values(self.apply(row))
     }
 
-    /// Leaf ids of a block of rows (row-major, `p` values per row), written to `out`.
+    /// Leaf ids of a block of rows with `p` features in the two-copy layout of
+    /// [`super::copy_rows_wide`] (`2 p` values per row), written to `out`.
     pub(crate) fn apply_rows(&self, rows: &[f64], p: usize, out: &mut [u32]) {
-        self.walk(rows, |r| r * p, out);
+        self.walk(rows, |r| r * 2 * p, out);
     }
 
-    /// Leaf ids of the rows `which` of a row-major table with `p` columns.
+    /// Leaf ids of the rows `which` of a table with `p` features in the two-copy layout.
     pub(crate) fn apply_selected(&self, table: &[f64], p: usize, which: &[u32], out: &mut [u32]) {
-        self.walk(table, |r| which[r] as usize * p, out);
+        self.walk(table, |r| which[r] as usize * 2 * p, out);
     }
 
-    /// Walks `out.len()` rows, row `r` starting at `data[offset(r)]`. Several rows walk the
-    /// tree in lockstep so that their memory loads overlap; a walk that reaches a leaf stays
-    /// there, and the block stops when no row moved.
+    /// Walks `out.len()` rows, row `r` starting at `data[offset(r)]`, one level at a time:
+    /// every row takes one step per pass (a walk that reached a leaf stays there), for as many
+    /// passes as the tree is deep. The rows' steps are independent, so their memory loads
+    /// overlap, and there is no per-row branch to mispredict.
     #[inline(always)]
     fn walk(&self, data: &[f64], offset: impl Fn(usize) -> usize, out: &mut [u32]) {
-        const LANES: usize = 8;
         let nodes = &self.nodes[..];
-        let n = out.len();
-        let mut r0 = 0;
-        while r0 + LANES <= n {
-            let base: [usize; LANES] = std::array::from_fn(|j| offset(r0 + j));
-            let mut idx = [0u32; LANES];
-            loop {
-                let mut moved = 0u32;
-                for (cur, &b) in idx.iter_mut().zip(&base) {
-                    let nd = &nodes[*cur as usize];
-                    let next = nd.next(data[b + nd.feature() as usize]);
-                    moved |= next ^ *cur;
-                    *cur = next;
-                }
-                if moved == 0 {
-                    break;
-                }
+        out.fill(0);
+        for _ in 0..self.max_depth {
+            for (r, cur) in out.iter_mut().enumerate() {
+                let nd = &nodes[*cur as usize];
+                *cur = nd.next_wide(data[offset(r) + nd.packed as usize]);
             }
-            for (o, &i) in out[r0..r0 + LANES].iter_mut().zip(&idx) {
-                *o = self.leaf_of_node[i as usize];
-            }
-            r0 += LANES;
         }
-        for (r, o) in out.iter_mut().enumerate().skip(r0) {
-            let b = offset(r);
-            let mut i = 0u32;
-            loop {
-                let nd = &nodes[i as usize];
-                let next = nd.next(data[b + nd.feature() as usize]);
-                if next == i {
-                    break;
-                }
-                i = next;
-            }
-            *o = self.leaf_of_node[i as usize];
+        for o in out.iter_mut() {
+            *o = self.leaf_of_node[*o as usize];
         }
     }
 
@@ -303,6 +300,9 @@ impl Tree {
                     return Err(format!("internal node {i} is malformed"));
                 }
             }
+        }
+        if self.depth_from_nodes() != self.max_depth as usize {
+            return Err("tree depth does not match its nodes".into());
         }
         Ok(())
     }
@@ -551,7 +551,7 @@ impl Grower<'_> {
             let (li, ri) = (nodes.len(), nodes.len() + 1);
             nodes[node] = Node {
                 threshold: self.data.mapper.threshold(f, bin),
-                packed: f as u32 | if missing_left { MISSING_LEFT } else { 0 },
+                packed: ((f as u32) << 1) | if missing_left { MISSING_LEFT } else { 0 },
                 left: li as u32,
             };
             nodes.push(leaf_node(li as u32));
@@ -628,11 +628,16 @@ impl Grower<'_> {
         }
 
         Grown {
-            tree: Tree {
-                nodes,
-                leaf_of_node,
-                n_outputs: self.k,
-                values: Vec::new(),
+            tree: {
+                let mut t = Tree {
+                    nodes,
+                    leaf_of_node,
+                    n_outputs: self.k,
+                    max_depth: 0,
+                    values: Vec::new(),
+                };
+                t.max_depth = t.depth_from_nodes() as u32;
+                t
             },
             rows,
             leaf_ranges,
