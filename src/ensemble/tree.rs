@@ -1127,6 +1127,49 @@ mod tests {
     }
 
     #[test]
+    fn block_walk_agrees_with_single_row_walk() {
+        // missing values in both features, so splits learn both missing directions
+        let n = 600;
+        let x = Array2::from_shape_fn((n, 2), |(i, j)| {
+            if (i + 3 * j) % 7 == 0 {
+                f64::NAN
+            } else {
+                ((i * (13 + 17 * j)) % 97) as f64
+            }
+        });
+        let y: Vec<f64> = (0..n)
+            .map(|i| {
+                let a = if x[[i, 0]].is_nan() { 200.0 } else { x[[i, 0]] };
+                let b = if x[[i, 1]].is_nan() { -50.0 } else { x[[i, 1]] };
+                a - b
+            })
+            .collect();
+        let g = grow_simple(&x, &y, 2);
+        let t = &g.tree;
+        let ml = t.nodes().iter().filter(|nd| nd.missing_goes_left()).count();
+        assert!(ml > 0 && ml < t.n_nodes());
+        // query rows: training values, thresholds exactly, NaN and infinities
+        let mut q: Vec<[f64; 2]> = (0..n).map(|i| [x[[i, 0]], x[[i, 1]]]).collect();
+        for nd in t.nodes() {
+            q.push([nd.threshold(), f64::NAN]);
+            q.push([f64::NAN, nd.threshold()]);
+        }
+        q.push([f64::INFINITY, f64::NEG_INFINITY]);
+        q.push([f64::NEG_INFINITY, f64::INFINITY]);
+        let mut wide = Vec::new();
+        for r in &q {
+            for &v in r {
+                super::super::push_wide(&mut wide, v);
+            }
+        }
+        let mut out = vec![0u32; q.len()];
+        t.apply_rows(&wide, 2, &mut out);
+        for (r, &leaf) in q.iter().zip(&out) {
+            assert_eq!(t.apply(r), leaf as usize, "row {r:?}");
+        }
+    }
+
+    #[test]
     fn histogram_and_sorted_paths_agree() {
         // a large node (histogram path) must pick the same first split as the exact scan
         let n = 2000;
