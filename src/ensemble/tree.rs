@@ -5,14 +5,17 @@
 //! Split search is histogram-based (Ke et al. 2017, LightGBM, NeurIPS): large nodes accumulate
 //! per-bin sums of weight and weighted target for every feature, and a child's histogram is the
 //! parent's minus its sibling's (histogram subtraction), so only the smaller child is scanned.
-//! Small nodes sort their rows by bin code instead, which costs less than touching 255 bins.
+//! Smaller nodes sum only the features they try, into a 256-bin histogram of which only the
+//! bins holding rows are scanned and cleared (a 256-bit set lists them in order).
 //! Missing values (NaN, their own bin) try both sides at every split and the better side is
 //! kept (sparsity-aware split finding, Chen & Guestrin 2016, XGBoost, KDD); when a node saw no
 //! missing value for the chosen feature, missing values follow the child with more rows.
 //!
-//! A fitted [`Tree`] is a flat array of [`Node`]s: internal nodes hold a raw-valued threshold,
-//! leaves point to themselves. [`Tree::apply`] maps a row to its leaf id (0..n_leaves), and leaf
-//! values are stored per leaf and output.
+//! A fitted [`Tree`] is a flat array of its internal [`Node`]s, each holding a raw-valued
+//! threshold and two children; a child below the number of internal nodes is another node,
+//! one at or above it is a leaf (`child - n_internal` is the leaf id). Leaf ids number the
+//! leaves from left to right. [`Tree::apply`] maps a row to its leaf id (0..n_leaves), and
+//! leaf values are stored per leaf and output.
 
 use rand::RngExt;
 use rand::rngs::StdRng;
@@ -20,8 +23,8 @@ use serde::{Deserialize, Serialize};
 
 use super::binning::{BinMapper, MISSING_BIN};
 
-/// Sentinel in `leaf_of_node` for internal nodes.
-pub(crate) const NOT_LEAF: u32 = u32::MAX;
+/// Sentinel in the grower's `leaf_of_node` for internal nodes.
+const NOT_LEAF: u32 = u32::MAX;
 
 /// Nodes with at least `HIST_ROWS_PER_TRIED * p / n_try` rows (and at least this many) search
 /// splits on full histograms of every feature, passed on to children by subtraction; smaller
@@ -37,11 +40,10 @@ const HIST_ROWS_PER_TRIED: usize = 1024;
 /// row layout (see [`super::copy_rows_wide`]).
 const MISSING_LEFT: u32 = 1;
 
-/// One node of a fitted tree, 16 bytes. An internal node sends a row to its left child
-/// (`left`) when its value of the feature is `<= threshold` and to the right child
-/// (`left + 1`, siblings are stored side by side) when it is larger; a missing value (NaN)
-/// goes to the side learned at fitting. A leaf points to itself (`left` = its own index) with
-/// an infinite threshold, so a walk that reaches it stays there.
+/// One internal node of a fitted tree. A row goes to `left` when its value of the feature is
+/// `<= threshold` and to `right` when it is larger; a missing value (NaN) goes to the side
+/// learned at fitting. A child `c` is the internal node `c` when `c < n_internal`, else the
+/// leaf `c - n_internal`.
 #[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
 #[serde(from = "NodeRepr", into = "NodeRepr")]
 pub struct Node {
@@ -49,6 +51,7 @@ pub struct Node {
     /// `2 * feature + 1` when missing values go left, `2 * feature` otherwise.
     packed: u32,
     left: u32,
+    right: u32,
 }
 
 /// The written form of a [`Node`].
@@ -58,15 +61,19 @@ struct NodeRepr {
     threshold: f64,
     feature: u32,
     left: u32,
+    right: u32,
     missing_left: bool,
 }
 
 impl From<NodeRepr> for Node {
     fn from(r: NodeRepr) -> Node {
+        // an out-of-range feature stays out of range (and fails validation) instead of wrapping
+        let feature = r.feature.min(u32::MAX >> 1);
         Node {
             threshold: r.threshold,
-            packed: (r.feature << 1) | if r.missing_left { MISSING_LEFT } else { 0 },
+            packed: (feature << 1) | if r.missing_left { MISSING_LEFT } else { 0 },
             left: r.left,
+            right: r.right,
         }
     }
 }
@@ -77,6 +84,7 @@ impl From<Node> for NodeRepr {
             threshold: n.threshold,
             feature: n.feature(),
             left: n.left,
+            right: n.right,
             missing_left: n.missing_goes_left(),
         }
     }
@@ -84,28 +92,24 @@ impl From<Node> for NodeRepr {
 
 impl Node {
     /// Split threshold on the raw feature value (`f64::MAX`: every non-missing value goes
-    /// left; infinite for a leaf).
+    /// left).
     pub fn threshold(&self) -> f64 {
         self.threshold
     }
 
-    /// Feature (column) index tested by the split (0 for a leaf).
+    /// Feature (column) index tested by the split.
     pub fn feature(&self) -> u32 {
         self.packed >> 1
     }
 
-    /// Index of the child for values `<= threshold` (the node itself for a leaf).
+    /// Child for values `<= threshold` (see [`Node`] for how leaves are numbered).
     pub fn left(&self) -> u32 {
         self.left
     }
 
-    /// Index of the child for values `> threshold` (the node itself for a leaf).
-    pub fn right(&self, own_index: u32) -> u32 {
-        if self.left == own_index {
-            own_index
-        } else {
-            self.left + 1
-        }
+    /// Child for values `> threshold`.
+    pub fn right(&self) -> u32 {
+        self.right
     }
 
     /// Whether missing values go to the left child.
@@ -113,7 +117,7 @@ impl Node {
         self.packed & MISSING_LEFT != 0
     }
 
-    /// Index of the next node for a raw value `v` (NaN = missing).
+    /// Next child for a raw value `v` (NaN = missing).
     #[inline(always)]
     fn next(&self, v: f64) -> u32 {
         let v = if !v.is_nan() {
@@ -126,30 +130,71 @@ impl Node {
         self.next_wide(v)
     }
 
-    /// Index of the next node for the value read from the two-copy layout at column
-    /// `packed` (NaN already replaced by the infinity that takes the learned side).
+    /// Next child for the value read from the two-copy layout at column `packed` (NaN
+    /// already replaced by the infinity that takes the learned side).
     #[inline(always)]
     fn next_wide(&self, v: f64) -> u32 {
-        self.left + (v > self.threshold) as u32
+        if v > self.threshold {
+            self.right
+        } else {
+            self.left
+        }
     }
 }
 
 /// A fitted regression tree: flat node arrays, a leaf id per leaf node, and leaf values.
 #[derive(Clone, Debug, Serialize, Deserialize)]
+#[serde(from = "TreeRepr", into = "TreeRepr")]
 pub struct Tree {
+    /// Internal nodes; node 0 is the root (when there is any split).
     nodes: Vec<Node>,
-    /// Leaf id of each node, `u32::MAX` for internal nodes.
-    leaf_of_node: Vec<u32>,
+    /// `nodes` padded with copies of the root to a power-of-two length, for the block walk.
+    nodes_pow2: Vec<Node>,
     n_outputs: usize,
-    /// Largest number of splits from the root to a leaf.
-    max_depth: u32,
     /// Leaf values, `n_leaves x n_outputs`, row-major.
+    values: Vec<f64>,
+}
+
+/// The written form of a [`Tree`].
+#[derive(Serialize, Deserialize)]
+struct TreeRepr {
+    nodes: Vec<Node>,
+    n_outputs: usize,
     #[serde(with = "super::persist::exact_vec")]
     values: Vec<f64>,
 }
 
+impl From<TreeRepr> for Tree {
+    fn from(r: TreeRepr) -> Tree {
+        Tree::new(r.nodes, r.n_outputs, r.values)
+    }
+}
+
+impl From<Tree> for TreeRepr {
+    fn from(t: Tree) -> TreeRepr {
+        TreeRepr {
+            nodes: t.nodes,
+            n_outputs: t.n_outputs,
+            values: t.values,
+        }
+    }
+}
+
 impl Tree {
-    /// Number of nodes (internal and leaves).
+    fn new(nodes: Vec<Node>, n_outputs: usize, values: Vec<f64>) -> Tree {
+        let mut nodes_pow2 = nodes.clone();
+        if let Some(&root) = nodes.first() {
+            nodes_pow2.resize(nodes.len().next_power_of_two(), root);
+        }
+        Tree {
+            nodes,
+            nodes_pow2,
+            n_outputs,
+            values,
+        }
+    }
+
+    /// Number of internal nodes (splits).
     pub fn n_nodes(&self) -> usize {
         self.nodes.len()
     }
@@ -164,25 +209,21 @@ impl Tree {
         self.n_outputs
     }
 
-    /// The flat node array (node 0 is the root).
+    /// The internal nodes (node 0 is the root; empty when the tree is a single leaf).
     pub fn nodes(&self) -> &[Node] {
         &self.nodes
     }
 
     /// Largest number of splits from the root to a leaf.
     pub fn depth(&self) -> usize {
-        self.max_depth as usize
-    }
-
-    /// Depth computed from the node array.
-    fn depth_from_nodes(&self) -> usize {
-        let mut depth = vec![0usize; self.nodes.len()];
+        let n_int = self.nodes.len();
+        let mut depth = vec![0usize; n_int];
         let mut max = 0;
         for (i, nd) in self.nodes.iter().enumerate() {
-            if nd.left as usize != i {
-                for c in [nd.left, nd.left + 1] {
+            max = max.max(depth[i] + 1);
+            for c in [nd.left, nd.right] {
+                if (c as usize) < n_int {
                     depth[c as usize] = depth[i] + 1;
-                    max = max.max(depth[i] + 1);
                 }
             }
         }
@@ -194,15 +235,13 @@ impl Tree {
     /// # Panics
     /// If `row` is shorter than the number of features the tree was grown on.
     pub fn apply(&self, row: &[f64]) -> usize {
-        let mut i = 0usize;
-        loop {
-            let nd = &self.nodes[i];
-            let next = nd.next(row[nd.feature() as usize]) as usize;
-            if next == i {
-                return self.leaf_of_node[i] as usize;
-            }
-            i = next;
+        let n_int = self.nodes.len();
+        let mut c = 0usize;
+        while c < n_int {
+            let nd = &self.nodes[c];
+            c = nd.next(row[nd.feature() as usize]) as usize;
         }
+        c - n_int
     }
 
     /// Value of output `output` in leaf `leaf`.
@@ -231,78 +270,85 @@ impl Tree {
         self.walk(table, |r| which[r] as usize * 2 * p, out);
     }
 
-    /// Walks `out.len()` rows, row `r` starting at `data[offset(r)]`, one level at a time:
-    /// every row takes one step per pass (a walk that reached a leaf stays there), for as many
-    /// passes as the tree is deep. The rows' steps are independent, so their memory loads
-    /// overlap, and there is no per-row branch to mispredict.
+    /// Walks `out.len()` rows, row `r` starting at `data[offset(r)]`, one level at a time
+    /// over blocks of rows: each pass moves every row still at an internal node one step and
+    /// keeps only those rows for the next pass. The rows' steps are independent, so their
+    /// memory loads overlap, and the pass has no data-dependent branch.
     #[inline(always)]
     fn walk(&self, data: &[f64], offset: impl Fn(usize) -> usize, out: &mut [u32]) {
-        let nodes = &self.nodes[..];
+        // Fixed-size scratch indexed with `& (BLOCK - 1)` needs no bounds checks; the node
+        // array is padded to a power of two (`nodes_pow2`) for the same reason.
+        const BLOCK: usize = 128;
+        const MASK: usize = BLOCK - 1;
+        let n_int = self.nodes.len() as u32;
         out.fill(0);
-        for _ in 0..self.max_depth {
-            for (r, cur) in out.iter_mut().enumerate() {
-                let nd = &nodes[*cur as usize];
-                *cur = nd.next_wide(data[offset(r) + nd.packed as usize]);
-            }
+        if n_int == 0 {
+            return;
         }
-        for o in out.iter_mut() {
-            *o = self.leaf_of_node[*o as usize];
+        let nodes = &self.nodes_pow2[..];
+        let node_mask = nodes.len() - 1;
+        let mut cur = [0u32; BLOCK];
+        let mut off = [0usize; BLOCK];
+        let mut act_in = [0u8; BLOCK];
+        let mut act_out = [0u8; BLOCK];
+        for (b, block) in out.chunks_mut(BLOCK).enumerate() {
+            let r0 = b * BLOCK;
+            let mut na = block.len();
+            for r in 0..na {
+                cur[r & MASK] = 0;
+                off[r & MASK] = offset(r0 + r);
+                act_in[r & MASK] = r as u8;
+            }
+            while na > 0 {
+                let mut k = 0;
+                for i in 0..na {
+                    let r = act_in[i & MASK] as usize;
+                    let nd = &nodes[cur[r & MASK] as usize & node_mask];
+                    let next = nd.next_wide(data[off[r & MASK] + nd.packed as usize]);
+                    cur[r & MASK] = next;
+                    act_out[k & MASK] = r as u8;
+                    k += usize::from(next < n_int);
+                }
+                std::mem::swap(&mut act_in, &mut act_out);
+                na = k;
+            }
+            for (r, o) in block.iter_mut().enumerate() {
+                *o = cur[r & MASK] - n_int;
+            }
         }
     }
 
     /// Replaces the leaf values (`n_leaves x n_outputs`, row-major).
     pub(crate) fn set_values(&mut self, n_outputs: usize, values: Vec<f64>) {
-        debug_assert_eq!(values.len(), self.n_leaves_from_nodes() * n_outputs);
+        debug_assert_eq!(values.len(), (self.nodes.len() + 1) * n_outputs);
         self.n_outputs = n_outputs;
         self.values = values;
     }
 
-    fn n_leaves_from_nodes(&self) -> usize {
-        self.leaf_of_node.iter().filter(|&&l| l != NOT_LEAF).count()
-    }
-
-    /// Checks internal consistency (used after loading a model from a file).
+    /// Checks internal consistency (used after loading a model from a file): a binary tree
+    /// has one more leaf than internal nodes, children come after their parent (so every walk
+    /// ends), every node but the root and every leaf is reached exactly once.
     pub(crate) fn validate(&self, n_features: usize) -> Result<(), String> {
-        let nn = self.nodes.len();
-        if nn == 0 || self.leaf_of_node.len() != nn || self.n_outputs == 0 {
-            return Err("tree has no nodes or mismatched node arrays".into());
-        }
-        let n_leaves = self.n_leaves_from_nodes();
-        if self.values.len() != n_leaves * self.n_outputs {
+        let n_int = self.nodes.len();
+        let n_leaves = n_int + 1;
+        if self.n_outputs == 0 || self.values.len() != n_leaves * self.n_outputs {
             return Err(format!(
-                "tree has {n_leaves} leaves but {} leaf values for {} outputs",
+                "tree has {n_int} splits but {} leaf values for {} outputs",
                 self.values.len(),
                 self.n_outputs
             ));
         }
-        let mut seen = vec![false; n_leaves];
+        let mut seen = vec![false; n_int + n_leaves];
         for (i, nd) in self.nodes.iter().enumerate() {
-            let is_leaf = nd.left as usize == i;
-            let leaf = self.leaf_of_node[i];
-            if is_leaf {
-                // a leaf must keep every value (and NaN) on itself
-                if nd.threshold != f64::INFINITY || !nd.missing_goes_left() {
-                    return Err(format!("leaf node {i} does not point to itself"));
-                }
-                if leaf as usize >= n_leaves || seen[leaf as usize] {
-                    return Err(format!("leaf node {i} has an invalid leaf id"));
-                }
-                seen[leaf as usize] = true;
-            } else {
-                // children come after their parent, so every walk ends at a leaf
-                let l = nd.left as usize;
-                if leaf != NOT_LEAF
-                    || l <= i
-                    || l + 1 >= nn
-                    || nd.feature() as usize >= n_features
-                    || nd.threshold.is_nan()
-                {
-                    return Err(format!("internal node {i} is malformed"));
-                }
+            if nd.feature() as usize >= n_features || nd.threshold.is_nan() {
+                return Err(format!("node {i} is malformed"));
             }
-        }
-        if self.depth_from_nodes() != self.max_depth as usize {
-            return Err("tree depth does not match its nodes".into());
+            for c in [nd.left as usize, nd.right as usize] {
+                if c <= i || c >= n_int + n_leaves || seen[c] {
+                    return Err(format!("node {i} has an invalid child"));
+                }
+                seen[c] = true;
+            }
         }
         Ok(())
     }
@@ -455,6 +501,8 @@ struct Grower<'a> {
 impl Grower<'_> {
     fn run(&mut self, mut rows: Vec<u32>, rng: &mut StdRng) -> Grown {
         let p = self.data.p;
+        // while growing, `nodes` holds every node (leaves point to themselves); the fitted
+        // tree keeps only the internal ones
         let mut nodes: Vec<Node> = vec![leaf_node(0)];
         let mut leaf_of_node: Vec<u32> = vec![NOT_LEAF];
         let mut leaf_ranges: Vec<(usize, usize)> = Vec::new();
@@ -553,6 +601,7 @@ impl Grower<'_> {
                 threshold: self.data.mapper.threshold(f, bin),
                 packed: ((f as u32) << 1) | if missing_left { MISSING_LEFT } else { 0 },
                 left: li as u32,
+                right: ri as u32,
             };
             nodes.push(leaf_node(li as u32));
             nodes.push(leaf_node(ri as u32));
@@ -628,17 +677,7 @@ impl Grower<'_> {
         }
 
         Grown {
-            tree: {
-                let mut t = Tree {
-                    nodes,
-                    leaf_of_node,
-                    n_outputs: self.k,
-                    max_depth: 0,
-                    values: Vec::new(),
-                };
-                t.max_depth = t.depth_from_nodes() as u32;
-                t
-            },
+            tree: compact(&nodes, &leaf_of_node, self.k),
             rows,
             leaf_ranges,
             gains,
@@ -1080,7 +1119,36 @@ fn leaf_node(i: u32) -> Node {
         threshold: f64::INFINITY,
         packed: MISSING_LEFT,
         left: i,
+        right: i,
     }
+}
+
+/// Keeps the internal nodes of a grown tree (in growing order, so children still come after
+/// their parents) and points their leaf children at `n_internal + leaf id`.
+fn compact(nodes: &[Node], leaf_of_node: &[u32], k: usize) -> Tree {
+    let mut new_index = vec![0u32; nodes.len()];
+    let mut n_int = 0u32;
+    for (i, &l) in leaf_of_node.iter().enumerate() {
+        if l == NOT_LEAF {
+            new_index[i] = n_int;
+            n_int += 1;
+        }
+    }
+    let map = |c: u32| match leaf_of_node[c as usize] {
+        NOT_LEAF => new_index[c as usize],
+        leaf => n_int + leaf,
+    };
+    let internal = nodes
+        .iter()
+        .zip(leaf_of_node)
+        .filter(|(_, l)| **l == NOT_LEAF)
+        .map(|(nd, _)| Node {
+            left: map(nd.left),
+            right: map(nd.right),
+            ..*nd
+        })
+        .collect();
+    Tree::new(internal, k, Vec::new())
 }
 
 #[cfg(test)]
