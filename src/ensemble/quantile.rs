@@ -15,7 +15,7 @@
 //! Quantile regression forests (Meinshausen 2006, JMLR 7:983-999) estimate
 //! `F(y | x) = sum_i w_i(x) 1{Y_i <= y}` with `w_i(x) = (1/k) sum_t c_it / C_t(x)` over the
 //! training rows `i` sharing the leaf of `x` in tree `t` (`c_it` is row `i`'s in-bag count times
-//! its sample weight, `C_t(x)` the leaf's total). The [`QrfKernel`] pre-sorts the training
+//! its sample weight, `C_t(x)` the leaf's total). The prediction kernel pre-sorts the training
 //! targets once, keeps each leaf's rows as positions in that order, accumulates the weights of a
 //! prediction row into a dense array and reads every requested level and threshold from one
 //! cumulative scan.
