@@ -13,7 +13,7 @@ pub struct Args {
     /// Results folder; created if missing; must not hold any input.
     #[arg(long)]
     pub out: PathBuf,
-    /// Seed for every random choice (overrides [model] seed).
+    /// Seed for every random choice (overrides `seed` in the manifest's model table).
     #[arg(long)]
     pub seed: Option<u64>,
     /// Worker threads (default: all cores). Results do not depend on it.
