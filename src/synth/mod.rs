@@ -128,9 +128,9 @@ pub struct SynthSettings {
     pub structure_roughness: f64,
     /// Fraction of each compartment whose top sand lies above its oil-water contact \[0.75\].
     pub oil_area_fraction: f64,
-    /// Mean net thickness of the upper sand, m \[14\] (the lower sand: 85 % of it).
+    /// Mean net thickness of the upper sand, m \[16\] (the lower sand: 85 % of it).
     pub sand_thickness: f64,
-    /// Standard deviation of net sand thickness, m \[7\]; thinner than 0 means the sand pinches out.
+    /// Standard deviation of net sand thickness, m \[8\]; thinner than 0 means the sand pinches out.
     pub sand_thickness_sd: f64,
     /// Mean thickness of the shale between the sands, m \[7\].
     pub interbed_thickness: f64,
@@ -221,7 +221,7 @@ pub struct SynthSettings {
     /// Shale P velocity gradient with depth, 1/s \[0.5\].
     pub shale_vp_gradient: f64,
 
-    /// Ricker peak frequency, Hz \[25\].
+    /// Ricker peak frequency, Hz \[30\].
     pub wavelet_hz: f64,
     /// Trace sample interval, ms \[2\].
     pub sample_ms: f64,
@@ -284,8 +284,8 @@ impl Default for SynthSettings {
             dip_deg: 1.0,
             structure_roughness: 4.0,
             oil_area_fraction: 0.75,
-            sand_thickness: 14.0,
-            sand_thickness_sd: 7.0,
+            sand_thickness: 16.0,
+            sand_thickness_sd: 8.0,
             interbed_thickness: 7.0,
             interbed_thickness_sd: 3.0,
             porosity: 0.24,
@@ -328,7 +328,7 @@ impl Default for SynthSettings {
             brie_exponent: 3.0,
             shale_vp0: 1800.0,
             shale_vp_gradient: 0.5,
-            wavelet_hz: 25.0,
+            wavelet_hz: 30.0,
             sample_ms: 2.0,
             reflectivity: ReflectivityMethod::Zoeppritz,
             angle_stacks: [[5.0, 15.0], [15.0, 25.0], [25.0, 35.0]],
