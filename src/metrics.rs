@@ -584,6 +584,88 @@ impl Metrics {
     }
 }
 
+/// A plain-text table of metrics, one line per labelled row (e.g. per target and step), with the
+/// columns n wells, n rows, R2, RMSE, bias, coverage (all, bottom and top decile), mean width,
+/// interval score, CRPS and each Brier score. Undefined values print as `-`.
+pub fn format_table(rows: &[(String, &Metrics)]) -> String {
+    let fmt = |v: f64| {
+        if v.is_finite() {
+            format!("{v:.4}")
+        } else {
+            "-".to_string()
+        }
+    };
+    let mut header: Vec<String> = [
+        "",
+        "wells",
+        "rows",
+        "R2",
+        "RMSE",
+        "bias",
+        "cover",
+        "cov_b10",
+        "cov_t10",
+        "width",
+        "int_score",
+        "CRPS",
+    ]
+    .iter()
+    .map(|s| s.to_string())
+    .collect();
+    let labels: Vec<String> = rows
+        .first()
+        .map(|(_, m)| m.brier.iter().map(|(l, _)| format!("brier_{l}")).collect())
+        .unwrap_or_default();
+    header.extend(labels);
+    let mut lines: Vec<Vec<String>> = vec![header];
+    for (label, m) in rows {
+        let mut line = vec![
+            label.clone(),
+            m.n_wells.to_string(),
+            m.n_rows.to_string(),
+            fmt(m.r2),
+            fmt(m.rmse),
+            fmt(m.bias),
+            fmt(m.coverage),
+            fmt(m.coverage_bottom_decile),
+            fmt(m.coverage_top_decile),
+            fmt(m.mean_width),
+            fmt(m.interval_score),
+            fmt(m.crps),
+        ];
+        line.extend(m.brier.iter().map(|(_, b)| fmt(*b)));
+        lines.push(line);
+    }
+    let ncol = lines.iter().map(Vec::len).max().unwrap_or(0);
+    let width: Vec<usize> = (0..ncol)
+        .map(|c| {
+            lines
+                .iter()
+                .filter_map(|l| l.get(c))
+                .map(String::len)
+                .max()
+                .unwrap_or(0)
+        })
+        .collect();
+    let mut out = String::new();
+    for l in &lines {
+        let cells: Vec<String> = l
+            .iter()
+            .enumerate()
+            .map(|(c, v)| {
+                if c == 0 {
+                    format!("{v:<w$}", w = width[c])
+                } else {
+                    format!("{v:>w$}", w = width[c])
+                }
+            })
+            .collect();
+        out.push_str(cells.join("  ").trim_end());
+        out.push('\n');
+    }
+    out
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -610,6 +692,32 @@ mod tests {
         assert!(
             (w[0] - 0.3).abs() < 1e-12 && (w[1] - 0.4).abs() < 1e-12 && (w[2] - 0.3).abs() < 1e-12
         );
+    }
+
+    #[test]
+    fn table_lists_every_row_and_brier_column() {
+        let truth = [1.0, 2.0, 3.0, 4.0];
+        let m = Metrics::compute(&MetricsInput {
+            truth: &truth,
+            mid: &truth,
+            lo: &[0.0; 4],
+            hi: &[5.0; 4],
+            level: 0.8,
+            quantiles: None,
+            exceed: vec![ExceedInput {
+                label: "hi",
+                value: 2.5,
+                above: true,
+                prob: &[0.0, 0.0, 1.0, 1.0],
+            }],
+            n_wells: 2,
+        })
+        .unwrap();
+        let t = format_table(&[("dSw all".to_string(), &m), ("dSw m1".to_string(), &m)]);
+        let lines: Vec<&str> = t.lines().collect();
+        assert_eq!(lines.len(), 3);
+        assert!(lines[0].contains("brier_hi") && lines[0].contains("R2"));
+        assert!(lines[1].starts_with("dSw all") && lines[1].contains("1.0000"));
     }
 
     #[test]

@@ -25,7 +25,7 @@ pub mod isotonic;
 pub mod target;
 
 pub use target::{
-    BandCandidate, BandDiagnostics, CalibratedTarget, CalibrationSettings,
+    BandCandidate, BandDiagnostics, CalibratedTarget, CalibrationSettings, CorrectionScore,
     EndCorrectionDiagnostics, ExceedanceDiagnostics, LearnerDiagnostics, LearnerScore, OofRow,
     StepMetrics, TargetData, TargetDiagnostics, TargetPrediction, Threshold, calibrate_target,
 };

@@ -10,8 +10,10 @@
 //! 2. Learner: forest, booster, or a blend `w forest + (1-w) booster` with `w` in
 //!    {1, 0.75, 0.5, 0.25, 0}, whichever has the lowest out-of-fold weighted mean squared error
 //!    (a consistent scoring function for the mean, Gneiting 2011, JASA 106:746).
-//! 3. End-bias correction: a cross-fitted isotonic map (prediction -> truth); kept only when it
-//!    lowers the out-of-fold squared error. The final map is fitted on all out-of-fold pairs.
+//! 3. End-bias correction: a cross-fitted centred isotonic map `iso` (prediction -> truth),
+//!    applied at a strength `s` in {1/4, 1/2, 3/4, 1} as `raw + s (iso(raw) - raw)`, the strength
+//!    with the lowest out-of-fold squared error kept, and only if it beats the uncorrected
+//!    predictor. The final map is fitted on all out-of-fold pairs.
 //! 4. Band: [`BandMethod::CvResidual`] and [`BandMethod::Cqr`], each cross-fitted on held-out
 //!    wells; the one with the lower out-of-fold interval score (Gneiting & Raftery 2007) is kept.
 //! 5. Exceedance per threshold: conformal predictive system or recalibrated forest CDF, whichever
@@ -216,25 +218,40 @@ pub struct LearnerDiagnostics {
     pub scores: Vec<LearnerScore>,
 }
 
-/// What the end-bias correction did.
+/// Out-of-fold score of one strength of the end-bias correction.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct CorrectionScore {
+    /// Strength `s` in `raw + s (iso(raw) - raw)`; 0 is the uncorrected predictor.
+    pub strength: f64,
+    /// Out-of-fold weighted mean squared error.
+    #[serde(deserialize_with = "serde_nan::f64_or_nan")]
+    pub mse: f64,
+}
+
+/// What the end-bias correction did. "After" values describe the cross-fitted correction at the
+/// kept strength, or at full strength when it was not kept (what it would have done).
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct EndCorrectionDiagnostics {
     /// The setting.
     pub enabled: bool,
     /// Whether the corrected predictor is used.
     pub kept: bool,
+    /// Kept strength (0 when not kept).
+    pub strength: f64,
     /// Why, in words.
     pub reason: String,
+    /// Out-of-fold MSE of every strength tried.
+    pub scores: Vec<CorrectionScore>,
     /// Out-of-fold weighted MSE before the correction.
     #[serde(deserialize_with = "serde_nan::f64_or_nan")]
     pub mse_before: f64,
-    /// Out-of-fold weighted MSE of the cross-fitted correction.
+    /// Out-of-fold weighted MSE after.
     #[serde(deserialize_with = "serde_nan::f64_or_nan")]
     pub mse_after: f64,
     /// Slope of truth on prediction before (1 = no shrinkage).
     #[serde(deserialize_with = "serde_nan::f64_or_nan")]
     pub slope_before: f64,
-    /// Slope after the cross-fitted correction.
+    /// Slope after.
     #[serde(deserialize_with = "serde_nan::f64_or_nan")]
     pub slope_after: f64,
     /// Mean bias (prediction - truth) in the bottom decile of the truth, before.
@@ -243,7 +260,7 @@ pub struct EndCorrectionDiagnostics {
     /// Same in the top decile, before.
     #[serde(deserialize_with = "serde_nan::f64_or_nan")]
     pub bias_top_before: f64,
-    /// Bottom-decile bias after the cross-fitted correction.
+    /// Bottom-decile bias after.
     #[serde(deserialize_with = "serde_nan::f64_or_nan")]
     pub bias_bottom_after: f64,
     /// Top-decile bias after.
@@ -392,6 +409,8 @@ pub struct CalibratedTarget {
     pub forest_weight: f64,
     /// End-bias correction map (`None` when not kept).
     pub correction: Option<IsotonicMap>,
+    /// Strength of the correction: `mid = raw + strength (map(raw) - raw)`.
+    pub correction_strength: f64,
     /// Band calibration.
     pub band: BandCalibration,
     /// Smallest scale of normalised scores.
@@ -667,16 +686,45 @@ pub fn calibrate_target(
         .collect();
     let corrected_cf = cross_fit(&fold, &raw_oof, data.y, data.weight, &iso_settings)?;
     let mse_before = wmse(data.y, &raw_clipped, data.weight);
-    let mse_after = wmse(data.y, &corrected_cf, data.weight);
-    let kept = settings.end_correction && mse_after < mse_before;
+    // Strength of the correction: raw + strength (iso(raw) - raw), chosen by out-of-fold MSE;
+    // strength 0 keeps the uncorrected predictor.
+    let with_strength = |lambda: f64| -> Vec<f64> {
+        raw_clipped
+            .iter()
+            .zip(&corrected_cf)
+            .map(|(r, c)| r + lambda * (c - r))
+            .collect()
+    };
+    let strength_scores: Vec<CorrectionScore> = [0.0, 0.25, 0.5, 0.75, 1.0]
+        .iter()
+        .map(|&lambda| CorrectionScore {
+            strength: lambda,
+            mse: wmse(data.y, &with_strength(lambda), data.weight),
+        })
+        .collect();
+    let best_strength = strength_scores
+        .iter()
+        .filter(|c| c.strength > 0.0 && c.mse < mse_before)
+        .fold(None::<&CorrectionScore>, |acc, c| match acc {
+            Some(a) if a.mse <= c.mse => Some(a),
+            _ => Some(c),
+        })
+        .map_or(0.0, |c| c.strength);
+    let kept = settings.end_correction && best_strength > 0.0;
+    let strength = if kept { best_strength } else { 0.0 };
+    let after = with_strength(if kept { strength } else { 1.0 });
+    let mse_after = wmse(data.y, &after, data.weight);
     let reason = if !settings.end_correction {
         "end correction disabled in the settings".to_string()
     } else if kept {
-        format!("kept: out-of-fold mean squared error {mse_before:.6} -> {mse_after:.6}")
+        format!(
+            "kept at strength {strength}: out-of-fold mean squared error {mse_before:.6} -> \
+             {mse_after:.6}"
+        )
     } else {
         format!(
-            "not kept: the correction would raise the out-of-fold mean squared error from \
-             {mse_before:.6} to {mse_after:.6}"
+            "not kept: at every strength the correction would raise the out-of-fold mean \
+             squared error ({mse_before:.6}; at full strength {mse_after:.6})"
         )
     };
     if settings.end_correction && !kept {
@@ -693,20 +741,22 @@ pub fn calibrate_target(
         None
     };
     let mid_oof: Vec<f64> = if kept {
-        corrected_cf.clone()
+        after.clone()
     } else {
         raw_clipped.clone()
     };
     let (bb0, bt0) = end_bias(data.y, &raw_clipped);
-    let (bb1, bt1) = end_bias(data.y, &corrected_cf);
+    let (bb1, bt1) = end_bias(data.y, &after);
     let end_diag = EndCorrectionDiagnostics {
         enabled: settings.end_correction,
         kept,
+        strength,
         reason,
+        scores: strength_scores,
         mse_before,
         mse_after,
         slope_before: slope(data.y, &raw_clipped),
-        slope_after: slope(data.y, &corrected_cf),
+        slope_after: slope(data.y, &after),
         bias_bottom_before: bb0,
         bias_top_before: bt0,
         bias_bottom_after: bb1,
@@ -1034,6 +1084,7 @@ pub fn calibrate_target(
         booster,
         forest_weight: best,
         correction,
+        correction_strength: strength,
         band,
         scale_floor,
         cps,
@@ -1145,7 +1196,10 @@ impl CalibratedTarget {
                     (None, Some(b)) => b[i],
                     (None, None) => f64::NAN,
                 };
-                let mid = self.correction.as_ref().map_or(raw, |m| m.predict(raw));
+                let raw = raw.clamp(self.bounds.0, self.bounds.1);
+                let mid = self.correction.as_ref().map_or(raw, |m| {
+                    raw + self.correction_strength * (m.predict(raw) - raw)
+                });
                 mid.clamp(self.bounds.0, self.bounds.1)
             })
             .collect();

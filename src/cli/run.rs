@@ -1,10 +1,75 @@
-//! `tidemark run` (placeholder until its issue lands).
+//! `tidemark run PROJECT.toml --out DIR`: the main job.
+
+use crate::pipeline::outputs::Formats;
+use crate::pipeline::run::{RunOptions, run as run_pipeline};
+use anyhow::Context;
+use std::path::PathBuf;
 
 /// Arguments of `tidemark run`.
 #[derive(clap::Args, Debug)]
-pub struct Args {}
+pub struct Args {
+    /// The project manifest (project.toml).
+    pub project: PathBuf,
+    /// Results folder; created if missing; must not hold any input.
+    #[arg(long)]
+    pub out: PathBuf,
+    /// Seed for every random choice (overrides [model] seed).
+    #[arg(long)]
+    pub seed: Option<u64>,
+    /// Worker threads (default: all cores). Results do not depend on it.
+    #[arg(long)]
+    pub threads: Option<usize>,
+    /// No progress bars or stage messages.
+    #[arg(long)]
+    pub quiet: bool,
+    /// Skip the XYZ text copies of the maps (GeoTIFF only).
+    #[arg(long)]
+    pub no_xyz: bool,
+    /// Skip PNG pictures and the report.
+    #[arg(long)]
+    pub no_pictures: bool,
+    /// Skip the HTML report and its sensitivity studies.
+    #[arg(long)]
+    pub no_report: bool,
+}
+
+/// Sets the size of rayon's global pool (once per process).
+pub fn set_threads(threads: Option<usize>) -> anyhow::Result<()> {
+    if let Some(n) = threads {
+        anyhow::ensure!(n >= 1, "--threads must be at least 1, got {n}");
+        rayon::ThreadPoolBuilder::new()
+            .num_threads(n)
+            .build_global()
+            .context("setting the thread count")?;
+    }
+    Ok(())
+}
 
 /// Runs `tidemark run`.
-pub fn run(_args: Args) -> anyhow::Result<u8> {
-    anyhow::bail!("tidemark run is not built yet")
+pub fn run(args: Args) -> anyhow::Result<u8> {
+    set_threads(args.threads)?;
+    let opts = RunOptions {
+        project: args.project.clone(),
+        out: args.out.clone(),
+        seed: args.seed,
+        quiet: args.quiet,
+        formats: Formats {
+            geotiff: true,
+            xyz: !args.no_xyz,
+        },
+        pictures: !args.no_pictures,
+        report: !args.no_pictures && !args.no_report,
+    };
+    if !args.quiet {
+        eprintln!("tidemark run {}", args.project.display());
+    }
+    let outcome =
+        run_pipeline(&opts).with_context(|| format!("running {}", args.project.display()))?;
+    if !args.quiet {
+        println!("results in {}", outcome.out.display());
+        for w in &outcome.record.warnings {
+            eprintln!("warning: {w}");
+        }
+    }
+    Ok(0)
 }

@@ -37,7 +37,8 @@ use super::persist::{
 use super::quantile::weighted_quantile;
 use super::tree::{Binned, GrowParams, Tree, grow};
 use super::{
-    EnsembleError, PREDICT_CHUNK, check_training_x, check_weights, copy_rows, derive_seed, invalid,
+    EnsembleError, PREDICT_CHUNK, check_training_x, check_weights, copy_rows_wide, derive_seed,
+    invalid,
 };
 
 const STREAM_ROUND: u64 = 11;
@@ -370,8 +371,8 @@ impl BoostSettings {
         let xt = x.select(ndarray::Axis(0), train);
         let yt: Vec<f64> = train.iter().map(|&r| y[r]).collect();
         let wt: Vec<f64> = train.iter().map(|&r| w[r]).collect();
-        let mut xt_rows = Vec::with_capacity(nt * p);
-        copy_rows(&xt.view(), 0, nt, &mut xt_rows);
+        let mut xt_rows = Vec::with_capacity(2 * nt * p);
+        copy_rows_wide(&xt.view(), 0, nt, &mut xt_rows);
         let mapper = BinMapper::fit(xt.view(), self.max_bins);
         let codes = mapper.transform(xt.view());
         let data = Binned::new(&codes, nt, &mapper);
@@ -388,8 +389,8 @@ impl BoostSettings {
         let (xv_rows, yv, wv, mut fv) = match valid {
             Some(v) => {
                 let xv = x.select(ndarray::Axis(0), v);
-                let mut buf = Vec::with_capacity(v.len() * p);
-                copy_rows(&xv.view(), 0, v.len(), &mut buf);
+                let mut buf = Vec::with_capacity(2 * v.len() * p);
+                copy_rows_wide(&xv.view(), 0, v.len(), &mut buf);
                 let yv: Vec<f64> = v.iter().map(|&r| y[r]).collect();
                 let wv: Vec<f64> = v.iter().map(|&r| w[r]).collect();
                 (buf, yv, wv, vec![init; v.len()])
@@ -532,7 +533,7 @@ impl Booster {
                     let start = c * PREDICT_CHUNK;
                     let end = (start + PREDICT_CHUNK).min(n);
                     let m = end - start;
-                    copy_rows(&x, start, end, rows);
+                    copy_rows_wide(&x, start, end, rows);
                     leaves.resize(m, 0);
                     let mut out = vec![self.init; m];
                     for tree in &self.trees {

@@ -32,7 +32,8 @@ use super::persist::{self, FOREST_FORMAT, FOREST_VERSION, exact_vec};
 use super::quantile::QrfKernel;
 use super::tree::{Binned, GrowParams, Tree, grow};
 use super::{
-    EnsembleError, PREDICT_CHUNK, check_training_x, check_weights, copy_rows, derive_seed, invalid,
+    EnsembleError, PREDICT_CHUNK, check_training_x, check_weights, copy_rows, copy_rows_wide,
+    derive_seed, invalid,
 };
 
 const STREAM_TREE: u64 = 1;
@@ -170,6 +171,8 @@ impl ForestSettings {
             .collect();
         let mut x_train = Vec::with_capacity(n * p);
         copy_rows(&x, 0, n, &mut x_train);
+        let mut x_wide = Vec::with_capacity(2 * n * p);
+        copy_rows_wide(&x, 0, n, &mut x_wide);
 
         let mapper = BinMapper::fit(x, self.max_bins);
         let codes = mapper.transform(x);
@@ -183,7 +186,7 @@ impl ForestSettings {
 
         let fits: Vec<TreeFit> = (0..self.n_trees)
             .into_par_iter()
-            .map(|t| self.fit_tree(t, &data, &z, &y_train, k, &w, &x_train, &params, draws))
+            .map(|t| self.fit_tree(t, &data, &z, &y_train, k, &w, &x_wide, &params, draws))
             .collect();
 
         // OOB means and importance, reduced in tree order
@@ -246,7 +249,7 @@ impl ForestSettings {
         y: &[f64],
         k: usize,
         w: &[f64],
-        x_train: &[f64],
+        x_wide: &[f64],
         params: &GrowParams,
         draws: usize,
     ) -> TreeFit {
@@ -311,7 +314,7 @@ impl ForestSettings {
         tree.set_values(k, values);
         let oob_rows: Vec<u32> = (0..n as u32).filter(|&r| !in_tree[r as usize]).collect();
         let mut leaves = vec![0u32; oob_rows.len()];
-        tree.apply_selected(x_train, p, &oob_rows, &mut leaves);
+        tree.apply_selected(x_wide, p, &oob_rows, &mut leaves);
         let oob = oob_rows.into_iter().zip(leaves).collect();
         TreeFit {
             tree,
@@ -461,12 +464,13 @@ impl Forest {
         );
     }
 
-    /// Runs `f` on every chunk of rows in parallel with the leaf ids of every tree
-    /// (`leaves[t * m + r]` for chunk row `r`), and concatenates the results in row order.
+    /// Runs `f(start, m, leaves, acc, out)` on every chunk of rows in parallel (rows
+    /// `start..start + m`, leaf ids of every tree at `leaves[t * m + r]`, scratch `acc` of
+    /// length `acc_len`), and concatenates the outputs in row order.
     fn map_chunks<T, F>(&self, x: ArrayView2<f64>, acc_len: usize, f: F) -> Vec<T>
     where
         T: Send,
-        F: Fn(usize, &[u32], &mut [f64], &mut Vec<T>) + Sync,
+        F: Fn(usize, usize, &[u32], &mut [f64], &mut Vec<T>) + Sync,
     {
         let n = x.nrows();
         let p = self.n_features;
@@ -483,13 +487,13 @@ impl Forest {
                     let start = c * PREDICT_CHUNK;
                     let end = (start + PREDICT_CHUNK).min(n);
                     let m = end - start;
-                    copy_rows(&x, start, end, &mut s.rows);
+                    copy_rows_wide(&x, start, end, &mut s.rows);
                     s.leaves.resize(self.trees.len() * m, 0);
                     for (t, tree) in self.trees.iter().enumerate() {
                         tree.apply_rows(&s.rows, p, &mut s.leaves[t * m..(t + 1) * m]);
                     }
                     let mut out = Vec::new();
-                    f(m, &s.leaves, &mut s.acc, &mut out);
+                    f(start, m, &s.leaves, &mut s.acc, &mut out);
                     out
                 },
             )
@@ -506,7 +510,7 @@ impl Forest {
         let k = self.n_outputs;
         let n_t = self.trees.len();
         let inv = 1.0 / n_t as f64;
-        let flat = self.map_chunks(x, 0, |m, leaves, _, out| {
+        let flat = self.map_chunks(x, 0, |_, m, leaves, _, out| {
             out.resize(m * k, 0.0);
             for (t, tree) in self.trees.iter().enumerate() {
                 for r in 0..m {
@@ -525,7 +529,7 @@ impl Forest {
     pub fn apply(&self, x: ArrayView2<f64>) -> Array2<u32> {
         self.assert_x(&x);
         let n_t = self.trees.len();
-        let flat = self.map_chunks(x, 0, |m, leaves, _, out| {
+        let flat = self.map_chunks(x, 0, |_, m, leaves, _, out| {
             out.resize(m * n_t, 0);
             for t in 0..n_t {
                 for r in 0..m {
@@ -544,7 +548,7 @@ impl Forest {
         self.assert_x(&x);
         self.assert_output(output);
         let n_t = self.trees.len();
-        let flat = self.map_chunks(x, 0, |m, leaves, _, out| {
+        let flat = self.map_chunks(x, 0, |_, m, leaves, _, out| {
             out.resize(m * n_t, 0.0);
             for (t, tree) in self.trees.iter().enumerate() {
                 for r in 0..m {
@@ -631,18 +635,23 @@ impl Forest {
             .map(|&t| (!t.is_nan()).then(|| kernel.threshold_position(t)))
             .collect();
         let (nl, nt) = (levels.len(), thresholds.len());
-        let n_trees = self.trees.len();
-        let flat = self.map_chunks(x, self.n_train, |m, leaves, acc, out| {
+        let n = self.n_train;
+        let block = QrfKernel::block_rows(n);
+        let flat = self.map_chunks(x, block * n, |_, m, leaves, acc, out| {
             out.reserve(m * (nl + nt));
-            for r in 0..m {
+            for r0 in (0..m).step_by(block) {
+                let nb = block.min(m - r0);
+                let acc = &mut acc[..nb * n];
                 acc.fill(0.0);
-                kernel.accumulate((0..n_trees).map(|t| leaves[t * m + r]), acc);
-                QrfKernel::cumulate(acc);
-                for &q in levels {
-                    out.push(kernel.quantile(acc, q));
-                }
-                for tp in &t_pos {
-                    out.push(tp.map_or(f64::NAN, |p| QrfKernel::cdf(acc, p)));
+                kernel.accumulate_block(leaves, m, r0, nb, acc);
+                for cum in acc.chunks_exact_mut(n) {
+                    QrfKernel::cumulate(cum);
+                    for &q in levels {
+                        out.push(kernel.quantile(cum, q));
+                    }
+                    for tp in &t_pos {
+                        out.push(tp.map_or(f64::NAN, |p| QrfKernel::cdf(cum, p)));
+                    }
                 }
             }
         });
@@ -659,46 +668,26 @@ impl Forest {
         self.assert_output(output);
         assert_eq!(t.len(), x.nrows(), "one threshold per row is needed");
         let kernel = self.qrf_kernel(output);
-        let n_trees = self.trees.len();
-        let n = x.nrows();
-        let n_chunks = n.div_ceil(PREDICT_CHUNK);
-        let p = self.n_features;
-        let parts: Vec<Vec<f64>> = (0..n_chunks)
-            .into_par_iter()
-            .map_init(
-                || Scratch {
-                    rows: Vec::new(),
-                    leaves: Vec::new(),
-                    acc: vec![0.0; self.n_train],
-                },
-                |s, c| {
-                    let start = c * PREDICT_CHUNK;
-                    let end = (start + PREDICT_CHUNK).min(n);
-                    let m = end - start;
-                    copy_rows(&x, start, end, &mut s.rows);
-                    s.leaves.resize(n_trees * m, 0);
-                    for (ti, tree) in self.trees.iter().enumerate() {
-                        tree.apply_rows(&s.rows, p, &mut s.leaves[ti * m..(ti + 1) * m]);
+        let n = self.n_train;
+        let block = QrfKernel::block_rows(n);
+        self.map_chunks(x, block * n, |start, m, leaves, acc, out| {
+            out.reserve(m);
+            for r0 in (0..m).step_by(block) {
+                let nb = block.min(m - r0);
+                let acc = &mut acc[..nb * n];
+                acc.fill(0.0);
+                kernel.accumulate_block(leaves, m, r0, nb, acc);
+                for (i, cum) in acc.chunks_exact_mut(n).enumerate() {
+                    let tr = t[start + r0 + i];
+                    if tr.is_nan() {
+                        out.push(f64::NAN);
+                    } else {
+                        QrfKernel::cumulate(cum);
+                        out.push(QrfKernel::cdf(cum, kernel.threshold_position(tr)));
                     }
-                    (0..m)
-                        .map(|r| {
-                            let tr = t[start + r];
-                            if tr.is_nan() {
-                                return f64::NAN;
-                            }
-                            s.acc.fill(0.0);
-                            kernel.accumulate(
-                                (0..n_trees).map(|ti| s.leaves[ti * m + r]),
-                                &mut s.acc,
-                            );
-                            QrfKernel::cumulate(&mut s.acc);
-                            QrfKernel::cdf(&s.acc, kernel.threshold_position(tr))
-                        })
-                        .collect()
-                },
-            )
-            .collect();
-        parts.into_iter().flatten().collect()
+                }
+            }
+        })
     }
 
     /// Quantile-forest weights of the training rows for one query row (Meinshausen 2006):

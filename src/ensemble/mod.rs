@@ -190,6 +190,31 @@ pub(crate) fn check_weights(weights: Option<&[f64]>, n: usize) -> Result<Vec<f64
     }
 }
 
+/// Copies rows `start..end` of a (possibly strided) view into the layout the tree walk
+/// reads: row-major, each value twice, first with NaN replaced by +inf, then with NaN
+/// replaced by -inf. A split compares the first copy when missing values go right and the
+/// second when they go left, so one `>` sends NaN to its learned side without a branch.
+pub(crate) fn copy_rows_wide(x: &ArrayView2<f64>, start: usize, end: usize, buf: &mut Vec<f64>) {
+    buf.clear();
+    for r in start..end {
+        for &v in x.row(r) {
+            push_wide(buf, v);
+        }
+    }
+}
+
+/// Appends one value in the two-copy layout of [`copy_rows_wide`].
+#[inline]
+pub(crate) fn push_wide(buf: &mut Vec<f64>, v: f64) {
+    if v.is_nan() {
+        buf.push(f64::INFINITY);
+        buf.push(f64::NEG_INFINITY);
+    } else {
+        buf.push(v);
+        buf.push(v);
+    }
+}
+
 /// Copies rows of a (possibly strided) view into a contiguous row-major buffer.
 pub(crate) fn copy_rows(x: &ArrayView2<f64>, start: usize, end: usize, buf: &mut Vec<f64>) {
     buf.clear();

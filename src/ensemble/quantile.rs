@@ -15,7 +15,7 @@
 //! Quantile regression forests (Meinshausen 2006, JMLR 7:983-999) estimate
 //! `F(y | x) = sum_i w_i(x) 1{Y_i <= y}` with `w_i(x) = (1/k) sum_t c_it / C_t(x)` over the
 //! training rows `i` sharing the leaf of `x` in tree `t` (`c_it` is row `i`'s in-bag count times
-//! its sample weight, `C_t(x)` the leaf's total). The [`QrfKernel`] pre-sorts the training
+//! its sample weight, `C_t(x)` the leaf's total). The prediction kernel pre-sorts the training
 //! targets once, keeps each leaf's rows as positions in that order, accumulates the weights of a
 //! prediction row into a dense array and reads every requested level and threshold from one
 //! cumulative scan.
@@ -92,14 +92,34 @@ pub(crate) struct QrfKernel {
 }
 
 impl QrfKernel {
-    /// Adds the weights of the leaves `leaves[t]` (one per tree) into `acc` (length n_train).
-    #[inline]
-    pub fn accumulate(&self, leaves: impl Iterator<Item = u32>, acc: &mut [f64]) {
-        for (t, leaf) in leaves.enumerate() {
-            let g = self.tree_leaf_offset[t] + leaf as usize;
-            let (a, b) = (self.leaf_ptr[g] as usize, self.leaf_ptr[g + 1] as usize);
-            for (&p, &w) in self.pos[a..b].iter().zip(&self.weight[a..b]) {
-                acc[p as usize] += w;
+    /// Rows per accumulation block for `n_train` training rows: the block's accumulators
+    /// (`rows x n_train` floats) stay in the fast cache while each tree's leaves are added.
+    pub fn block_rows(n_train: usize) -> usize {
+        (8192 / n_train.max(1)).clamp(1, 64)
+    }
+
+    /// Adds, for rows `r0..r0 + nb` of a chunk of `m` rows whose leaf ids are stored
+    /// tree-major (`leaves[t * m + r]`), each tree's leaf weights into the row's accumulator
+    /// `acc[(r - r0) * n .. (r - r0 + 1) * n]`. Trees are the outer loop, so a tree's leaves
+    /// are read once per block rather than once per row; every accumulator still receives
+    /// its trees in tree order.
+    pub fn accumulate_block(
+        &self,
+        leaves: &[u32],
+        m: usize,
+        r0: usize,
+        nb: usize,
+        acc: &mut [f64],
+    ) {
+        let n = self.y_sorted.len();
+        for (t, &off) in self.tree_leaf_offset.iter().enumerate() {
+            let row_leaves = &leaves[t * m + r0..t * m + r0 + nb];
+            for (a_row, &leaf) in acc.chunks_exact_mut(n).zip(row_leaves) {
+                let g = off + leaf as usize;
+                let (a, b) = (self.leaf_ptr[g] as usize, self.leaf_ptr[g + 1] as usize);
+                for (&p, &w) in self.pos[a..b].iter().zip(&self.weight[a..b]) {
+                    a_row[p as usize] += w;
+                }
             }
         }
     }

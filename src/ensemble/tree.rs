@@ -5,14 +5,17 @@
 //! Split search is histogram-based (Ke et al. 2017, LightGBM, NeurIPS): large nodes accumulate
 //! per-bin sums of weight and weighted target for every feature, and a child's histogram is the
 //! parent's minus its sibling's (histogram subtraction), so only the smaller child is scanned.
-//! Small nodes sort their rows by bin code instead, which costs less than touching 255 bins.
+//! Smaller nodes sum only the features they try, into a 256-bin histogram of which only the
+//! bins holding rows are scanned and cleared (a 256-bit set lists them in order).
 //! Missing values (NaN, their own bin) try both sides at every split and the better side is
 //! kept (sparsity-aware split finding, Chen & Guestrin 2016, XGBoost, KDD); when a node saw no
 //! missing value for the chosen feature, missing values follow the child with more rows.
 //!
-//! A fitted [`Tree`] is a flat array of [`Node`]s: internal nodes hold a raw-valued threshold,
-//! leaves point to themselves. [`Tree::apply`] maps a row to its leaf id (0..n_leaves), and leaf
-//! values are stored per leaf and output.
+//! A fitted [`Tree`] is a flat array of its internal [`Node`]s, each holding a raw-valued
+//! threshold and two children; a child below the number of internal nodes is another node,
+//! one at or above it is a leaf (`child - n_internal` is the leaf id). Leaf ids number the
+//! leaves from left to right. [`Tree::apply`] maps a row to its leaf id (0..n_leaves), and
+//! leaf values are stored per leaf and output.
 
 use rand::RngExt;
 use rand::rngs::StdRng;
@@ -20,8 +23,8 @@ use serde::{Deserialize, Serialize};
 
 use super::binning::{BinMapper, MISSING_BIN};
 
-/// Sentinel in `leaf_of_node` for internal nodes.
-pub(crate) const NOT_LEAF: u32 = u32::MAX;
+/// Sentinel in the grower's `leaf_of_node` for internal nodes.
+const NOT_LEAF: u32 = u32::MAX;
 
 /// Nodes with at least `HIST_ROWS_PER_TRIED * p / n_try` rows (and at least this many) search
 /// splits on full histograms of every feature, passed on to children by subtraction; smaller
@@ -32,21 +35,23 @@ const HIST_MIN_ROWS: usize = 512;
 /// subtract, worth it only when many rows share the work.
 const HIST_ROWS_PER_TRIED: usize = 1024;
 
-/// Bit of [`Node`]'s packed feature field that sends missing values left.
-const MISSING_LEFT: u32 = 1 << 31;
+/// Bit of [`Node`]'s packed field that sends missing values left; the other bits hold the
+/// feature index times two, so that the packed field is the column to read in the two-copy
+/// row layout (see [`super::copy_rows_wide`]).
+const MISSING_LEFT: u32 = 1;
 
-/// One node of a fitted tree, 16 bytes. An internal node sends a row to its left child
-/// (`left`) when its value of the feature is `<= threshold` and to the right child
-/// (`left + 1`, siblings are stored side by side) when it is larger; a missing value (NaN)
-/// goes to the side learned at fitting. A leaf points to itself (`left` = its own index) with
-/// an infinite threshold, so a walk that reaches it stays there.
+/// One internal node of a fitted tree. A row goes to `left` when its value of the feature is
+/// `<= threshold` and to `right` when it is larger; a missing value (NaN) goes to the side
+/// learned at fitting. A child `c` is the internal node `c` when `c < n_internal`, else the
+/// leaf `c - n_internal`.
 #[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
 #[serde(from = "NodeRepr", into = "NodeRepr")]
 pub struct Node {
     threshold: f64,
-    /// Feature index, with [`MISSING_LEFT`] set when missing values go left.
+    /// `2 * feature + 1` when missing values go left, `2 * feature` otherwise.
     packed: u32,
     left: u32,
+    right: u32,
 }
 
 /// The written form of a [`Node`].
@@ -56,15 +61,19 @@ struct NodeRepr {
     threshold: f64,
     feature: u32,
     left: u32,
+    right: u32,
     missing_left: bool,
 }
 
 impl From<NodeRepr> for Node {
     fn from(r: NodeRepr) -> Node {
+        // an out-of-range feature stays out of range (and fails validation) instead of wrapping
+        let feature = r.feature.min(u32::MAX >> 1);
         Node {
             threshold: r.threshold,
-            packed: (r.feature & !MISSING_LEFT) | if r.missing_left { MISSING_LEFT } else { 0 },
+            packed: (feature << 1) | if r.missing_left { MISSING_LEFT } else { 0 },
             left: r.left,
+            right: r.right,
         }
     }
 }
@@ -75,6 +84,7 @@ impl From<Node> for NodeRepr {
             threshold: n.threshold,
             feature: n.feature(),
             left: n.left,
+            right: n.right,
             missing_left: n.missing_goes_left(),
         }
     }
@@ -82,28 +92,24 @@ impl From<Node> for NodeRepr {
 
 impl Node {
     /// Split threshold on the raw feature value (`f64::MAX`: every non-missing value goes
-    /// left; infinite for a leaf).
+    /// left).
     pub fn threshold(&self) -> f64 {
         self.threshold
     }
 
-    /// Feature (column) index tested by the split (0 for a leaf).
+    /// Feature (column) index tested by the split.
     pub fn feature(&self) -> u32 {
-        self.packed & !MISSING_LEFT
+        self.packed >> 1
     }
 
-    /// Index of the child for values `<= threshold` (the node itself for a leaf).
+    /// Child for values `<= threshold` (see [`Node`] for how leaves are numbered).
     pub fn left(&self) -> u32 {
         self.left
     }
 
-    /// Index of the child for values `> threshold` (the node itself for a leaf).
-    pub fn right(&self, own_index: u32) -> u32 {
-        if self.left == own_index {
-            own_index
-        } else {
-            self.left + 1
-        }
+    /// Child for values `> threshold`.
+    pub fn right(&self) -> u32 {
+        self.right
     }
 
     /// Whether missing values go to the left child.
@@ -111,29 +117,84 @@ impl Node {
         self.packed & MISSING_LEFT != 0
     }
 
-    /// Index of the next node for value `v` (branch-free).
+    /// Next child for a raw value `v` (NaN = missing).
     #[inline(always)]
     fn next(&self, v: f64) -> u32 {
-        let nan = v.is_nan();
-        let right = (v > self.threshold) | (nan & (self.packed & MISSING_LEFT == 0));
-        self.left + right as u32
+        let v = if !v.is_nan() {
+            v
+        } else if self.missing_goes_left() {
+            f64::NEG_INFINITY
+        } else {
+            f64::INFINITY
+        };
+        self.next_wide(v)
+    }
+
+    /// Next child for the value read from the two-copy layout at column `packed` (NaN
+    /// already replaced by the infinity that takes the learned side).
+    #[inline(always)]
+    fn next_wide(&self, v: f64) -> u32 {
+        if v > self.threshold {
+            self.right
+        } else {
+            self.left
+        }
     }
 }
 
 /// A fitted regression tree: flat node arrays, a leaf id per leaf node, and leaf values.
 #[derive(Clone, Debug, Serialize, Deserialize)]
+#[serde(from = "TreeRepr", into = "TreeRepr")]
 pub struct Tree {
+    /// Internal nodes; node 0 is the root (when there is any split).
     nodes: Vec<Node>,
-    /// Leaf id of each node, `u32::MAX` for internal nodes.
-    leaf_of_node: Vec<u32>,
+    /// `nodes` padded with copies of the root to a power-of-two length, for the block walk.
+    nodes_pow2: Vec<Node>,
     n_outputs: usize,
     /// Leaf values, `n_leaves x n_outputs`, row-major.
+    values: Vec<f64>,
+}
+
+/// The written form of a [`Tree`].
+#[derive(Serialize, Deserialize)]
+struct TreeRepr {
+    nodes: Vec<Node>,
+    n_outputs: usize,
     #[serde(with = "super::persist::exact_vec")]
     values: Vec<f64>,
 }
 
+impl From<TreeRepr> for Tree {
+    fn from(r: TreeRepr) -> Tree {
+        Tree::new(r.nodes, r.n_outputs, r.values)
+    }
+}
+
+impl From<Tree> for TreeRepr {
+    fn from(t: Tree) -> TreeRepr {
+        TreeRepr {
+            nodes: t.nodes,
+            n_outputs: t.n_outputs,
+            values: t.values,
+        }
+    }
+}
+
 impl Tree {
-    /// Number of nodes (internal and leaves).
+    fn new(nodes: Vec<Node>, n_outputs: usize, values: Vec<f64>) -> Tree {
+        let mut nodes_pow2 = nodes.clone();
+        if let Some(&root) = nodes.first() {
+            nodes_pow2.resize(nodes.len().next_power_of_two(), root);
+        }
+        Tree {
+            nodes,
+            nodes_pow2,
+            n_outputs,
+            values,
+        }
+    }
+
+    /// Number of internal nodes (splits).
     pub fn n_nodes(&self) -> usize {
         self.nodes.len()
     }
@@ -148,20 +209,21 @@ impl Tree {
         self.n_outputs
     }
 
-    /// The flat node array (node 0 is the root).
+    /// The internal nodes (node 0 is the root; empty when the tree is a single leaf).
     pub fn nodes(&self) -> &[Node] {
         &self.nodes
     }
 
     /// Largest number of splits from the root to a leaf.
     pub fn depth(&self) -> usize {
-        let mut depth = vec![0usize; self.nodes.len()];
+        let n_int = self.nodes.len();
+        let mut depth = vec![0usize; n_int];
         let mut max = 0;
         for (i, nd) in self.nodes.iter().enumerate() {
-            if nd.left as usize != i {
-                for c in [nd.left, nd.left + 1] {
+            max = max.max(depth[i] + 1);
+            for c in [nd.left, nd.right] {
+                if (c as usize) < n_int {
                     depth[c as usize] = depth[i] + 1;
-                    max = max.max(depth[i] + 1);
                 }
             }
         }
@@ -173,15 +235,13 @@ impl Tree {
     /// # Panics
     /// If `row` is shorter than the number of features the tree was grown on.
     pub fn apply(&self, row: &[f64]) -> usize {
-        let mut i = 0usize;
-        loop {
-            let nd = &self.nodes[i];
-            let next = nd.next(row[nd.feature() as usize]) as usize;
-            if next == i {
-                return self.leaf_of_node[i] as usize;
-            }
-            i = next;
+        let n_int = self.nodes.len();
+        let mut c = 0usize;
+        while c < n_int {
+            let nd = &self.nodes[c];
+            c = nd.next(row[nd.feature() as usize]) as usize;
         }
+        c - n_int
     }
 
     /// Value of output `output` in leaf `leaf`.
@@ -199,109 +259,95 @@ impl Tree {
         self.leaf_values(self.apply(row))
     }
 
-    /// Leaf ids of a block of rows (row-major, `p` values per row), written to `out`.
+    /// Leaf ids of a block of rows with `p` features in the two-copy layout of
+    /// [`super::copy_rows_wide`] (`2 p` values per row), written to `out`.
     pub(crate) fn apply_rows(&self, rows: &[f64], p: usize, out: &mut [u32]) {
-        self.walk(rows, |r| r * p, out);
+        self.walk(rows, |r| r * 2 * p, out);
     }
 
-    /// Leaf ids of the rows `which` of a row-major table with `p` columns.
+    /// Leaf ids of the rows `which` of a table with `p` features in the two-copy layout.
     pub(crate) fn apply_selected(&self, table: &[f64], p: usize, which: &[u32], out: &mut [u32]) {
-        self.walk(table, |r| which[r] as usize * p, out);
+        self.walk(table, |r| which[r] as usize * 2 * p, out);
     }
 
-    /// Walks `out.len()` rows, row `r` starting at `data[offset(r)]`. Several rows walk the
-    /// tree in lockstep so that their memory loads overlap; a walk that reaches a leaf stays
-    /// there, and the block stops when no row moved.
+    /// Walks `out.len()` rows, row `r` starting at `data[offset(r)]`, one level at a time
+    /// over blocks of rows: each pass moves every row still at an internal node one step and
+    /// keeps only those rows for the next pass. The rows' steps are independent, so their
+    /// memory loads overlap, and the pass has no data-dependent branch.
     #[inline(always)]
     fn walk(&self, data: &[f64], offset: impl Fn(usize) -> usize, out: &mut [u32]) {
-        const LANES: usize = 8;
-        let nodes = &self.nodes[..];
-        let n = out.len();
-        let mut r0 = 0;
-        while r0 + LANES <= n {
-            let base: [usize; LANES] = std::array::from_fn(|j| offset(r0 + j));
-            let mut idx = [0u32; LANES];
-            loop {
-                let mut moved = 0u32;
-                for (cur, &b) in idx.iter_mut().zip(&base) {
-                    let nd = &nodes[*cur as usize];
-                    let next = nd.next(data[b + nd.feature() as usize]);
-                    moved |= next ^ *cur;
-                    *cur = next;
-                }
-                if moved == 0 {
-                    break;
-                }
-            }
-            for (o, &i) in out[r0..r0 + LANES].iter_mut().zip(&idx) {
-                *o = self.leaf_of_node[i as usize];
-            }
-            r0 += LANES;
+        // Fixed-size scratch indexed with `& (BLOCK - 1)` needs no bounds checks; the node
+        // array is padded to a power of two (`nodes_pow2`) for the same reason.
+        const BLOCK: usize = 128;
+        const MASK: usize = BLOCK - 1;
+        let n_int = self.nodes.len() as u32;
+        out.fill(0);
+        if n_int == 0 {
+            return;
         }
-        for (r, o) in out.iter_mut().enumerate().skip(r0) {
-            let b = offset(r);
-            let mut i = 0u32;
-            loop {
-                let nd = &nodes[i as usize];
-                let next = nd.next(data[b + nd.feature() as usize]);
-                if next == i {
-                    break;
-                }
-                i = next;
+        let nodes = &self.nodes_pow2[..];
+        let node_mask = nodes.len() - 1;
+        let mut cur = [0u32; BLOCK];
+        let mut off = [0usize; BLOCK];
+        let mut act_in = [0u8; BLOCK];
+        let mut act_out = [0u8; BLOCK];
+        for (b, block) in out.chunks_mut(BLOCK).enumerate() {
+            let r0 = b * BLOCK;
+            let mut na = block.len();
+            for r in 0..na {
+                cur[r & MASK] = 0;
+                off[r & MASK] = offset(r0 + r);
+                act_in[r & MASK] = r as u8;
             }
-            *o = self.leaf_of_node[i as usize];
+            while na > 0 {
+                let mut k = 0;
+                for i in 0..na {
+                    let r = act_in[i & MASK] as usize;
+                    let nd = &nodes[cur[r & MASK] as usize & node_mask];
+                    let next = nd.next_wide(data[off[r & MASK] + nd.packed as usize]);
+                    cur[r & MASK] = next;
+                    act_out[k & MASK] = r as u8;
+                    k += usize::from(next < n_int);
+                }
+                std::mem::swap(&mut act_in, &mut act_out);
+                na = k;
+            }
+            for (r, o) in block.iter_mut().enumerate() {
+                *o = cur[r & MASK] - n_int;
+            }
         }
     }
 
     /// Replaces the leaf values (`n_leaves x n_outputs`, row-major).
     pub(crate) fn set_values(&mut self, n_outputs: usize, values: Vec<f64>) {
-        debug_assert_eq!(values.len(), self.n_leaves_from_nodes() * n_outputs);
+        debug_assert_eq!(values.len(), (self.nodes.len() + 1) * n_outputs);
         self.n_outputs = n_outputs;
         self.values = values;
     }
 
-    fn n_leaves_from_nodes(&self) -> usize {
-        self.leaf_of_node.iter().filter(|&&l| l != NOT_LEAF).count()
-    }
-
-    /// Checks internal consistency (used after loading a model from a file).
+    /// Checks internal consistency (used after loading a model from a file): a binary tree
+    /// has one more leaf than internal nodes, children come after their parent (so every walk
+    /// ends), every node but the root and every leaf is reached exactly once.
     pub(crate) fn validate(&self, n_features: usize) -> Result<(), String> {
-        let nn = self.nodes.len();
-        if nn == 0 || self.leaf_of_node.len() != nn || self.n_outputs == 0 {
-            return Err("tree has no nodes or mismatched node arrays".into());
-        }
-        let n_leaves = self.n_leaves_from_nodes();
-        if self.values.len() != n_leaves * self.n_outputs {
+        let n_int = self.nodes.len();
+        let n_leaves = n_int + 1;
+        if self.n_outputs == 0 || self.values.len() != n_leaves * self.n_outputs {
             return Err(format!(
-                "tree has {n_leaves} leaves but {} leaf values for {} outputs",
+                "tree has {n_int} splits but {} leaf values for {} outputs",
                 self.values.len(),
                 self.n_outputs
             ));
         }
-        let mut seen = vec![false; n_leaves];
+        let mut seen = vec![false; n_int + n_leaves];
         for (i, nd) in self.nodes.iter().enumerate() {
-            let is_leaf = nd.left as usize == i;
-            let leaf = self.leaf_of_node[i];
-            if is_leaf {
-                // a leaf must keep every value (and NaN) on itself
-                if nd.threshold != f64::INFINITY || !nd.missing_goes_left() {
-                    return Err(format!("leaf node {i} does not point to itself"));
+            if nd.feature() as usize >= n_features || nd.threshold.is_nan() {
+                return Err(format!("node {i} is malformed"));
+            }
+            for c in [nd.left as usize, nd.right as usize] {
+                if c <= i || c >= n_int + n_leaves || seen[c] {
+                    return Err(format!("node {i} has an invalid child"));
                 }
-                if leaf as usize >= n_leaves || seen[leaf as usize] {
-                    return Err(format!("leaf node {i} has an invalid leaf id"));
-                }
-                seen[leaf as usize] = true;
-            } else {
-                // children come after their parent, so every walk ends at a leaf
-                let l = nd.left as usize;
-                if leaf != NOT_LEAF
-                    || l <= i
-                    || l + 1 >= nn
-                    || nd.feature() as usize >= n_features
-                    || nd.threshold.is_nan()
-                {
-                    return Err(format!("internal node {i} is malformed"));
-                }
+                seen[c] = true;
             }
         }
         Ok(())
@@ -455,6 +501,8 @@ struct Grower<'a> {
 impl Grower<'_> {
     fn run(&mut self, mut rows: Vec<u32>, rng: &mut StdRng) -> Grown {
         let p = self.data.p;
+        // while growing, `nodes` holds every node (leaves point to themselves); the fitted
+        // tree keeps only the internal ones
         let mut nodes: Vec<Node> = vec![leaf_node(0)];
         let mut leaf_of_node: Vec<u32> = vec![NOT_LEAF];
         let mut leaf_ranges: Vec<(usize, usize)> = Vec::new();
@@ -551,8 +599,9 @@ impl Grower<'_> {
             let (li, ri) = (nodes.len(), nodes.len() + 1);
             nodes[node] = Node {
                 threshold: self.data.mapper.threshold(f, bin),
-                packed: f as u32 | if missing_left { MISSING_LEFT } else { 0 },
+                packed: ((f as u32) << 1) | if missing_left { MISSING_LEFT } else { 0 },
                 left: li as u32,
+                right: ri as u32,
             };
             nodes.push(leaf_node(li as u32));
             nodes.push(leaf_node(ri as u32));
@@ -628,12 +677,7 @@ impl Grower<'_> {
         }
 
         Grown {
-            tree: Tree {
-                nodes,
-                leaf_of_node,
-                n_outputs: self.k,
-                values: Vec::new(),
-            },
+            tree: compact(&nodes, &leaf_of_node, self.k),
             rows,
             leaf_ranges,
             gains,
@@ -1075,7 +1119,36 @@ fn leaf_node(i: u32) -> Node {
         threshold: f64::INFINITY,
         packed: MISSING_LEFT,
         left: i,
+        right: i,
     }
+}
+
+/// Keeps the internal nodes of a grown tree (in growing order, so children still come after
+/// their parents) and points their leaf children at `n_internal + leaf id`.
+fn compact(nodes: &[Node], leaf_of_node: &[u32], k: usize) -> Tree {
+    let mut new_index = vec![0u32; nodes.len()];
+    let mut n_int = 0u32;
+    for (i, &l) in leaf_of_node.iter().enumerate() {
+        if l == NOT_LEAF {
+            new_index[i] = n_int;
+            n_int += 1;
+        }
+    }
+    let map = |c: u32| match leaf_of_node[c as usize] {
+        NOT_LEAF => new_index[c as usize],
+        leaf => n_int + leaf,
+    };
+    let internal = nodes
+        .iter()
+        .zip(leaf_of_node)
+        .filter(|(_, l)| **l == NOT_LEAF)
+        .map(|(nd, _)| Node {
+            left: map(nd.left),
+            right: map(nd.right),
+            ..*nd
+        })
+        .collect();
+    Tree::new(internal, k, Vec::new())
 }
 
 #[cfg(test)]
@@ -1119,6 +1192,49 @@ mod tests {
         let g = grow_simple(&x, &y, 1);
         assert_eq!(g.leaf_ranges.len(), 2);
         assert_eq!(g.tree.apply(&[f64::NAN]), g.tree.apply(&[11.0]));
+    }
+
+    #[test]
+    fn block_walk_agrees_with_single_row_walk() {
+        // missing values in both features, so splits learn both missing directions
+        let n = 600;
+        let x = Array2::from_shape_fn((n, 2), |(i, j)| {
+            if (i + 3 * j) % 7 == 0 {
+                f64::NAN
+            } else {
+                ((i * (13 + 17 * j)) % 97) as f64
+            }
+        });
+        let y: Vec<f64> = (0..n)
+            .map(|i| {
+                let a = if x[[i, 0]].is_nan() { 200.0 } else { x[[i, 0]] };
+                let b = if x[[i, 1]].is_nan() { -50.0 } else { x[[i, 1]] };
+                a - b
+            })
+            .collect();
+        let g = grow_simple(&x, &y, 2);
+        let t = &g.tree;
+        let ml = t.nodes().iter().filter(|nd| nd.missing_goes_left()).count();
+        assert!(ml > 0 && ml < t.n_nodes());
+        // query rows: training values, thresholds exactly, NaN and infinities
+        let mut q: Vec<[f64; 2]> = (0..n).map(|i| [x[[i, 0]], x[[i, 1]]]).collect();
+        for nd in t.nodes() {
+            q.push([nd.threshold(), f64::NAN]);
+            q.push([f64::NAN, nd.threshold()]);
+        }
+        q.push([f64::INFINITY, f64::NEG_INFINITY]);
+        q.push([f64::NEG_INFINITY, f64::INFINITY]);
+        let mut wide = Vec::new();
+        for r in &q {
+            for &v in r {
+                super::super::push_wide(&mut wide, v);
+            }
+        }
+        let mut out = vec![0u32; q.len()];
+        t.apply_rows(&wide, 2, &mut out);
+        for (r, &leaf) in q.iter().zip(&out) {
+            assert_eq!(t.apply(r), leaf as usize, "row {r:?}");
+        }
     }
 
     #[test]

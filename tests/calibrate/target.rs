@@ -217,6 +217,8 @@ fn end_correction_reduces_top_decile_bias() {
     let cal = calibrate_target(&d, &s).unwrap();
     let e = &cal.diagnostics.end_correction;
     assert!(e.kept, "{}", e.reason);
+    assert_eq!(e.scores.len(), 5);
+    assert!(e.strength > 0.0 && e.mse_after < e.mse_before);
     assert!(
         e.bias_top_before < 0.0 && e.bias_bottom_before > 0.0,
         "{e:?}"

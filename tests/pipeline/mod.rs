@@ -1,1 +1,6 @@
-//! Integration tests: pipeline.
+//! End-to-end tests of the main job on small generated fields.
+
+mod end_to_end;
+mod infill;
+mod report;
+mod truth;

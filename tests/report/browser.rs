@@ -178,14 +178,20 @@ fn start_driver() -> Driver {
 
 #[test]
 fn page_renders_in_headless_chromium() {
-    require_browser();
     let dir = tempfile::tempdir().unwrap();
     let input = sample_input(dir.path());
     let page = write_html(&input, dir.path()).unwrap();
     let html = std::fs::read_to_string(&page).unwrap();
     let n_images = check_self_contained(&html);
     assert!(n_images > 20);
+    check_page_in_browser(&page, n_images, "Skerrow Bank");
+}
 
+/// Opens `page` from disk in headless Chromium and checks: `n_images` images that all decode
+/// (naturalWidth > 0), no scripts, seven sections, a title containing `title`, no console errors,
+/// and a screenshot that is not blank.
+pub(crate) fn check_page_in_browser(page: &std::path::Path, n_images: usize, title: &str) {
+    require_browser();
     let profile = tempfile::tempdir().unwrap();
     let mut driver = start_driver();
     let caps = json!({
@@ -257,12 +263,7 @@ fn page_renders_in_headless_chromium() {
     );
     assert_eq!(facts["scripts"], json!(0));
     assert_eq!(facts["sections"], json!(7));
-    assert!(
-        facts["title"]
-            .as_str()
-            .unwrap_or("")
-            .contains("Skerrow Bank")
-    );
+    assert!(facts["title"].as_str().unwrap_or("").contains(title));
 
     let log = ok(
         http(

@@ -1,7 +1,7 @@
 //! Integration tests: report (colour maps, pictures, HTML page, headless-browser check).
 
-mod browser;
+pub(crate) mod browser;
 mod colormap;
 mod fixture;
-mod html;
+pub(crate) mod html;
 mod picture;

@@ -1,1 +1,0 @@
-//! pipeline (placeholder, see its issue).

@@ -1,0 +1,77 @@
+//! The main job, end to end: `run` (fit, calibrate, map, rank, report), `predict` (apply a saved
+//! model, optionally to one tile of the grid) and `score` (maps against a synthetic field's truth).
+//!
+//! The pipeline is glue: every number it writes comes from [`crate::calibrate`],
+//! [`crate::applicability`] and [`crate::decide`]. What it owns is the file layout of a results
+//! folder, the P10/P50/P90 labels, provenance (`run.json`) and the refusal to write over inputs.
+
+pub mod model;
+pub mod outputs;
+pub mod pictures;
+pub mod predict;
+pub mod run;
+pub mod score;
+pub mod studies;
+
+use std::path::PathBuf;
+
+/// Cautions printed with every result: in the README, `run.json`, `summary.json` and the report.
+pub const CAUTIONS: &[&str] = &[
+    "These maps and rankings are decision support, not a reserves estimate.",
+    "Bands and probabilities are calibrated on the wells available; they cannot anticipate effects \
+     that no well has sampled. Predictions outside the area of applicability are extrapolations.",
+    "Have results reviewed by qualified reservoir engineers and geoscientists before they inform \
+     drilling, development or reserves decisions or any disclosure, and follow the rules and \
+     reporting standards that apply where the field lies.",
+];
+
+/// Errors of the pipeline. Each wraps the error of the stage it came from.
+#[derive(Debug, thiserror::Error)]
+pub enum PipelineError {
+    /// Loading or checking the project failed.
+    #[error(transparent)]
+    Project(#[from] crate::project::ProjectError),
+    /// Reading or writing a file failed.
+    #[error(transparent)]
+    Io(#[from] crate::io::IoError),
+    /// Calibration of a target failed.
+    #[error("target {target}: {source}")]
+    Calibrate {
+        /// Target name.
+        target: String,
+        /// Cause.
+        source: crate::calibrate::CalibrateError,
+    },
+    /// Fitting a forest for importance failed.
+    #[error(transparent)]
+    Ensemble(#[from] crate::ensemble::EnsembleError),
+    /// The area of applicability could not be built.
+    #[error(transparent)]
+    Applicability(#[from] crate::applicability::ApplicabilityError),
+    /// Infill ranking failed.
+    #[error(transparent)]
+    Decide(#[from] crate::decide::DecideError),
+    /// Drawing a picture or the report failed.
+    #[error(transparent)]
+    Report(#[from] crate::report::ReportError),
+    /// A saved model or results folder does not fit what is asked of it.
+    #[error("{0}")]
+    Invalid(String),
+    /// JSON (de)serialisation failed.
+    #[error("{path}: {source}")]
+    Json {
+        /// File concerned.
+        path: PathBuf,
+        /// Cause.
+        source: serde_json::Error,
+    },
+}
+
+impl PipelineError {
+    pub(crate) fn json(path: impl Into<PathBuf>, source: serde_json::Error) -> Self {
+        Self::Json {
+            path: path.into(),
+            source,
+        }
+    }
+}

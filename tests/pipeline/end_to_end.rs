@@ -1,0 +1,333 @@
+//! `run`, `score`, `predict` on a small generated field: files, GDAL readability, pictures,
+//! reproducibility, tiles, refusal to write over inputs.
+
+use std::path::{Path, PathBuf};
+use std::process::Command;
+use std::sync::OnceLock;
+use tidemark::pipeline::outputs::Formats;
+use tidemark::pipeline::predict::{Tile, predict};
+use tidemark::pipeline::run::{RunOptions, run};
+use tidemark::synth::{SynthSettings, generate, write_project};
+
+/// A generated project and one finished run on it, shared by the tests of this binary.
+pub struct Fixture {
+    /// Folder holding everything.
+    pub root: PathBuf,
+    /// The project manifest.
+    pub project: PathBuf,
+    /// The results folder.
+    pub out: PathBuf,
+}
+
+/// Small field: quick to run, large enough for the statistics to mean something.
+pub fn small_settings(seed: u64) -> SynthSettings {
+    SynthSettings {
+        seed,
+        nx: 64,
+        ny: 52,
+        spacing: 50.0,
+        wells: 44,
+        steps: 3,
+        ..SynthSettings::default()
+    }
+}
+
+/// Writes a generated project under `dir` and returns its manifest path. The report's studies
+/// are made light so that the suite stays fast.
+pub fn make_project(dir: &Path, seed: u64) -> PathBuf {
+    if dir.exists() {
+        std::fs::remove_dir_all(dir).unwrap();
+    }
+    let settings = small_settings(seed);
+    let field = generate(&settings).expect("generate");
+    write_project(&field, &settings, dir).expect("write project");
+    let manifest = dir.join("project.toml");
+    let text = std::fs::read_to_string(&manifest).unwrap();
+    let text = text.replace("[report]\n", "[report]\nlearning_curve_repeats = 2\n");
+    assert!(
+        text.contains("learning_curve_repeats = 2"),
+        "the synthetic manifest has a [report] table"
+    );
+    std::fs::write(&manifest, text).unwrap();
+    manifest
+}
+
+/// The shared fixture (built once).
+pub fn fixture() -> &'static Fixture {
+    static F: OnceLock<Fixture> = OnceLock::new();
+    F.get_or_init(|| {
+        let root = PathBuf::from(env!("CARGO_TARGET_TMPDIR")).join("pipeline-fixture");
+        let project = make_project(&root.join("field"), 11);
+        let out = root.join("results");
+        if out.exists() {
+            std::fs::remove_dir_all(&out).unwrap();
+        }
+        run(&RunOptions::new(&project, &out)).expect("run");
+        tidemark::pipeline::score::score_and_report(&out, &root.join("field")).expect("score");
+        Fixture { root, project, out }
+    })
+}
+
+fn tifs_under(dir: &Path) -> Vec<PathBuf> {
+    let mut out = Vec::new();
+    for e in std::fs::read_dir(dir).unwrap() {
+        let p = e.unwrap().path();
+        if p.is_dir() {
+            out.extend(tifs_under(&p));
+        } else if p.extension().is_some_and(|x| x == "tif") {
+            out.push(p);
+        }
+    }
+    out.sort();
+    out
+}
+
+#[test]
+fn every_expected_file_exists_and_gdal_reads_each_map() {
+    let f = fixture();
+    let o = &f.out;
+    for file in [
+        "run.json",
+        "summary.json",
+        "model.json",
+        "targets.csv",
+        "report.html",
+        "truth-score.json",
+        "maps/metadata.json",
+    ] {
+        assert!(o.join(file).is_file(), "missing {file}");
+    }
+    for step in ["m1", "m2", "m3"] {
+        for t in ["dP", "dSw", "dSg"] {
+            for s in ["p50", "p10", "p90"] {
+                for ext in ["tif", "xyz"] {
+                    let p = o.join(format!("maps/{step}/{t}_{s}.{ext}"));
+                    assert!(p.is_file(), "missing {}", p.display());
+                }
+            }
+        }
+        for m in [
+            "dSw_exceed_swept",
+            "dP_exceed_depleted",
+            "dSg_exceed_gas_out",
+            "applicability",
+            "inside",
+            "outside_range",
+        ] {
+            assert!(o.join(format!("maps/{step}/{m}.tif")).is_file(), "{m}");
+        }
+    }
+    // Outside check: GDAL (Debian gdal-bin) opens every map and sees the project's grid.
+    let grid = tidemark::project::Project::load(&f.project).unwrap().grid;
+    let tifs = tifs_under(&o.join("maps"));
+    assert!(tifs.len() >= 3 * 15, "only {} maps", tifs.len());
+    for tif in tifs {
+        let out = Command::new("gdalinfo")
+            .arg("-json")
+            .arg(&tif)
+            .output()
+            .expect("gdalinfo is needed (Debian gdal-bin; .ci/test installs it)");
+        assert!(out.status.success(), "gdalinfo failed on {}", tif.display());
+        let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+        assert_eq!(v["size"][0].as_u64(), Some(grid.nx as u64));
+        assert_eq!(v["size"][1].as_u64(), Some(grid.ny as u64));
+    }
+}
+
+fn png_size_and_variance(path: &Path) -> (u32, u32, f64) {
+    let decoder = png::Decoder::new(std::io::BufReader::new(std::fs::File::open(path).unwrap()));
+    let mut reader = decoder.read_info().unwrap();
+    let mut buf = vec![0; reader.output_buffer_size()];
+    let info = reader.next_frame(&mut buf).unwrap();
+    let px = &buf[..info.buffer_size()];
+    let n = px.len() as f64;
+    let mean = px.iter().map(|&v| f64::from(v)).sum::<f64>() / n;
+    let var = px
+        .iter()
+        .map(|&v| (f64::from(v) - mean).powi(2))
+        .sum::<f64>()
+        / n;
+    (info.width, info.height, var)
+}
+
+#[test]
+fn pictures_have_the_expected_size_and_are_not_blank() {
+    let f = fixture();
+    let dir = f.out.join("pictures");
+    let mut seen = 0;
+    for step in ["m1", "m3"] {
+        for name in ["dSw_p50", "dSw_width", "dSw_exceed_swept", "applicability"] {
+            let p = dir.join(step).join(format!("{name}.png"));
+            let (w, h, var) = png_size_and_variance(&p);
+            assert_eq!(
+                (w, h),
+                tidemark::pipeline::pictures::MAP_SIZE,
+                "{}",
+                p.display()
+            );
+            assert!(var > 50.0, "{} looks blank (variance {var})", p.display());
+            seen += 1;
+        }
+    }
+    assert_eq!(seen, 8);
+}
+
+#[test]
+fn infill_targets_respect_spacing_and_applicability() {
+    let f = fixture();
+    let project = tidemark::project::Project::load(&f.project).unwrap();
+    let spec = project
+        .infill
+        .clone()
+        .expect("the synthetic project asks for infill targets");
+    let csv = std::fs::read_to_string(f.out.join("targets.csv")).unwrap();
+    let mut rows = csv.lines();
+    assert!(
+        rows.next()
+            .unwrap()
+            .starts_with("rank,x,y,chance,risked_volume")
+    );
+    let targets: Vec<Vec<String>> = rows
+        .map(|l| l.split(',').map(str::to_string).collect())
+        .collect();
+    assert!(!targets.is_empty());
+    let last = project.steps.last().unwrap().name.clone();
+    let inside =
+        tidemark::io::geotiff::read(&f.out.join(format!("maps/{last}/inside.tif"))).unwrap();
+    let g = &inside.grid;
+    for (a, t) in targets.iter().enumerate() {
+        let (x, y): (f64, f64) = (t[1].parse().unwrap(), t[2].parse().unwrap());
+        let d: f64 = t[6].parse().unwrap();
+        assert!(
+            d >= spec.min_well_spacing,
+            "target {a} at {d} m from a well"
+        );
+        let (fi, fj) = g.fractional_ij(x, y);
+        let k = g.index(fi.round() as usize, fj.round() as usize);
+        assert_eq!(
+            inside.values[k], 1.0,
+            "target {a} outside the area of applicability"
+        );
+        for u in &targets[a + 1..] {
+            let (ux, uy): (f64, f64) = (u[1].parse().unwrap(), u[2].parse().unwrap());
+            assert!((x - ux).hypot(y - uy) >= spec.min_target_spacing);
+        }
+    }
+}
+
+#[test]
+fn same_seed_same_maps_and_tiles_put_together_equal_the_whole() {
+    let f = fixture();
+    // A second run of the same project and seed, maps only, on one thread.
+    let again = f.root.join("again");
+    if again.exists() {
+        std::fs::remove_dir_all(&again).unwrap();
+    }
+    let mut opts = RunOptions::new(&f.project, &again);
+    opts.pictures = false;
+    opts.report = false;
+    opts.formats = Formats {
+        geotiff: true,
+        xyz: false,
+    };
+    rayon::ThreadPoolBuilder::new()
+        .num_threads(1)
+        .build()
+        .unwrap()
+        .install(|| run(&opts))
+        .expect("second run");
+    for tif in tifs_under(&f.out.join("maps")) {
+        let rel = tif.strip_prefix(&f.out).unwrap();
+        let a = std::fs::read(&tif).unwrap();
+        let b = std::fs::read(again.join(rel)).unwrap();
+        assert!(a == b, "{} differs between runs", rel.display());
+    }
+    // Three tiles of the saved model, put together, equal the whole run.
+    let model = f.out.join("model.json");
+    let project = tidemark::project::Project::load(&f.project).unwrap();
+    let ny = project.grid.ny;
+    let formats = Formats {
+        geotiff: true,
+        xyz: false,
+    };
+    let mut tiles = Vec::new();
+    for i in 1..=3 {
+        let dir = f.root.join(format!("tile{i}"));
+        if dir.exists() {
+            std::fs::remove_dir_all(&dir).unwrap();
+        }
+        let tile = Tile { index: i, count: 3 };
+        predict(&model, &f.project, &dir, Some(tile), formats).expect("tile");
+        tiles.push((tile, dir));
+    }
+    for name in ["dSw_p50", "dP_p10", "dSg_exceed_gas_out", "applicability"] {
+        let whole =
+            tidemark::io::geotiff::read(&f.out.join(format!("maps/m2/{name}.tif"))).unwrap();
+        let mut stitched: Vec<f64> = Vec::new();
+        for (tile, dir) in &tiles {
+            let part =
+                tidemark::io::geotiff::read(&dir.join(format!("maps/m2/{name}.tif"))).unwrap();
+            assert_eq!(part.grid, tile.grid(&whole.grid), "tile geometry");
+            stitched.extend(part.values);
+        }
+        assert_eq!(stitched.len(), ny * project.grid.nx);
+        for (k, (a, b)) in whole.values.iter().zip(&stitched).enumerate() {
+            assert!(
+                a == b || (a.is_nan() && b.is_nan()),
+                "{name} node {k}: whole {a}, tiles {b}"
+            );
+        }
+    }
+}
+
+#[test]
+fn refuses_an_output_folder_that_holds_the_inputs() {
+    let f = fixture();
+    let field = f.project.parent().unwrap();
+    let e = run(&RunOptions::new(&f.project, field))
+        .err()
+        .expect("must refuse");
+    assert!(e.to_string().contains("holds the input"), "{e}");
+    let e = run(&RunOptions::new(&f.project, f.root.clone()))
+        .err()
+        .expect("a parent of the inputs must be refused too");
+    assert!(e.to_string().contains("holds the input"), "{e}");
+}
+
+#[test]
+fn run_json_records_provenance_and_cautions() {
+    let f = fixture();
+    let v: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(f.out.join("run.json")).unwrap()).unwrap();
+    assert_eq!(v["version"], env!("CARGO_PKG_VERSION"));
+    assert!(v["inputs"].as_array().unwrap().len() >= 3 * 8 + 2);
+    for h in v["inputs"].as_array().unwrap() {
+        assert_eq!(h["sha256"].as_str().unwrap().len(), 64);
+    }
+    let cautions = v["cautions"].to_string();
+    assert!(cautions.contains("not a reserves estimate"));
+    assert!(v["timings"].as_array().unwrap().len() >= 4);
+    assert!(
+        v["convention"]
+            .as_str()
+            .unwrap()
+            .contains("P10 is the low value")
+    );
+}
+
+#[test]
+fn the_binary_refuses_a_bad_tile_and_names_it() {
+    let f = fixture();
+    let out = Command::new(env!("CARGO_BIN_EXE_tidemark"))
+        .args(["predict"])
+        .arg(f.out.join("model.json"))
+        .arg(&f.project)
+        .args(["--out"])
+        .arg(f.root.join("bad-tile"))
+        .args(["--tile", "4/3"])
+        .output()
+        .unwrap();
+    assert!(!out.status.success());
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(err.contains("--tile expects i/N"), "{err}");
+}
