@@ -333,6 +333,37 @@ pub fn water_fronts(
     out
 }
 
+/// Fraction (0..1) of the maximum water-saturation gain swept by the lobe's own aquifer at every
+/// node, `t` years after the base: a front enters the lobe from its far side (away from the crest)
+/// and advances at `lobe_aquifer_rate` m/year, with a smooth edge; outside the lobe it is 0.
+pub fn lobe_sweep(res: &Reservoir, s: &SynthSettings, t: f64) -> Vec<f64> {
+    let (lx, ly) = res.lobe_centre;
+    let (cx, cy) = res.crest;
+    let len = (lx - cx).hypot(ly - cy);
+    let (ux, uy) = if len > 0.0 {
+        ((lx - cx) / len, (ly - cy) / len)
+    } else {
+        (-1.0, 0.0)
+    };
+    // the front starts at the far edge of the lobe and moves towards the crest
+    let (ex, ey) = (
+        lx + 1.2 * res.lobe_radius * ux,
+        ly + 1.2 * res.lobe_radius * uy,
+    );
+    let travel = s.lobe_aquifer_rate * t;
+    let edge = (0.1 * res.lobe_radius).max(res.spacing);
+    (0..res.len())
+        .map(|i| {
+            if t <= 0.0 || res.lobe[i] < 1e-3 {
+                return 0.0;
+            }
+            let (x, y) = res.node_local(i);
+            let d = (ex - x) * ux + (ey - y) * uy;
+            res.lobe[i] / (1.0 + ((d - travel) / edge).exp())
+        })
+        .collect()
+}
+
 /// Gas saturation released from an oil at its initial saturation when the pressure is `p` and the
 /// bubble point `pb` (MPa).
 pub fn released_gas(p: f64, pb: f64, s: &SynthSettings) -> f64 {

@@ -128,9 +128,9 @@ pub struct SynthSettings {
     pub structure_roughness: f64,
     /// Fraction of each compartment whose top sand lies above its oil-water contact \[0.75\].
     pub oil_area_fraction: f64,
-    /// Mean net thickness of the upper sand, m \[14\] (the lower sand: 85 % of it).
+    /// Mean net thickness of the upper sand, m \[16\] (the lower sand: 85 % of it).
     pub sand_thickness: f64,
-    /// Standard deviation of net sand thickness, m \[7\]; thinner than 0 means the sand pinches out.
+    /// Standard deviation of net sand thickness, m \[8\]; thinner than 0 means the sand pinches out.
     pub sand_thickness_sd: f64,
     /// Mean thickness of the shale between the sands, m \[7\].
     pub interbed_thickness: f64,
@@ -158,6 +158,10 @@ pub struct SynthSettings {
     pub lobe_thickness: f64,
     /// Extra porosity in the lobe \[0.04\].
     pub lobe_porosity: f64,
+    /// Structural relief of the drape high over the lobe, m \[30\].
+    pub lobe_relief: f64,
+    /// Advance of the lobe's own aquifer front, m/year \[300\]; 0 leaves the lobe to the wells.
+    pub lobe_aquifer_rate: f64,
 
     /// Temperature at the datum, C \[6\].
     pub surface_temperature: f64,
@@ -217,7 +221,7 @@ pub struct SynthSettings {
     /// Shale P velocity gradient with depth, 1/s \[0.5\].
     pub shale_vp_gradient: f64,
 
-    /// Ricker peak frequency, Hz \[25\].
+    /// Ricker peak frequency, Hz \[30\].
     pub wavelet_hz: f64,
     /// Trace sample interval, ms \[2\].
     pub sample_ms: f64,
@@ -280,8 +284,8 @@ impl Default for SynthSettings {
             dip_deg: 1.0,
             structure_roughness: 4.0,
             oil_area_fraction: 0.75,
-            sand_thickness: 14.0,
-            sand_thickness_sd: 7.0,
+            sand_thickness: 16.0,
+            sand_thickness_sd: 8.0,
             interbed_thickness: 7.0,
             interbed_thickness_sd: 3.0,
             porosity: 0.24,
@@ -295,6 +299,8 @@ impl Default for SynthSettings {
             lobe_radius: 0.17,
             lobe_thickness: 12.0,
             lobe_porosity: 0.04,
+            lobe_relief: 30.0,
+            lobe_aquifer_rate: 300.0,
             surface_temperature: 6.0,
             temperature_gradient: 0.032,
             brine_density: 1040.0,
@@ -322,7 +328,7 @@ impl Default for SynthSettings {
             brie_exponent: 3.0,
             shale_vp0: 1800.0,
             shale_vp_gradient: 0.5,
-            wavelet_hz: 25.0,
+            wavelet_hz: 30.0,
             sample_ms: 2.0,
             reflectivity: ReflectivityMethod::Zoeppritz,
             angle_stacks: [[5.0, 15.0], [15.0, 25.0], [25.0, 35.0]],
@@ -474,6 +480,8 @@ impl SynthSettings {
         frac("lobe_radius", self.lobe_radius, 0.0, 0.4)?;
         nonneg("lobe_thickness", self.lobe_thickness)?;
         frac("lobe_porosity", self.lobe_porosity, 0.0, 0.1)?;
+        nonneg("lobe_relief", self.lobe_relief)?;
+        nonneg("lobe_aquifer_rate", self.lobe_aquifer_rate)?;
         frac("surface_temperature", self.surface_temperature, -5.0, 60.0)?;
         frac("temperature_gradient", self.temperature_gradient, 0.0, 0.08)?;
         frac("brine_density", self.brine_density, 950.0, 1250.0)?;
@@ -681,8 +689,16 @@ impl SynthModel {
         let dp = self
             .dynamics
             .pressure_change(&self.reservoir, &self.wells, &self.conditions, t);
+        let lobe = dynamics::lobe_sweep(&self.reservoir, &self.settings, t);
         let fronts: Vec<Vec<f64>> = (0..self.reservoir.sands.len())
-            .map(|k| dynamics::water_fronts(&self.reservoir, &self.wells, &self.settings, k, t))
+            .map(|k| {
+                let mut f =
+                    dynamics::water_fronts(&self.reservoir, &self.wells, &self.settings, k, t);
+                f.iter_mut()
+                    .zip(&lobe)
+                    .for_each(|(f, l)| *f = (*f + l).min(1.0));
+                f
+            })
             .collect();
         (0..self.reservoir.len())
             .into_par_iter()

@@ -7,8 +7,9 @@
 //! tuning thickness of the wavelet so that the sands come in and out of tuning. The structure is an
 //! elongated dome on a regional dip, roughened by a random field; the optional fault shifts the
 //! structure by its throw and separates two pressure compartments with their own oil-water contact.
-//! A thick, porous lobe in one corner of the oil leg is kept free of wells, so that predictions there
-//! are made away from the training data.
+//! A thick, porous lobe in one corner of the oil leg is kept free of wells and has its own aquifer
+//! (see [`super::dynamics::lobe_sweep`]), so that predictions there are made away from the training
+//! data.
 
 use super::SynthSettings;
 use super::spectral::gaussian_field;
@@ -83,6 +84,12 @@ pub struct Reservoir {
     pub owc: [f64; 2],
     /// Weight (0..1) of the porous lobe at each node.
     pub lobe: Vec<f64>,
+    /// Centre of the lobe, local m.
+    pub lobe_centre: (f64, f64),
+    /// Radius of the lobe, m.
+    pub lobe_radius: f64,
+    /// Crest of the dome, local m.
+    pub crest: (f64, f64),
     /// Nodes where no well may be placed (the lobe and a margin around it).
     pub no_well: Vec<bool>,
     /// P-wave velocity of the cap shale above the reservoir, m/s.
@@ -194,9 +201,11 @@ impl Reservoir {
                     z += f.throw;
                 }
             }
-            structure[idx] = z;
             let d = ((x - lx).powi(2) + (y - ly).powi(2)).sqrt() / lobe_radius.max(1e-9);
             lobe[idx] = 1.0 / (1.0 + ((d - 1.0) / 0.12).exp());
+            // a sand-rich lobe compacts less than the shales around it: a drape high over it
+            z -= s.lobe_relief * lobe[idx];
+            structure[idx] = z;
             no_well[idx] = d < 1.35;
         }
 
@@ -283,6 +292,9 @@ impl Reservoir {
             fault,
             owc,
             lobe,
+            lobe_centre: (lx, ly),
+            lobe_radius,
+            crest: (xc, yc),
             no_well,
             shale_vp,
         }

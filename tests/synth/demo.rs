@@ -142,3 +142,67 @@ fn demo_is_small_runnable_and_field_like() {
         "{p10} {p50}"
     );
 }
+
+#[test]
+fn demo_lobe_is_unlike_the_wells() {
+    // The well-free lobe (thick, porous, on a drape high, swept by its own aquifer) must lie away
+    // from the wells in attribute space, so that an applicability check has something to find:
+    // at the last step most lobe nodes are farther from the nearest well observation, in
+    // standardised attributes, than nine in ten of the other nodes.
+    let demo = demo_dir();
+    let record = SynthRecord::read(&demo.join("synth.json")).unwrap();
+    let model = tidemark::synth::SynthModel::build(&record.settings).unwrap();
+    let survey = tidemark::project::load_survey(&demo.join("project.toml")).unwrap();
+    let grid = &survey.project.grid;
+    let step = survey.project.steps.len() - 1;
+    let maps = &survey.maps[step];
+    let stats: Vec<(f64, f64)> = maps
+        .iter()
+        .map(|v| {
+            let n = v.len() as f64;
+            let mean = v.iter().sum::<f64>() / n;
+            let sd = (v.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / n).sqrt();
+            (mean, sd)
+        })
+        .collect();
+    let feature = |i: usize| -> Vec<f64> {
+        maps.iter()
+            .zip(&stats)
+            .map(|(m, (mean, sd))| (m[i] - mean) / sd)
+            .collect()
+    };
+    let name = &survey.project.steps[step].name;
+    let wells: Vec<Vec<f64>> = survey
+        .wells
+        .iter()
+        .filter(|r| &r.step == name)
+        .map(|r| {
+            let (i, j) = grid.nearest_node(r.x, r.y).unwrap();
+            feature(grid.index(i, j))
+        })
+        .collect();
+    let nearest = |i: usize| {
+        let x = feature(i);
+        wells
+            .iter()
+            .map(|w| w.iter().zip(&x).map(|(a, b)| (a - b).powi(2)).sum::<f64>())
+            .fold(f64::MAX, f64::min)
+            .sqrt()
+    };
+    let lobe = &model.reservoir.lobe;
+    let mut other: Vec<f64> = (0..lobe.len())
+        .filter(|&i| lobe[i] < 0.1)
+        .map(nearest)
+        .collect();
+    other.sort_by(f64::total_cmp);
+    let p90 = other[other.len() * 9 / 10];
+    let core: Vec<f64> = (0..lobe.len())
+        .filter(|&i| lobe[i] > 0.9)
+        .map(nearest)
+        .collect();
+    let beyond = core.iter().filter(|d| **d > p90).count() as f64 / core.len() as f64;
+    assert!(
+        beyond > 0.5,
+        "only {beyond} of the lobe lies beyond the 90th percentile"
+    );
+}

@@ -146,8 +146,12 @@ fn injection_and_depletion_are_told_apart_only_by_angle() {
     // softens under injection and stiffens under depletion, and shear sees only the frame)
     let m = model();
     let (res, cond, s) = (&m.reservoir, &m.conditions, &m.settings);
+    // the thickest upper sand among nodes whose sands are all in the oil leg
     let i = *oil_nodes(&m)
         .iter()
+        .filter(|&&i| {
+            (0..res.sands.len()).all(|k| res.oil_column(k, i) >= res.sands[k].thickness[i])
+        })
         .max_by(|a, b| res.sands[0].thickness[**a].total_cmp(&res.sands[0].thickness[**b]))
         .unwrap();
     let nsand = res.sands.len();
@@ -199,4 +203,33 @@ fn injection_and_depletion_are_told_apart_only_by_angle() {
         dbi.abs().min(dbd.abs()) > 0.2 * (ad - a0).abs(),
         "{dbi} {dbd}"
     );
+}
+
+#[test]
+fn sands_come_in_and_out_of_tuning() {
+    // The upper sand's two-way thickness spans the tuning separation of the wavelet (for a Ricker
+    // wavelet of peak frequency f, sqrt(1.5)/(pi f): 15.59 ms at 25 Hz, reference table W1/W2), so
+    // the sands tune in parts of the field and resolve in others.
+    let m = SynthModel::build(&SynthSettings::default()).unwrap();
+    let f = m.settings.wavelet_hz;
+    let tuning = 1.5f64.sqrt() / (std::f64::consts::PI * f);
+    let times: Vec<f64> = (0..m.reservoir.len())
+        .filter(|&i| m.reservoir.sands[0].thickness[i] > 0.0)
+        .map(|i| {
+            let col = m.column(i, &m.base_state(i));
+            // the upper sand's parts follow the cap shale until the first shale below them
+            col[1..]
+                .iter()
+                .take_while(|l| l.sand)
+                .map(|l| seismic::two_way_time(l.thickness, l.elastic.vp))
+                .sum::<f64>()
+        })
+        .collect();
+    let below = times.iter().filter(|t| **t < tuning).count() as f64 / times.len() as f64;
+    assert!(
+        (0.2..0.8).contains(&below),
+        "{below} of the upper sand is thinner than tuning"
+    );
+    assert!(times.iter().any(|t| *t > 1.5 * tuning));
+    assert!(times.iter().any(|t| *t < 0.5 * tuning));
 }
