@@ -350,11 +350,14 @@ pub fn lobe_sweep(res: &Reservoir, s: &SynthSettings, t: f64) -> Vec<f64> {
         lx + 1.2 * res.lobe_radius * ux,
         ly + 1.2 * res.lobe_radius * uy,
     );
+    if s.lobe_aquifer_rate <= 0.0 || t <= 0.0 {
+        return vec![0.0; res.len()];
+    }
     let travel = s.lobe_aquifer_rate * t;
     let edge = (0.1 * res.lobe_radius).max(res.spacing);
     (0..res.len())
         .map(|i| {
-            if t <= 0.0 || res.lobe[i] < 1e-3 {
+            if res.lobe[i] < 1e-3 {
                 return 0.0;
             }
             let (x, y) = res.node_local(i);
