@@ -14,6 +14,7 @@ use super::PipelineError;
 use super::model::{SavedModel, StepMaps, convention_text};
 use crate::grid::Grid;
 use crate::io;
+use rayon::prelude::*;
 use serde::Serialize;
 use std::path::{Path, PathBuf};
 
@@ -110,6 +111,19 @@ impl Writer {
         self.bytes(rel, text.as_bytes())
     }
 
+    /// Reserves the files of one map in every chosen format (`rel` has no extension) and returns
+    /// their paths; the caller writes them (see [`io::write_map`]).
+    pub fn reserve_map(&mut self, rel: &str) -> Result<Vec<PathBuf>, PipelineError> {
+        let mut out = Vec::new();
+        if self.formats.geotiff {
+            out.push(self.target(&format!("{rel}.tif"))?);
+        }
+        if self.formats.xyz {
+            out.push(self.target(&format!("{rel}.xyz"))?);
+        }
+        Ok(out)
+    }
+
     /// Writes one map in every chosen format (`rel` has no extension).
     pub fn map(
         &mut self,
@@ -141,6 +155,9 @@ pub fn write_step_maps(
     let (lo_label, hi_label) = model.band_labels();
     let conv = convention_text(model.convention, model.level);
     let mut entries = Vec::new();
+    // Files are reserved in order (so `run.json` lists them deterministically), then encoded and
+    // written in parallel: map formatting, XYZ text above all, dominates large grids.
+    let mut jobs: Vec<(PathBuf, Vec<f64>, String)> = Vec::new();
     let mut put = |w: &mut Writer,
                    name: String,
                    values: &[f64],
@@ -155,7 +172,9 @@ pub fn write_step_maps(
             "convention": conv,
         })
         .to_string();
-        w.map(&name, grid, values, &desc)?;
+        for path in w.reserve_map(&name)? {
+            jobs.push((path, values.to_vec(), desc.clone()));
+        }
         entries.push(MapEntry {
             name,
             quantity,
@@ -255,5 +274,8 @@ pub fn write_step_maps(
         "number of attributes outside the range seen at the wells".into(),
         "count",
     )?;
+    jobs.par_iter()
+        .map(|(path, values, desc)| io::write_map(path, grid, values, Some(desc)))
+        .collect::<Result<Vec<()>, _>>()?;
     Ok(entries)
 }
