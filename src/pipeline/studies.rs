@@ -102,7 +102,7 @@ pub fn infill(
     let th = model.thresholds_of(t)[k];
     let criterion = format!(
         "the chance that {} is not {} (not {}), step {}",
-        th.label,
+        th.target,
         match th.direction {
             crate::project::Direction::Above => format!("above {}", th.value),
             crate::project::Direction::Below => format!("below {}", th.value),
