@@ -126,7 +126,7 @@ fn every_expected_file_exists_and_gdal_reads_each_map() {
             .arg("-json")
             .arg(&tif)
             .output()
-            .expect("gdalinfo is needed (Debian gdal-bin; .ci/test installs it)");
+            .expect("gdalinfo is needed (Debian gdal-bin; .ci/deps installs it)");
         assert!(out.status.success(), "gdalinfo failed on {}", tif.display());
         let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
         assert_eq!(v["size"][0].as_u64(), Some(grid.nx as u64));

@@ -3,7 +3,7 @@
 //! errors, decode every image (naturalWidth > 0) and give a screenshot that is not blank.
 //!
 //! Chromium and chromedriver come from Debian (`apt-get install -y chromium chromium-driver`,
-//! or `.ci/browser-deps`); without them this test fails and says how to install them.
+//! or `.ci/deps`); without them this test fails and says how to install them.
 
 use std::io::{Read, Write};
 use std::net::{TcpListener, TcpStream};
@@ -139,7 +139,7 @@ fn require_browser() {
         missing.is_empty(),
         "the browser test needs Debian's chromium and chromium-driver packages; missing {missing:?}. \
          Install them with `apt-get update && apt-get install -y chromium chromium-driver` \
-         (or run `bash .ci/browser-deps`)."
+         (or run `bash .ci/deps`)."
     );
 }
 
