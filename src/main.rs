@@ -44,7 +44,18 @@ fn main() -> ExitCode {
     match result {
         Ok(code) => ExitCode::from(code),
         Err(e) => {
-            eprintln!("error: {e:#}");
+            // Print the chain of causes once each: many library errors already quote their cause.
+            let mut text = String::new();
+            for cause in e.chain() {
+                let c = cause.to_string();
+                if !text.contains(&c) {
+                    if !text.is_empty() {
+                        text.push_str(": ");
+                    }
+                    text.push_str(&c);
+                }
+            }
+            eprintln!("error: {text}");
             ExitCode::from(2)
         }
     }
