@@ -438,6 +438,8 @@ pub fn run(opts: &RunOptions) -> Result<RunOutcome, PipelineError> {
     stages.done("load and extract");
 
     let (model, imp) = fit_model(&survey, &ts, seed, &mut stages)?;
+    // The page shows target warnings beside their target; its run section lists the others.
+    let run_warnings = warnings.clone();
     for cal in &model.calibrated {
         warnings.extend(cal.diagnostics.warnings.iter().cloned());
     }
@@ -559,7 +561,7 @@ pub fn run(opts: &RunOptions) -> Result<RunOutcome, PipelineError> {
                             seconds: Some(t.seconds),
                         })
                         .collect(),
-                    warnings: warnings.clone(),
+                    warnings: run_warnings.clone(),
                 },
             });
             input.save(&w.root)?;
