@@ -172,7 +172,12 @@ impl Applicability {
             .map(|c| x.column(c).iter().copied().fold(f64::INFINITY, f64::min))
             .collect();
         let max = (0..p)
-            .map(|c| x.column(c).iter().copied().fold(f64::NEG_INFINITY, f64::max))
+            .map(|c| {
+                x.column(c)
+                    .iter()
+                    .copied()
+                    .fold(f64::NEG_INFINITY, f64::max)
+            })
             .collect();
         Ok(Self {
             feature_names: feature_names.to_vec(),

@@ -410,7 +410,13 @@ impl fmt::Display for SigFig {
             };
             f.write_str(&s)
         } else {
-            write!(f, "{v:.4e}")
+            let s = format!("{v:.4e}");
+            match s.split_once('e') {
+                Some((m, e)) if m.contains('.') => {
+                    write!(f, "{}e{e}", m.trim_end_matches('0').trim_end_matches('.'))
+                }
+                _ => f.write_str(&s),
+            }
         }
     }
 }
@@ -556,6 +562,8 @@ mod tests {
         assert_eq!(SigFig(1234.5678).to_string(), "1234.6");
         assert_eq!(SigFig(0.0).to_string(), "0");
         assert_eq!(SigFig(-2.0).to_string(), "-2");
-        assert_eq!(SigFig(1.5e-5).to_string(), "1.5000e-5");
+        assert_eq!(SigFig(1.5e-5).to_string(), "1.5e-5");
+        assert_eq!(SigFig(-3.04129e-4).to_string(), "-3.0413e-4");
+        assert_eq!(SigFig(2.0e7).to_string(), "2e7");
     }
 }
