@@ -237,6 +237,20 @@ impl MapGeometry {
     }
 }
 
+impl From<&crate::grid::Grid> for MapGeometry {
+    fn from(g: &crate::grid::Grid) -> Self {
+        MapGeometry {
+            origin_x: g.origin_x,
+            origin_y: g.origin_y,
+            dx: g.dx,
+            dy: g.dy,
+            nx: g.nx,
+            ny: g.ny,
+            rotation_deg: g.rotation,
+        }
+    }
+}
+
 /// A map to draw: node values of one grid with its colour scale, annotations and caption.
 #[derive(Debug, Clone)]
 pub struct MapPicture<'a> {

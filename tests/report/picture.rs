@@ -479,3 +479,24 @@ fn tick_labels_are_short_and_exact() {
     assert_eq!(format_tick(0.125, 0.5), "0.125");
     assert_eq!(format_tick(6.1e6, 2000.0), "6100000");
 }
+
+#[test]
+fn geometry_from_grid_keeps_node_positions() {
+    let grid = tidemark::grid::Grid {
+        origin_x: 1000.0,
+        origin_y: 2000.0,
+        dx: 12.5,
+        dy: 25.0,
+        nx: 7,
+        ny: 5,
+        rotation: 33.0,
+        epsg: None,
+        null_value: -999.25,
+    };
+    let g = MapGeometry::from(&grid);
+    let r = 33f64.to_radians();
+    // DEVELOPERS.md: x = x0 + i dx cos r - j dy sin r, y = y0 + i dx sin r + j dy cos r
+    let (x, y) = g.node_xy(6, 4);
+    assert!((x - (1000.0 + 6.0 * 12.5 * r.cos() - 4.0 * 25.0 * r.sin())).abs() < 1e-9);
+    assert!((y - (2000.0 + 6.0 * 12.5 * r.sin() + 4.0 * 25.0 * r.cos())).abs() < 1e-9);
+}
