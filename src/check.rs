@@ -13,6 +13,9 @@ use std::collections::HashSet;
 use std::fmt;
 use std::path::{Path, PathBuf};
 
+/// How many bad wells CSV rows are listed one by one.
+const MAX_ROW_ERRORS: usize = 20;
+
 /// How serious a problem is.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
@@ -276,9 +279,23 @@ pub fn check_project(path: &Path) -> CheckReport {
     }
 
     // Wells and extraction.
-    match project.read_wells() {
+    match project.read_wells_all() {
         Err(e) => errors.push(e.to_string()),
-        Ok(records) => {
+        Ok((records, row_errors)) => {
+            let n_bad = row_errors.len();
+            errors.extend(
+                row_errors
+                    .iter()
+                    .take(MAX_ROW_ERRORS)
+                    .map(ToString::to_string),
+            );
+            if n_bad > MAX_ROW_ERRORS {
+                errors.push(format!(
+                    "{}: {} more bad row(s) not listed",
+                    project.wells.file.display(),
+                    n_bad - MAX_ROW_ERRORS
+                ));
+            }
             let mut rows_per_step = vec![0usize; project.steps.len()];
             for r in &records {
                 if let Some(s) = project.step_index(&r.step) {
@@ -331,7 +348,7 @@ pub fn check_project(path: &Path) -> CheckReport {
                 usable_rows: set.n_rows(),
                 usable_wells: set.n_wells(),
             });
-            if set.n_rows() == 0 && skipped_steps.len() < project.steps.len() {
+            if set.n_rows() == 0 && n_bad == 0 && skipped_steps.len() < project.steps.len() {
                 errors.push(format!(
                     "{}: no well row is usable for training",
                     project.wells.file.display()
@@ -343,7 +360,7 @@ pub fn check_project(path: &Path) -> CheckReport {
                 let wells: HashSet<usize> = rows.iter().map(|&r| set.group[r]).collect();
                 let vals: Vec<f64> = rows.iter().map(|&r| set.y[[r, t]]).collect();
                 let (lo, hi, _, _) = map_stats(&vals);
-                if skipped_steps.is_empty() && wells.len() < needed {
+                if skipped_steps.is_empty() && n_bad == 0 && wells.len() < needed {
                     errors.push(format!(
                         "target '{}' is measured at {} usable well(s); calibration ({:?} folds, folds = {}) needs at least {needed}",
                         spec.name,
@@ -410,7 +427,13 @@ impl fmt::Display for SigFig {
             };
             f.write_str(&s)
         } else {
-            write!(f, "{v:.4e}")
+            let s = format!("{v:.4e}");
+            match s.split_once('e') {
+                Some((m, e)) if m.contains('.') => {
+                    write!(f, "{}e{e}", m.trim_end_matches('0').trim_end_matches('.'))
+                }
+                _ => f.write_str(&s),
+            }
         }
     }
 }
@@ -556,6 +579,8 @@ mod tests {
         assert_eq!(SigFig(1234.5678).to_string(), "1234.6");
         assert_eq!(SigFig(0.0).to_string(), "0");
         assert_eq!(SigFig(-2.0).to_string(), "-2");
-        assert_eq!(SigFig(1.5e-5).to_string(), "1.5000e-5");
+        assert_eq!(SigFig(1.5e-5).to_string(), "1.5e-5");
+        assert_eq!(SigFig(-3.04129e-4).to_string(), "-3.0413e-4");
+        assert_eq!(SigFig(2.0e7).to_string(), "2e7");
     }
 }

@@ -725,6 +725,13 @@ impl Project {
         io::wells::read(&self.wells.file, &self.well_columns(), &steps)
     }
 
+    /// Reads the wells CSV, keeping going after bad rows: the good rows and every row error
+    /// (`Err` only for a problem with the file as a whole).
+    pub fn read_wells_all(&self) -> Result<(Vec<WellRecord>, Vec<IoError>), IoError> {
+        let steps: Vec<String> = self.steps.iter().map(|s| s.name.clone()).collect();
+        io::wells::read_all(&self.wells.file, &self.well_columns(), &steps)
+    }
+
     /// Reads one attribute map of one step.
     pub fn read_map(&self, step: usize, attribute: usize) -> Result<Vec<f64>, IoError> {
         let (_, path) = &self.steps[step].attributes[attribute];

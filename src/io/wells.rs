@@ -69,13 +69,39 @@ pub fn read(
     parse(path, &bytes, columns, steps)
 }
 
-/// Parses wells CSV bytes already in memory; `path` labels errors.
+/// Parses wells CSV bytes already in memory; `path` labels errors. Returns the first error.
 pub fn parse(
     path: &Path,
     bytes: &[u8],
     columns: &WellColumns,
     steps: &[String],
 ) -> Result<Vec<WellRecord>, IoError> {
+    let (records, mut errors) = parse_all(path, bytes, columns, steps)?;
+    if errors.is_empty() {
+        Ok(records)
+    } else {
+        Err(errors.swap_remove(0))
+    }
+}
+
+/// Reads the wells CSV, keeping going after a bad row: the good rows and every row error, in file
+/// order. `Err` only for a problem with the file as a whole (unreadable, header, no rows).
+pub fn read_all(
+    path: &Path,
+    columns: &WellColumns,
+    steps: &[String],
+) -> Result<(Vec<WellRecord>, Vec<IoError>), IoError> {
+    let bytes = std::fs::read(path).map_err(|e| IoError::os(path, e))?;
+    parse_all(path, &bytes, columns, steps)
+}
+
+/// Parses wells CSV bytes, keeping going after a bad row (see [`read_all`]).
+pub fn parse_all(
+    path: &Path,
+    bytes: &[u8],
+    columns: &WellColumns,
+    steps: &[String],
+) -> Result<(Vec<WellRecord>, Vec<IoError>), IoError> {
     let csv_err = |e: csv::Error| {
         let line = e.position().map(|p| p.line()).unwrap_or(1);
         let message = match e.kind() {
@@ -138,7 +164,8 @@ pub fn parse(
 
     let mut out = Vec::new();
     let mut pairs: HashMap<(String, String), u64> = HashMap::new();
-    for rec in rdr.records() {
+    let mut errors = Vec::new();
+    let mut row = |rec: Result<csv::StringRecord, csv::Error>| -> Result<WellRecord, IoError> {
         let rec = rec.map_err(csv_err)?;
         let line = rec.position().map(|p| p.line()).unwrap_or(0);
         let cell_err = |col: &str, message: String| IoError::Cell {
@@ -223,7 +250,7 @@ pub fn parse(
                 message: format!("well '{well}' step '{step}' already given on line {first}"),
             });
         }
-        out.push(WellRecord {
+        Ok(WellRecord {
             well,
             x,
             y,
@@ -231,12 +258,18 @@ pub fn parse(
             targets,
             weight,
             line,
-        });
+        })
+    };
+    for rec in rdr.records() {
+        match row(rec) {
+            Ok(r) => out.push(r),
+            Err(e) => errors.push(e),
+        }
     }
-    if out.is_empty() {
+    if out.is_empty() && errors.is_empty() {
         return Err(IoError::format(path, "no well rows after the header"));
     }
-    Ok(out)
+    Ok((out, errors))
 }
 
 #[cfg(test)]

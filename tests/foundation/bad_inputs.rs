@@ -463,3 +463,28 @@ fn missing_manifest_is_reported_not_panicked() {
         .unwrap();
     assert_eq!(out.status.code(), Some(1));
 }
+
+#[test]
+fn every_bad_wells_row_is_listed() {
+    let dir = tempfile::tempdir().unwrap();
+    let manifest = tiny_project(dir.path());
+    for (n, col, bad) in [(3, 1, "x?"), (5, 3, "m0"), (9, 4, "-7")] {
+        let mut f = line_fields(dir.path(), W, n);
+        f[col] = bad.into();
+        set_line(dir.path(), W, n, &f.join(","));
+    }
+    let report = check_project(&manifest);
+    assert!(!report.runnable);
+    let errors: Vec<&str> = report
+        .problems
+        .iter()
+        .filter(|p| p.severity == Severity::Error)
+        .map(|p| p.message.as_str())
+        .collect();
+    assert_eq!(errors.len(), 3, "{errors:?}");
+    assert!(errors[0].contains("wells.csv, line 3, column 'x'"));
+    assert!(errors[1].contains("wells.csv, line 5, column 'step'"));
+    assert!(errors[2].contains("wells.csv, line 9, column 'dSw'"));
+    // The good rows are still summarised.
+    assert_eq!(report.wells.as_ref().unwrap().rows, 13);
+}

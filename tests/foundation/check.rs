@@ -130,3 +130,21 @@ fn binary_prints_json_and_exits_zero() {
     assert_eq!(out.status.code(), Some(0));
     assert!(String::from_utf8_lossy(&out.stdout).contains("wells:"));
 }
+
+#[test]
+fn outputs_may_not_overwrite_inputs() {
+    let dir = tempfile::tempdir().unwrap();
+    let manifest = tiny_project(dir.path());
+    let project = tidemark::project::Project::load(&manifest).unwrap();
+    let inputs = project.input_paths();
+    assert_eq!(inputs.len(), 1 + 4 + 1, "manifest, 4 maps, wells");
+    let sneaky = dir.path().join("maps/../maps/m1/near_amp.tif");
+    let err = tidemark::io::atomic::ensure_not_input(&sneaky, &inputs).unwrap_err();
+    assert!(
+        err.to_string().contains("refusing to write over an input"),
+        "{err}"
+    );
+    assert!(
+        tidemark::io::atomic::ensure_not_input(&dir.path().join("out/p50.tif"), &inputs).is_ok()
+    );
+}

@@ -122,3 +122,37 @@ fn node_xy_fractional_ij_inverse_rotated() {
     assert!(g.contains(world(&g, 2.0, 0.0).0, world(&g, 2.0, 0.0).1));
     assert!(!g.contains(world(&g, 2.1, 0.0).0, world(&g, 2.1, 0.0).1));
 }
+
+mod properties {
+    use proptest::prelude::*;
+    use tidemark::grid::Grid;
+
+    proptest! {
+        // Identity: bilinear interpolation reproduces any affine function a + b i + c j exactly
+        // (Numerical Recipes 3rd ed., section 3.6: the interpolant is linear along each axis), on any
+        // rotation, spacing and origin.
+        #[test]
+        fn bilinear_is_exact_for_affine_maps(
+            rotation in -180.0f64..180.0,
+            dx in 0.5f64..100.0,
+            dy in 0.5f64..100.0,
+            a in -10.0f64..10.0,
+            b in -3.0f64..3.0,
+            c in -3.0f64..3.0,
+            fi in 0.0f64..6.0,
+            fj in 0.0f64..4.0,
+        ) {
+            let g = Grid { origin_x: 512000.0, origin_y: 7340000.0, dx, dy, nx: 7, ny: 5,
+                           rotation, epsg: None, null_value: -999.25 };
+            let mut v = vec![0.0; g.len()];
+            for j in 0..g.ny {
+                for i in 0..g.nx {
+                    v[g.index(i, j)] = a + b * i as f64 + c * j as f64;
+                }
+            }
+            let (x, y) = g.fractional_xy(fi, fj);
+            let got = g.bilinear(&v, x, y).expect("inside");
+            prop_assert!((got - (a + b * fi + c * fj)).abs() < 1e-7);
+        }
+    }
+}
