@@ -178,7 +178,8 @@ pub fn rank_targets(
     let scored: Vec<(f64, f64)> = (0..n)
         .into_par_iter()
         .map(|k| {
-            let (i, j) = ((k % grid.nx) as isize, (k / grid.nx) as isize);
+            let (i, j) = grid.ij(k);
+            let (i, j) = (i as isize, j as isize);
             let (mut sum, mut inside, mut count) = (0.0, 0usize, 0usize);
             for &(di, dj) in &offsets {
                 let (a, b) = (i + di, j + dj);
@@ -210,7 +211,8 @@ pub fn rank_targets(
         if taken.len() == settings.count {
             break;
         }
-        let (x, y) = grid.node_xy(k % grid.nx, k / grid.nx);
+        let (i, j) = grid.ij(k);
+        let (x, y) = grid.node_xy(i, j);
         let (well, dist) = nearest(x, y);
         if dist < settings.min_well_spacing {
             continue;

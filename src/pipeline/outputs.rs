@@ -123,25 +123,6 @@ impl Writer {
         }
         Ok(out)
     }
-
-    /// Writes one map in every chosen format (`rel` has no extension).
-    pub fn map(
-        &mut self,
-        rel: &str,
-        grid: &Grid,
-        values: &[f64],
-        description: &str,
-    ) -> Result<(), PipelineError> {
-        if self.formats.geotiff {
-            let path = self.target(&format!("{rel}.tif"))?;
-            io::geotiff::write(&path, grid, values, Some(description))?;
-        }
-        if self.formats.xyz {
-            let path = self.target(&format!("{rel}.xyz"))?;
-            io::xyz::write(&path, grid, values)?;
-        }
-        Ok(())
-    }
 }
 
 /// Writes every map of one step and returns their metadata entries.

@@ -22,11 +22,6 @@ use rayon::prelude::*;
 /// Size in pixels of every map picture.
 pub const MAP_SIZE: (u32, u32) = (900, 720);
 
-/// The report's geometry of a grid.
-pub fn geometry(grid: &Grid) -> MapGeometry {
-    MapGeometry::from(grid)
-}
-
 /// One map to draw.
 struct Job {
     rel: String,
@@ -147,7 +142,7 @@ fn draw(
     jobs: Vec<Job>,
     inside: &[bool],
 ) -> Result<Vec<ri::MapEntry>, PipelineError> {
-    let geometry = geometry(grid);
+    let geometry = MapGeometry::from(grid);
     let wells = wells_of(model);
     let outside: Vec<bool> = inside.iter().map(|i| !i).collect();
     let caption = convention_text(model.convention, model.level);
@@ -204,7 +199,7 @@ pub fn infill_picture(
         .collect();
     let png = map_png(
         &MapPicture {
-            geometry: geometry(grid),
+            geometry: MapGeometry::from(grid),
             values: chance,
             title: format!("Risked infill targets over {criterion}"),
             unit: "probability".into(),

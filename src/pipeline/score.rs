@@ -159,19 +159,19 @@ pub fn score(results: &Path, truth: &Path) -> Result<(TruthScore, ErrorMaps), Pi
     let grid = io::geotiff::read(&probe)
         .map_err(|e| {
             PipelineError::Invalid(format!(
-                "{e}\n(score needs the GeoTIFF maps of a run; was it run with --no-geotiff?)"
+                "{e}\n(score reads the GeoTIFF maps of a `tidemark run` results folder)"
             ))
         })?
         .grid;
-    let away: Vec<bool> = (0..grid.len())
-        .map(|k| {
-            let (i, j) = (k % grid.nx, k / grid.nx);
-            let (x, y) = grid.node_xy(i, j);
-            let spacing = grid.dx.min(grid.dy);
+    let reach = AWAY_FROM_WELLS * grid.dx.min(grid.dy);
+    let away: Vec<bool> = grid
+        .node_coordinates()
+        .iter()
+        .map(|&(x, y)| {
             model
                 .wells
                 .iter()
-                .all(|(_, wx, wy)| (wx - x).hypot(wy - y) > AWAY_FROM_WELLS * spacing)
+                .all(|(_, wx, wy)| (wx - x).hypot(wy - y) > reach)
         })
         .collect();
     let read = |rel: PathBuf| io::geotiff::read_on_grid(&rel, &grid);
@@ -254,7 +254,7 @@ pub fn score_and_report(results: &Path, truth: &Path) -> Result<TruthScore, Pipe
     use crate::report::picture::{MapPicture, map_png};
     let (scores, errors) = score(results, truth)?;
     let model = SavedModel::load(&results.join("model.json"))?;
-    let geometry = super::pictures::geometry(&errors.grid);
+    let geometry = crate::report::picture::MapGeometry::from(&errors.grid);
     let wells: Vec<(f64, f64, String)> = model
         .wells
         .iter()
