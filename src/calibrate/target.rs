@@ -1137,12 +1137,11 @@ fn fit_fold(
     let test: Vec<usize> = (0..n).filter(|&i| fold[i] == f).collect();
     let (forest, booster) = fit_models(data, settings, &train, use_boost, f as u64)?;
     let xt = data.x.select(Axis(0), &test);
-    let mean = forest.predict(xt.view());
-    let (q, cdf) = forest.predict_distribution(xt.view(), 0, q_levels, t_values);
+    let (mean, q, cdf) = forest.predict_with_distribution(xt.view(), 0, q_levels, t_values);
     let pit_raw = forest.cdf_at(xt.view(), 0, &pick(data.y, &test));
     let boost = booster.map_or_else(|| vec![f64::NAN; test.len()], |b| b.predict(xt.view()));
     Ok(FoldOutput {
-        forest_mean: mean.column(0).to_vec(),
+        forest_mean: mean,
         boost,
         q: [
             q.column(0).to_vec(),
@@ -1172,20 +1171,31 @@ impl CalibratedTarget {
         let n = x.nrows();
         let a = 1.0 - self.level;
         let w = self.forest_weight;
-        let forest_mean = (w > 0.0).then(|| self.forest.predict(x).column(0).to_vec());
-        let boost = match (&self.booster, w < 1.0) {
-            (Some(b), true) => Some(b.predict(x)),
-            _ => None,
-        };
         let need_dist = self.band.method != BandMethod::CvResidual
             || self
                 .exceed_methods
                 .contains(&ExceedMethod::ForestRecalibrated);
         let t_values: Vec<f64> = self.thresholds.iter().map(|t| t.value).collect();
-        let dist = need_dist.then(|| {
-            self.forest
-                .predict_distribution(x, 0, &[a / 2.0, 0.5, 1.0 - a / 2.0], &t_values)
-        });
+        let levels = [a / 2.0, 0.5, 1.0 - a / 2.0];
+        // One walk of the forest gives the mean and the distribution together.
+        let (forest_mean, dist) = match (w > 0.0, need_dist) {
+            (true, true) => {
+                let (m, q, c) = self
+                    .forest
+                    .predict_with_distribution(x, 0, &levels, &t_values);
+                (Some(m), Some((q, c)))
+            }
+            (true, false) => (Some(self.forest.predict(x).column(0).to_vec()), None),
+            (false, true) => (
+                None,
+                Some(self.forest.predict_distribution(x, 0, &levels, &t_values)),
+            ),
+            (false, false) => (None, None),
+        };
+        let boost = match (&self.booster, w < 1.0) {
+            (Some(b), true) => Some(b.predict(x)),
+            _ => None,
+        };
         let nt = self.thresholds.len();
         let mids: Vec<f64> = (0..n)
             .into_par_iter()

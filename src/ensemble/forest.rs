@@ -623,6 +623,36 @@ impl Forest {
         levels: &[f64],
         thresholds: &[f64],
     ) -> (Array2<f64>, Array2<f64>) {
+        let (_, q, c) = self.distribution_pass(x, output, levels, thresholds, false);
+        (q, c)
+    }
+
+    /// The mean prediction of output `output` together with [`Forest::predict_distribution`],
+    /// from one walk of the trees per row: `(mean, quantiles, cdf)`. The mean equals column
+    /// `output` of [`Forest::predict`] bit for bit (leaf values summed in tree order).
+    ///
+    /// # Panics
+    /// As [`Forest::predict_distribution`].
+    pub fn predict_with_distribution(
+        &self,
+        x: ArrayView2<f64>,
+        output: usize,
+        levels: &[f64],
+        thresholds: &[f64],
+    ) -> (Vec<f64>, Array2<f64>, Array2<f64>) {
+        self.distribution_pass(x, output, levels, thresholds, true)
+    }
+
+    /// Shared body of the distribution predictions; with `with_mean` every record starts with
+    /// the row's mean prediction of `output`.
+    fn distribution_pass(
+        &self,
+        x: ArrayView2<f64>,
+        output: usize,
+        levels: &[f64],
+        thresholds: &[f64],
+        with_mean: bool,
+    ) -> (Vec<f64>, Array2<f64>, Array2<f64>) {
         self.assert_x(&x);
         self.assert_output(output);
         assert!(
@@ -635,27 +665,50 @@ impl Forest {
             .map(|&t| (!t.is_nan()).then(|| kernel.threshold_position(t)))
             .collect();
         let (nl, nt) = (levels.len(), thresholds.len());
+        let lead = usize::from(with_mean);
         let n = self.n_train;
+        let inv = 1.0 / self.trees.len() as f64;
         let block = QrfKernel::block_rows(n);
         let flat = self.map_chunks(x, block * n, |_, m, leaves, acc, out| {
-            out.reserve(m * (nl + nt));
+            let w = lead + nl + nt;
+            out.resize(m * w, 0.0);
+            if with_mean {
+                for (t, tree) in self.trees.iter().enumerate() {
+                    for r in 0..m {
+                        out[r * w] += tree.leaf_value(leaves[t * m + r] as usize, output);
+                    }
+                }
+                for r in 0..m {
+                    out[r * w] *= inv;
+                }
+            }
             for r0 in (0..m).step_by(block) {
                 let nb = block.min(m - r0);
                 let acc = &mut acc[..nb * n];
                 acc.fill(0.0);
                 kernel.accumulate_block(leaves, m, r0, nb, acc);
-                for cum in acc.chunks_exact_mut(n) {
+                for (i, cum) in acc.chunks_exact_mut(n).enumerate() {
                     QrfKernel::cumulate(cum);
-                    for &q in levels {
-                        out.push(kernel.quantile(cum, q));
+                    let rec = &mut out[(r0 + i) * w + lead..(r0 + i + 1) * w];
+                    for (slot, &q) in rec.iter_mut().zip(levels) {
+                        *slot = kernel.quantile(cum, q);
                     }
-                    for tp in &t_pos {
-                        out.push(tp.map_or(f64::NAN, |p| QrfKernel::cdf(cum, p)));
+                    for (slot, tp) in rec[nl..].iter_mut().zip(&t_pos) {
+                        *slot = tp.map_or(f64::NAN, |p| QrfKernel::cdf(cum, p));
                     }
                 }
             }
         });
-        split_columns(&flat, x.nrows(), nl, nt)
+        let rows = x.nrows();
+        let w = lead + nl + nt;
+        let mean = if with_mean {
+            (0..rows).map(|r| flat[r * w]).collect()
+        } else {
+            Vec::new()
+        };
+        let q = Array2::from_shape_fn((rows, nl), |(r, l)| flat[r * w + lead + l]);
+        let c = Array2::from_shape_fn((rows, nt), |(r, t)| flat[r * w + lead + nl + t]);
+        (mean, q, c)
     }
 
     /// `P(Y <= t_i | x_i)` for output `output`, one threshold per row (NaN threshold: NaN).

@@ -5,5 +5,6 @@ mod common;
 mod determinism;
 mod errors;
 mod forest;
+mod one_pass;
 mod persist;
 mod quantile;
