@@ -60,31 +60,63 @@ const WEIGHT_EPS: f64 = 1e-9;
 /// increasing order) reaches `(1 - alpha) (n + 1)`, where `n` is the total weight. `None` when the
 /// total weight is too small for that (the quantile is `+inf`), or when there are no scores.
 ///
-/// With unit weights this is the `ceil((n+1)(1-alpha))`-th smallest score (Lei et al. 2018).
+/// With unit weights this is the `ceil((n+1)(1-alpha))`-th smallest score (Lei et al. 2018). It
+/// is [`weighted_conformal_quantile`] with a test weight of one (the new well weighs as much as a
+/// calibration well).
 pub fn conformal_quantile(scores: &[f64], weights: &[f64], alpha: f64) -> Option<f64> {
+    weighted_conformal_quantile(scores, weights, 1.0, alpha)
+}
+
+/// Weighted conformal quantile (Tibshirani, Barber, Candes & Ramdas 2019, "Conformal prediction
+/// under covariate shift", NeurIPS, eq. 7): the `1 - alpha` quantile of the distribution
+/// `sum_i p_i delta(s_i) + p_test delta(+inf)` with `p_i = w_i / (sum_j w_j + w_test)` and
+/// `p_test = w_test / (sum_j w_j + w_test)`; that is, the smallest score whose cumulative weight
+/// reaches `(1 - alpha) (sum_j w_j + w_test)`. `None` when only the point mass at `+inf` gets
+/// there. Scores or weights that are not finite, and weights `<= 0`, are left out.
+pub fn weighted_conformal_quantile(
+    scores: &[f64],
+    weights: &[f64],
+    test_weight: f64,
+    alpha: f64,
+) -> Option<f64> {
     let mut pairs: Vec<(f64, f64)> = scores
         .iter()
         .zip(weights)
         .filter(|(s, w)| s.is_finite() && w.is_finite() && **w > 0.0)
         .map(|(&s, &w)| (s, w))
         .collect();
-    if pairs.is_empty() {
+    pairs.sort_by(|a, b| a.0.total_cmp(&b.0));
+    quantile_of_sorted(pairs.into_iter(), test_weight, alpha)
+}
+
+/// [`weighted_conformal_quantile`] of `(score, weight)` pairs already in increasing score order
+/// (pairs with a weight `<= 0` add nothing).
+fn quantile_of_sorted(
+    pairs: impl Iterator<Item = (f64, f64)> + Clone,
+    test_weight: f64,
+    alpha: f64,
+) -> Option<f64> {
+    let total: f64 = pairs.clone().map(|p| p.1.max(0.0)).sum();
+    if total <= 0.0 {
         return None;
     }
-    let total: f64 = pairs.iter().map(|p| p.1).sum();
-    let target = (1.0 - alpha) * (total + 1.0);
+    let target = (1.0 - alpha) * (total + test_weight.max(0.0));
     if total < target - WEIGHT_EPS {
         return None;
     }
-    pairs.sort_by(|a, b| a.0.total_cmp(&b.0));
     let mut cum = 0.0;
-    for &(s, w) in &pairs {
+    let mut last = None;
+    for (s, w) in pairs {
+        if w <= 0.0 {
+            continue;
+        }
         cum += w;
+        last = Some(s);
         if cum >= target - WEIGHT_EPS {
             return Some(s);
         }
     }
-    pairs.last().map(|p| p.0)
+    last
 }
 
 /// Whether `n` wells (total unit weight) can back a finite two-sided band at `level`:
@@ -230,6 +262,82 @@ pub struct BandCalibration {
     pub bins: MondrianBins,
     /// Per-bin facts and quantiles.
     pub bin_info: Vec<BinInfo>,
+    /// Localised quantiles (forest-proximity weights), when this band uses them; the per-bin
+    /// quantiles are then those of a single bin and serve the finiteness check.
+    #[serde(default)]
+    pub local: Option<Localisation>,
+}
+
+/// Held-out-well scores kept for localised quantiles: each query weighs calibration row `i` by
+/// `v_i(x) = (1 - locality) u_i + locality N w_i(x)`, where `u_i` is the row's well-unit weight,
+/// `N = sum_i u_i` the number of wells and `w_i(x)` the forest's quantile weights (summing to one
+/// over the calibration rows, which are the final forest's training rows in the same order). The
+/// new node carries a point mass of one well at `+inf` (see the module docs).
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct Localisation {
+    /// Share of the proximity weights, in (0, 1]; 0 would be the global band.
+    pub locality: f64,
+    /// Well-unit weight `u_i` of every calibration row, in row order.
+    pub unit_weights: Vec<f64>,
+    /// Calibration rows in increasing order of their lower-side score.
+    pub lo_rows: Vec<u32>,
+    /// Lower-side scores in increasing order (finite only).
+    pub lo_scores: Vec<f64>,
+    /// Calibration rows in increasing order of their upper-side score.
+    pub hi_rows: Vec<u32>,
+    /// Upper-side scores in increasing order (finite only).
+    pub hi_scores: Vec<f64>,
+}
+
+impl Localisation {
+    /// Keep the scores of the calibration rows (`s_lo`, `s_hi`, `unit` in row order).
+    pub fn new(locality: f64, s_lo: &[f64], s_hi: &[f64], unit: &[f64]) -> Self {
+        let sorted = |s: &[f64]| -> (Vec<u32>, Vec<f64>) {
+            let mut idx: Vec<u32> = (0..s.len() as u32)
+                .filter(|&i| s[i as usize].is_finite())
+                .collect();
+            idx.sort_by(|&a, &b| s[a as usize].total_cmp(&s[b as usize]));
+            let v = idx.iter().map(|&i| s[i as usize]).collect();
+            (idx, v)
+        };
+        let (lo_rows, lo_scores) = sorted(s_lo);
+        let (hi_rows, hi_scores) = sorted(s_hi);
+        Self {
+            locality,
+            unit_weights: unit.to_vec(),
+            lo_rows,
+            lo_scores,
+            hi_rows,
+            hi_scores,
+        }
+    }
+
+    /// Localised conformal quantiles `(Q_lo, Q_hi)` at side level `alpha_side` for a query whose
+    /// forest weights over the calibration rows are `prox` (row order; a shorter or longer
+    /// slice is read as zeros / cut). `None` where only the point mass at `+inf` reaches the
+    /// level.
+    pub fn quantiles(&self, prox: &[f64], alpha_side: f64) -> (Option<f64>, Option<f64>) {
+        let lam = self.locality;
+        let n_w: f64 = self.unit_weights.iter().sum();
+        let weight = |r: u32| -> f64 {
+            let r = r as usize;
+            (1.0 - lam) * self.unit_weights[r] + lam * n_w * prox.get(r).copied().unwrap_or(0.0)
+        };
+        let lo = self
+            .lo_scores
+            .iter()
+            .zip(&self.lo_rows)
+            .map(|(&s, &r)| (s, weight(r)));
+        let hi = self
+            .hi_scores
+            .iter()
+            .zip(&self.hi_rows)
+            .map(|(&s, &r)| (s, weight(r)));
+        (
+            quantile_of_sorted(lo, 1.0, alpha_side),
+            quantile_of_sorted(hi, 1.0, alpha_side),
+        )
+    }
 }
 
 /// One row's inputs to a band: the predicted value, the base edges the scores refer to (`mid`
@@ -314,7 +422,59 @@ impl BandCalibration {
             level,
             bins,
             bin_info,
+            local: None,
         }
+    }
+
+    /// Calibrate a localised band (one bin; see [`Localisation`]) on held-out-well rows, which
+    /// must be the training rows of the forest whose weights [`Self::apply_local`] is given, in
+    /// the same order.
+    pub fn fit_local(
+        method: BandMethod,
+        base: &[BandBase],
+        y: &[f64],
+        group: &[usize],
+        level: f64,
+        locality: f64,
+    ) -> Self {
+        let mut cal = Self::fit(method, base, y, group, level, 1, 1);
+        let (s_lo, s_hi): (Vec<f64>, Vec<f64>) = base
+            .iter()
+            .zip(y)
+            .map(|(b, &v)| ((b.lo - v) / b.scale, (v - b.hi) / b.scale))
+            .unzip();
+        cal.local = Some(Localisation::new(
+            locality,
+            &s_lo,
+            &s_hi,
+            &well_unit_weights(group),
+        ));
+        cal
+    }
+
+    /// Band for one row of a localised calibration, with the row's forest weights `prox` over the
+    /// calibration rows; as [`Self::apply`] when the calibration is not localised.
+    pub fn apply_local(&self, base: BandBase, bounds: (f64, f64), prox: &[f64]) -> (f64, f64, f64) {
+        match &self.local {
+            Some(l) => {
+                let (q_lo, q_hi) = l.quantiles(prox, (1.0 - self.level) / 2.0);
+                self.apply_quantiles(base, bounds, q_lo, q_hi)
+            }
+            None => self.apply(base, bounds),
+        }
+    }
+
+    /// Band for one row from given side quantiles (`None`: the physical bound).
+    pub fn apply_quantiles(
+        &self,
+        base: BandBase,
+        bounds: (f64, f64),
+        q_lo: Option<f64>,
+        q_hi: Option<f64>,
+    ) -> (f64, f64, f64) {
+        let lo = q_lo.map_or(bounds.0, |q| base.lo - q * base.scale);
+        let hi = q_hi.map_or(bounds.1, |q| base.hi + q * base.scale);
+        order_within_bounds(lo, base.mid, hi, bounds)
     }
 
     /// True when some bin cannot back a finite edge (that edge falls back to the bound).
@@ -328,9 +488,7 @@ impl BandCalibration {
     /// cannot back it is the physical bound.
     pub fn apply(&self, base: BandBase, bounds: (f64, f64)) -> (f64, f64, f64) {
         let info = &self.bin_info[self.bins.bin(base.mid).min(self.bin_info.len() - 1)];
-        let lo = info.q_lo.map_or(bounds.0, |q| base.lo - q * base.scale);
-        let hi = info.q_hi.map_or(bounds.1, |q| base.hi + q * base.scale);
-        order_within_bounds(lo, base.mid, hi, bounds)
+        self.apply_quantiles(base, bounds, info.q_lo, info.q_hi)
     }
 }
 
@@ -392,6 +550,53 @@ pub fn cross_fitted_band(
             lo[i] = l;
             hi[i] = h;
             few[i] = info.q_lo.is_none() || info.q_hi.is_none();
+        }
+    }
+    (lo, hi, few)
+}
+
+/// Cross-fitted localised band on out-of-fold rows, as [`cross_fitted_band`]: the rows of fold
+/// `k` get the band calibrated on the rows of all other folds, weighted by `prox[i]`, the
+/// quantile weights of row `i` from the forest fitted on those other folds' rows (in increasing
+/// row order, the order [`BandCalibration::fit_local`] keeps them in).
+#[allow(clippy::too_many_arguments)]
+pub fn cross_fitted_local_band(
+    method: BandMethod,
+    folds: &[usize],
+    base: &[BandBase],
+    y: &[f64],
+    group: &[usize],
+    level: f64,
+    locality: f64,
+    prox: &[Vec<f64>],
+    bounds: (f64, f64),
+) -> (Vec<f64>, Vec<f64>, Vec<bool>) {
+    let n = base.len();
+    let mut lo = vec![bounds.0; n];
+    let mut hi = vec![bounds.1; n];
+    let mut few = vec![true; n];
+    let k = super::folds::n_folds(folds);
+    let alpha_side = (1.0 - level) / 2.0;
+    for f in 0..k {
+        let train: Vec<usize> = (0..n).filter(|&i| folds[i] != f).collect();
+        if train.is_empty() {
+            continue;
+        }
+        let cal = BandCalibration::fit_local(
+            method,
+            &pick(base, &train),
+            &pick(y, &train),
+            &pick(group, &train),
+            level,
+            locality,
+        );
+        let local = cal.local.as_ref().expect("localised");
+        for i in (0..n).filter(|&i| folds[i] == f) {
+            let (q_lo, q_hi) = local.quantiles(&prox[i], alpha_side);
+            let (l, _, h) = cal.apply_quantiles(base[i], bounds, q_lo, q_hi);
+            lo[i] = l;
+            hi[i] = h;
+            few[i] = q_lo.is_none() || q_hi.is_none();
         }
     }
     (lo, hi, few)

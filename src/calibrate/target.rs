@@ -31,7 +31,7 @@
 
 use super::conformal::{
     BandBase, BandCalibration, BandMethod, BinInfo, MondrianBins, cross_fitted_band,
-    finite_band_possible, min_wells_for_band, pick,
+    cross_fitted_local_band, finite_band_possible, min_wells_for_band, pick,
 };
 use super::exceedance::{
     ExceedMethod, PitRecalibration, PredictiveSystem, bounded_cdf, crossing_probability,
@@ -277,6 +277,10 @@ pub struct BandCandidate {
     pub method: BandMethod,
     /// Mondrian bins asked for (merged down when wells are too few).
     pub max_bins: usize,
+    /// Share of forest-proximity weights in the localised band (0: global quantiles per bin;
+    /// see [`super::conformal::Localisation`]).
+    #[serde(default)]
+    pub locality: f64,
     /// Out-of-fold mean interval score (lower is better).
     #[serde(deserialize_with = "serde_nan::f64_or_nan")]
     pub interval_score: f64,
@@ -295,6 +299,9 @@ pub struct BandDiagnostics {
     pub method: BandMethod,
     /// Mondrian bins asked for by the kept candidate.
     pub max_bins: usize,
+    /// Locality of the kept candidate (0: global quantiles per Mondrian bin).
+    #[serde(default)]
+    pub locality: f64,
     /// Smallest scale of normalised scores (a tenth of the median forest spread).
     pub scale_floor: f64,
     /// Every candidate, with its out-of-fold scores.
@@ -448,6 +455,9 @@ fn derive_seed(seed: u64, stream: u64, index: u64) -> u64 {
     mix(seed ^ mix(stream.wrapping_mul(0x1_0000_0001).wrapping_add(index)))
 }
 
+/// Localities of the localised band candidates (share of forest-proximity weights).
+const LOCALITIES: &[f64] = &[0.25, 0.5, 0.75, 1.0];
+
 const STREAM_FOLDS: u64 = 1;
 const STREAM_FOREST: u64 = 2;
 const STREAM_BOOST: u64 = 3;
@@ -486,6 +496,8 @@ struct FoldOutput {
     q: [Vec<f64>; 3],
     cdf_thresholds: Vec<Vec<f64>>,
     pit_raw: Vec<f64>,
+    /// Quantile-forest weights of each held-out row over the fold's training rows.
+    prox: Vec<Vec<f64>>,
 }
 
 fn check_data(d: &TargetData) -> Result<(), CalibrateError> {
@@ -609,6 +621,7 @@ pub fn calibrate_target(
     let mut q_oof = [vec![f64::NAN; n], vec![f64::NAN; n], vec![f64::NAN; n]];
     let mut cdf_oof = vec![vec![f64::NAN; n]; t_values.len()];
     let mut pit_raw = vec![f64::NAN; n];
+    let mut prox_oof: Vec<Vec<f64>> = vec![Vec::new(); n];
     for o in &outputs {
         for (j, &i) in o.rows.iter().enumerate() {
             forest_oof[i] = o.forest_mean[j];
@@ -622,6 +635,7 @@ pub fn calibrate_target(
                 col[i] = c[j];
             }
             pit_raw[i] = o.pit_raw[j];
+            prox_oof[i] = o.prox[j].clone();
         }
     }
 
@@ -789,6 +803,7 @@ pub fn calibrate_target(
     struct Candidate {
         method: BandMethod,
         max_bins: usize,
+        locality: f64,
         base: Vec<BandBase>,
         lo: Vec<f64>,
         hi: Vec<f64>,
@@ -818,6 +833,23 @@ pub fn calibrate_target(
             candidates.push(Candidate {
                 method,
                 max_bins,
+                locality: 0.0,
+                base: base.clone(),
+                lo,
+                hi,
+                few,
+                score,
+            });
+        }
+        for &locality in LOCALITIES {
+            let (lo, hi, few) = cross_fitted_local_band(
+                method, &fold, &base, data.y, data.group, level, locality, &prox_oof, bounds,
+            );
+            let score = interval_score(data.y, &lo, &hi, alpha);
+            candidates.push(Candidate {
+                method,
+                max_bins: 1,
+                locality,
                 base: base.clone(),
                 lo,
                 hi,
@@ -838,6 +870,7 @@ pub fn calibrate_target(
         .map(|c| BandCandidate {
             method: c.method,
             max_bins: c.max_bins,
+            locality: c.locality,
             interval_score: c.score,
             coverage: crate::metrics::coverage(data.y, &c.lo, &c.hi),
             mean_width: crate::metrics::mean_width(&c.lo, &c.hi),
@@ -846,6 +879,7 @@ pub fn calibrate_target(
     let Candidate {
         method,
         max_bins: band_bins,
+        locality,
         base,
         lo: lo_oof,
         hi: hi_oof,
@@ -853,15 +887,19 @@ pub fn calibrate_target(
         ..
     } = candidates.swap_remove(chosen);
     drop(candidates);
-    let band = BandCalibration::fit(
-        method,
-        &base,
-        data.y,
-        data.group,
-        level,
-        band_bins,
-        settings.min_wells_per_bin,
-    );
+    let band = if locality > 0.0 {
+        BandCalibration::fit_local(method, &base, data.y, data.group, level, locality)
+    } else {
+        BandCalibration::fit(
+            method,
+            &base,
+            data.y,
+            data.group,
+            level,
+            band_bins,
+            settings.min_wells_per_bin,
+        )
+    };
     let need = min_wells_for_band(level);
     let too_few = band.too_few_wells() || !finite_band_possible(n_wells as f64, level);
     let message = too_few.then(|| {
@@ -887,6 +925,7 @@ pub fn calibrate_target(
     let band_diag = BandDiagnostics {
         method,
         max_bins: band_bins,
+        locality,
         scale_floor,
         candidates: band_candidates,
         bins: band.bin_info.clone(),
@@ -1139,6 +1178,11 @@ fn fit_fold(
     let xt = data.x.select(Axis(0), &test);
     let (mean, q, cdf) = forest.predict_with_distribution(xt.view(), 0, q_levels, t_values);
     let pit_raw = forest.cdf_at(xt.view(), 0, &pick(data.y, &test));
+    let prox = xt
+        .rows()
+        .into_iter()
+        .map(|r| forest.quantile_weights(&r.to_vec()))
+        .collect();
     let boost = booster.map_or_else(|| vec![f64::NAN; test.len()], |b| b.predict(xt.view()));
     Ok(FoldOutput {
         forest_mean: mean,
@@ -1152,6 +1196,7 @@ fn fit_fold(
             .map(|t| cdf.column(t).to_vec())
             .collect(),
         pit_raw,
+        prox,
         rows: test,
     })
 }
@@ -1177,8 +1222,21 @@ impl CalibratedTarget {
                 .contains(&ExceedMethod::ForestRecalibrated);
         let t_values: Vec<f64> = self.thresholds.iter().map(|t| t.value).collect();
         let levels = [a / 2.0, 0.5, 1.0 - a / 2.0];
-        // One walk of the forest gives the mean and the distribution together.
+        // One walk of the forest gives the mean and the distribution together, and for a
+        // localised band the proximity weights' side quantiles from the same leaves.
+        let mut local_q: Option<Vec<(Option<f64>, Option<f64>)>> = None;
         let (forest_mean, dist) = match (w > 0.0, need_dist) {
+            _ if self.band.local.is_some() => {
+                let local = self.band.local.as_ref().expect("checked");
+                let alpha_side = a / 2.0;
+                let (m, q, c, lq) =
+                    self.forest
+                        .predict_with_proximity(x, 0, &levels, &t_values, |prox| {
+                            local.quantiles(prox, alpha_side)
+                        });
+                local_q = Some(lq);
+                (Some(m), Some((q, c)))
+            }
             (true, true) => {
                 let (m, q, c) = self
                     .forest
@@ -1243,7 +1301,12 @@ impl CalibratedTarget {
                         ..BandBase::centred(mid)
                     },
                 };
-                let (lo, _, hi) = self.band.apply(base, self.bounds);
+                let (lo, _, hi) = match &local_q {
+                    Some(lq) => self
+                        .band
+                        .apply_quantiles(base, self.bounds, lq[i].0, lq[i].1),
+                    None => self.band.apply(base, self.bounds),
+                };
                 (lo, hi)
             })
             .collect();

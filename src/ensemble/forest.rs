@@ -467,7 +467,7 @@ impl Forest {
     /// Runs `f(start, m, leaves, acc, out)` on every chunk of rows in parallel (rows
     /// `start..start + m`, leaf ids of every tree at `leaves[t * m + r]`, scratch `acc` of
     /// length `acc_len`), and concatenates the outputs in row order.
-    fn map_chunks<T, F>(&self, x: ArrayView2<f64>, acc_len: usize, f: F) -> Vec<T>
+    pub(crate) fn map_chunks<T, F>(&self, x: ArrayView2<f64>, acc_len: usize, f: F) -> Vec<T>
     where
         T: Send,
         F: Fn(usize, usize, &[u32], &mut [f64], &mut Vec<T>) + Sync,
@@ -560,7 +560,7 @@ impl Forest {
     }
 
     /// Builds the quantile-forest kernel of one output.
-    fn qrf_kernel(&self, output: usize) -> QrfKernel {
+    pub(crate) fn qrf_kernel(&self, output: usize) -> QrfKernel {
         let n = self.n_train;
         let k = self.n_outputs;
         let mut order: Vec<u32> = (0..n as u32).collect();

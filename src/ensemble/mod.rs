@@ -25,7 +25,8 @@
 //!
 //! Layout: [`binning`] (quantile bins), [`tree`] (flat node arrays, growing, `apply`),
 //! [`forest`] (bagged forests, OOB, importance), [`quantile`] (weighted quantiles and the
-//! quantile-forest kernel), [`boost`] (gradient boosting), [`persist`] (versioned JSON).
+//! quantile-forest kernel), [`proximity`] (quantile-forest weights of the training rows at
+//! prediction time), [`boost`] (gradient boosting), [`persist`] (versioned JSON).
 //!
 //! Determinism: every random choice derives its seed from the user's seed and the index of the
 //! item (tree, round, feature, repeat), never from thread identity, and every reduction runs in
@@ -35,6 +36,7 @@ pub mod binning;
 pub mod boost;
 pub mod forest;
 pub mod persist;
+pub mod proximity;
 pub mod quantile;
 pub mod tree;
 

@@ -6,6 +6,7 @@ mod end_correction;
 mod folds;
 mod generated;
 mod isotonic;
+mod local;
 mod metrics;
 mod pit;
 mod target;

@@ -281,10 +281,12 @@ fn bad_input_is_a_clear_error() {
     };
     let e = calibrate_target(&data(&f), &bad).unwrap_err().to_string();
     assert!(e.contains("level"), "{e}");
-    // Every band candidate (3 methods x 1..=3 bins) was scored and the best one kept.
+    // Every band candidate (3 methods x (1..=3 bins + 4 localities)) was scored and the best
+    // one kept.
     let cal = calibrate_target(&data(&f), &settings()).unwrap();
     let b = &cal.diagnostics.band;
-    assert_eq!(b.candidates.len(), 9);
+    assert_eq!(b.candidates.len(), 21);
+    assert_eq!(b.candidates.iter().filter(|c| c.locality > 0.0).count(), 12);
     let best = b
         .candidates
         .iter()
@@ -293,7 +295,7 @@ fn bad_input_is_a_clear_error() {
     let kept = b
         .candidates
         .iter()
-        .find(|c| c.method == b.method && c.max_bins == b.max_bins)
+        .find(|c| c.method == b.method && c.max_bins == b.max_bins && c.locality == b.locality)
         .unwrap();
     assert_eq!(kept.interval_score, best);
     for m in [
