@@ -35,6 +35,21 @@
 //! when the scores differ between them; the calibration step chooses the number of bins by the
 //! out-of-fold interval score.
 //!
+//! **Localised quantiles.** Wells sit where the reservoir changed and most grid nodes did not, so
+//! the wells' score population is not a typical node's. A localised band weighs each held-out-well
+//! score by the query's likeness to that row, read from the forest: the quantile-forest weights
+//! `w_i(x)` (Meinshausen 2006, JMLR 7:983), as Lu & Hardin (2021, "A unified framework for random
+//! forest prediction error estimation", JMLR 22(8)) weight out-of-bag errors to estimate the
+//! error distribution at `x`. Row `i` weighs `v_i(x) = (1 - l) u_i + l N w_i(x)` (`u_i` its
+//! well-unit weight, `N` the number of wells, `l` the locality) and the edge is the weighted
+//! conformal quantile of Tibshirani, Barber, Candes & Ramdas (2019, "Conformal prediction under
+//! covariate shift", NeurIPS; [`weighted_conformal_quantile`]) with the new node's point mass of
+//! one well at `+inf`, the localised form of Guan (2023, "Localized conformal prediction",
+//! Biometrika 110:33). At `l = 0` this is the global rule above with its finite-sample guarantee;
+//! for `l > 0` the weights depend on the query and the guarantee is only approximate (the
+//! neighbourhoods of a few dozen wells are small), so the calibration step checks the candidates
+//! on held-out wells ([`Localisation`], [`cross_fitted_local_band`]).
+//!
 //! **Too few wells.** When `ceil((n+1)(1-a/2)) > n` the data cannot back a finite edge at the
 //! requested level; the edge is then the target's physical bound and the band is flagged.
 
