@@ -204,36 +204,64 @@ impl Applicability {
     pub fn assess(&self, x: ArrayView2<f64>) -> Assessment {
         let p = self.n_features();
         let n_train = self.train.len() / p.max(1);
-        let rows: Vec<(f64, u32)> = (0..x.nrows())
+        // Rows are taken in chunks; within a chunk the nearest training row of the previous row
+        // is measured first, so that the early exit below prunes more (neighbouring grid nodes
+        // are alike). The minimum distance, and so the result, does not depend on that order:
+        // every pair's distance is summed in the same order and only full sums can lower it.
+        const CHUNK: usize = 512;
+        let n = x.nrows();
+        let rows: Vec<(f64, u32)> = (0..n.div_ceil(CHUNK))
             .into_par_iter()
-            .map(|r| {
-                let row = x.row(r);
+            .flat_map_iter(|c| {
                 let mut z = vec![0.0; p];
-                let mut outside = 0u32;
-                for c in 0..p {
-                    let v = row[c];
-                    if !v.is_finite() {
-                        return (f64::NAN, 0);
-                    }
-                    z[c] = (v - self.mean[c]) / self.scale[c] * self.weight[c];
-                    if self.range_checked[c] && (v < self.min[c] || v > self.max[c]) {
-                        outside += 1;
-                    }
-                }
-                let mut best = f64::INFINITY;
-                for t in 0..n_train {
-                    let tr = &self.train[t * p..(t + 1) * p];
-                    let mut s = 0.0;
+                let mut hint = 0usize;
+                let mut out = Vec::with_capacity(CHUNK);
+                for r in c * CHUNK..((c + 1) * CHUNK).min(n) {
+                    let row = x.row(r);
+                    let mut outside = 0u32;
+                    let mut finite = true;
                     for c in 0..p {
-                        let d = z[c] - tr[c];
-                        s += d * d;
-                        if s >= best {
+                        let v = row[c];
+                        if !v.is_finite() {
+                            finite = false;
                             break;
                         }
+                        z[c] = (v - self.mean[c]) / self.scale[c] * self.weight[c];
+                        if self.range_checked[c] && (v < self.min[c] || v > self.max[c]) {
+                            outside += 1;
+                        }
                     }
-                    best = best.min(s);
+                    if !finite {
+                        out.push((f64::NAN, 0));
+                        continue;
+                    }
+                    let dist = |t: usize, best: f64| -> f64 {
+                        let tr = &self.train[t * p..(t + 1) * p];
+                        let mut s = 0.0;
+                        for c in 0..p {
+                            let d = z[c] - tr[c];
+                            s += d * d;
+                            if s >= best {
+                                return f64::INFINITY;
+                            }
+                        }
+                        s
+                    };
+                    let mut best = if n_train > 0 {
+                        dist(hint, f64::INFINITY)
+                    } else {
+                        f64::INFINITY
+                    };
+                    for t in 0..n_train {
+                        let s = dist(t, best);
+                        if s < best {
+                            best = s;
+                            hint = t;
+                        }
+                    }
+                    out.push((best.sqrt() / self.mean_distance, outside));
                 }
-                (best.sqrt() / self.mean_distance, outside)
+                out
             })
             .collect();
         let di: Vec<f64> = rows.iter().map(|r| r.0).collect();
@@ -321,6 +349,54 @@ mod tests {
         assert!(a.di[2].is_nan());
         assert!(a.inside[0] && !a.inside[1] && !a.inside[2]);
         assert_eq!(a.outside_range, vec![0, 1, 0]);
+    }
+
+    #[test]
+    fn chunked_search_equals_brute_force_and_row_order() {
+        // 1,300 query rows (three chunks) on a smooth path, 40 training rows, 3 features:
+        // the nearest-neighbour DI must equal a plain search over every training row, and
+        // reversing the query rows must reverse the answers.
+        let pseudo = |k: usize| ((k as f64 * 12.9898).sin() * 43758.5453).fract();
+        let train: Vec<Vec<f64>> = (0..40)
+            .map(|i| (0..3).map(|c| pseudo(i * 3 + c) * (c + 1) as f64).collect())
+            .collect();
+        let x = matrix(&train);
+        let fold: Vec<usize> = (0..40).map(|i| i % 5).collect();
+        let aoa = Applicability::fit(
+            &["a".into(), "b".into(), "c".into()],
+            x.view(),
+            &[1.0, 2.0, 0.5],
+            &fold,
+            &[true; 3],
+        )
+        .unwrap();
+        let q: Vec<Vec<f64>> = (0..1300)
+            .map(|r| {
+                let t = r as f64 / 1300.0;
+                vec![t * 1.2 - 0.1, (6.0 * t).sin() + 1.0, 3.0 * t * t]
+            })
+            .collect();
+        let got = aoa.assess(matrix(&q).view());
+        let p = 3;
+        for (r, row) in q.iter().enumerate() {
+            let z: Vec<f64> = (0..p)
+                .map(|c| (row[c] - aoa.mean[c]) / aoa.scale[c] * aoa.weight[c])
+                .collect();
+            let best = (0..40)
+                .map(|t| {
+                    (0..p)
+                        .map(|c| (z[c] - aoa.train[t * p + c]).powi(2))
+                        .sum::<f64>()
+                })
+                .fold(f64::INFINITY, f64::min);
+            let want = best.sqrt() / aoa.mean_distance;
+            assert!((got.di[r] - want).abs() <= 1e-12 * want.max(1.0), "row {r}");
+        }
+        let rev: Vec<Vec<f64>> = q.iter().rev().cloned().collect();
+        let back = aoa.assess(matrix(&rev).view());
+        let mut di = back.di.clone();
+        di.reverse();
+        assert_eq!(di, got.di);
     }
 
     #[test]

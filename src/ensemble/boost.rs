@@ -512,6 +512,11 @@ pub struct Booster {
 }
 
 impl Booster {
+    /// The fitted trees, in boosting order.
+    pub fn trees(&self) -> &[Tree] {
+        &self.trees
+    }
+
     /// Predictions for every row of `x` (rows x features, NaN = missing).
     ///
     /// # Panics

@@ -15,7 +15,8 @@ const OFF_GRID_LISTED: usize = 5;
 
 /// Writes a map as XYZ text, atomically: a `#` comment header, then one `x y value` line per node
 /// in index order, nulls written as the grid's null value. Coordinates and values use the shortest
-/// decimal form that reads back to the same `f64`.
+/// decimal form that reads back to the same `f64` (Ryu, Adams 2018, PLDI; exponent form such as
+/// `1e-7` for very small or large magnitudes).
 pub fn write(path: &Path, grid: &Grid, values: &[f64]) -> Result<(), IoError> {
     check_len(path, grid, values)?;
     atomic::write_with(path, |w| {
@@ -24,13 +25,23 @@ pub fn write(path: &Path, grid: &Grid, values: &[f64]) -> Result<(), IoError> {
             "# x y value; {} x {} nodes, dx={} dy={} rotation={}, null={}",
             grid.nx, grid.ny, grid.dx, grid.dy, grid.rotation, grid.null_value
         )?;
+        let mut buf = ryu::Buffer::new();
+        let mut line: Vec<u8> = Vec::with_capacity(64 * grid.nx);
         for j in 0..grid.ny {
+            line.clear();
             for i in 0..grid.nx {
                 let (x, y) = grid.node_xy(i, j);
                 let v = values[grid.index(i, j)];
                 let v = if v.is_nan() { grid.null_value } else { v };
-                writeln!(w, "{x} {y} {v}")?;
+                for (k, f) in [x, y, v].into_iter().enumerate() {
+                    if k > 0 {
+                        line.push(b' ');
+                    }
+                    line.extend_from_slice(buf.format(f).as_bytes());
+                }
+                line.push(b'\n');
             }
+            w.write_all(&line)?;
         }
         Ok(())
     })
