@@ -14,13 +14,8 @@
 //!    applied at a strength `s` in {1/4, 1/2, 3/4, 1} as `raw + s (iso(raw) - raw)`, the strength
 //!    with the lowest out-of-fold squared error kept, and only if it beats the uncorrected
 //!    predictor. The final map is fitted on all out-of-fold pairs.
-//! 4. Band: [`BandMethod::CvResidual`], [`BandMethod::Normalized`] and [`BandMethod::Cqr`], each
-//!    with 1..`max_bins` Mondrian bins and localised by forest proximity at each of
-//!    [`LOCALITIES`] ([`super::conformal::Localisation`]), cross-fitted on held-out wells. The
-//!    out-of-fold interval score (Gneiting & Raftery 2007) decides, by the one-standard-error
-//!    rule (Breiman, Friedman, Olshen & Stone 1984, sec. 3.4.3): the most localised candidate
-//!    within one standard error (wells as units) of the lowest score is kept, because held-out
-//!    wells cannot show what locality gains at nodes unlike the wells.
+//! 4. Band: [`BandMethod::CvResidual`] and [`BandMethod::Cqr`], each cross-fitted on held-out
+//!    wells; the one with the lower out-of-fold interval score (Gneiting & Raftery 2007) is kept.
 //! 5. Exceedance per threshold: conformal predictive system or recalibrated forest CDF, whichever
 //!    has the lower out-of-fold Brier score.
 //! 6. Metrics overall and per step on the out-of-fold rows; final models fitted on all rows.
@@ -461,7 +456,7 @@ fn derive_seed(seed: u64, stream: u64, index: u64) -> u64 {
 }
 
 /// Localities of the localised band candidates (share of forest-proximity weights).
-pub const LOCALITIES: &[f64] = &[0.25, 0.5, 0.75, 1.0];
+const LOCALITIES: &[f64] = &[0.25, 0.5, 0.75, 1.0];
 
 const STREAM_FOLDS: u64 = 1;
 const STREAM_FOREST: u64 = 2;
@@ -481,27 +476,6 @@ fn scale_floor(spread: &[f64], bounds: (f64, f64)) -> f64 {
     }
     s.sort_by(|a, b| a.total_cmp(b));
     (0.1 * s[s.len() / 2]).max(fallback)
-}
-
-/// Standard error of the mean of per-row values with wells as units: the standard deviation of
-/// the per-well means over the square root of the number of wells (0 with fewer than 2 wells).
-fn well_standard_error(v: &[f64], group: &[usize]) -> f64 {
-    let mut sums = std::collections::BTreeMap::<usize, (f64, f64)>::new();
-    for (&x, &g) in v.iter().zip(group) {
-        if x.is_finite() {
-            let e = sums.entry(g).or_insert((0.0, 0.0));
-            e.0 += x;
-            e.1 += 1.0;
-        }
-    }
-    let means: Vec<f64> = sums.values().map(|(s, c)| s / c).collect();
-    let k = means.len() as f64;
-    if k < 2.0 {
-        return 0.0;
-    }
-    let m = means.iter().sum::<f64>() / k;
-    let var = means.iter().map(|x| (x - m).powi(2)).sum::<f64>() / (k - 1.0);
-    (var / k).sqrt()
 }
 
 /// Weighted mean squared error.
@@ -884,32 +858,8 @@ pub fn calibrate_target(
             });
         }
     }
-    let best_score = (0..candidates.len()).fold(0, |b, c| {
+    let chosen = (0..candidates.len()).fold(0, |b, c| {
         if candidates[c].score < candidates[b].score {
-            c
-        } else {
-            b
-        }
-    });
-    // One-standard-error rule (Breiman, Friedman, Olshen & Stone 1984, sec. 3.4.3): among the
-    // candidates whose out-of-fold interval score is within one standard error (wells as units)
-    // of the best, keep the most localised. Held-out wells cannot see the benefit of locality at
-    // nodes unlike the wells, where the band's population differs from theirs.
-    let tolerance = well_standard_error(
-        &(0..n)
-            .map(|i| {
-                let c = &candidates[best_score];
-                interval_score(&data.y[i..=i], &c.lo[i..=i], &c.hi[i..=i], alpha)
-            })
-            .collect::<Vec<_>>(),
-        data.group,
-    );
-    let limit = candidates[best_score].score + tolerance;
-    let chosen = (0..candidates.len()).fold(best_score, |b, c| {
-        let (cb, cc) = (&candidates[b], &candidates[c]);
-        if cc.score <= limit
-            && (cc.locality > cb.locality || (cc.locality == cb.locality && cc.score < cb.score))
-        {
             c
         } else {
             b
