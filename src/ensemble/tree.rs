@@ -463,6 +463,13 @@ pub(crate) fn grow(
         wy,
         ww,
         fh1: Box::new([[0.0; 3]; 256]),
+        pre: Box::new(Prefix1 {
+            code: [0; 256],
+            w: [0.0; 256],
+            s: [0.0; 256],
+            c: [0.0; 256],
+            score: [0.0; 256],
+        }),
         params: *params,
         pool: Vec::new(),
         fh: vec![0.0; 256 * stride],
@@ -486,6 +493,8 @@ struct Grower<'a> {
     ww: Vec<[f64; 2]>,
     /// Single output: one feature's histogram for a small node (zero between uses).
     fh1: Box<[[f64; 3]; 256]>,
+    /// Single output: prefix sums over one feature's non-empty bins in a node.
+    pre: Box<Prefix1>,
     params: GrowParams,
     pool: Vec<Vec<f64>>,
     /// One feature's histogram for a small node (zero between uses).
@@ -574,18 +583,20 @@ impl Grower<'_> {
                     c <= bin
                 }
             };
+            // branch-free: every row is written to both sides, and only its side advances
             self.scratch.clear();
+            self.scratch.resize(end - start, 0);
             let mut w = start;
+            let mut n_right = 0;
             for i in start..end {
                 let r = rows[i];
-                if goes_left(r) {
-                    rows[w] = r;
-                    w += 1;
-                } else {
-                    self.scratch.push(r);
-                }
+                let left = goes_left(r);
+                rows[w] = r;
+                self.scratch[n_right] = r;
+                w += usize::from(left);
+                n_right += usize::from(!left);
             }
-            rows[w..end].copy_from_slice(&self.scratch);
+            rows[w..end].copy_from_slice(&self.scratch[..n_right]);
             let mid = w;
             let (m_left, m_right) = (mid - start, end - mid);
 
@@ -804,11 +815,17 @@ impl Grower<'_> {
                     let miss_at = MISSING_BIN as usize * s;
                     let miss = &hf[miss_at..miss_at + s];
                     if k == 1 {
-                        let entries =
-                            (0..nb).map(|b| (b as u8, [hf[3 * b], hf[3 * b + 1], hf[3 * b + 2]]));
                         let miss = [miss[0], miss[1], miss[2]];
+                        let pre = &mut *self.pre;
+                        let mut acc = [0.0; 3];
+                        let mut len = 0;
+                        for (b, e) in hf[..3 * nb].chunks_exact(3).enumerate() {
+                            if e[2] != 0.0 {
+                                pre.push(&mut len, b as u8, &mut acc, [e[0], e[1], e[2]]);
+                            }
+                        }
                         let min_leaf = self.params.min_samples_leaf as f64;
-                        scan1(min_leaf, f, entries, miss, sums, best)
+                        scan1(min_leaf, f, pre, len, miss, sums, best)
                     } else {
                         scan(
                             &mut self.scan_ctx(),
@@ -871,8 +888,8 @@ impl Grower<'_> {
         let col = &self.data.codes[f * n..(f + 1) * n];
         let fh = &mut *self.fh1;
         let ww = &self.ww[..];
-        let mut bits = [0u64; 4];
-        for &r in rows {
+        let mut sets = [[0u64; 4]; 4];
+        for (i, &r) in rows.iter().enumerate() {
             let r = r as usize;
             let b = col[r];
             let [w, wy] = ww[r];
@@ -880,16 +897,25 @@ impl Grower<'_> {
             e[0] += w;
             e[1] += wy;
             e[2] += 1.0;
-            bits[(b >> 6) as usize] |= 1u64 << (b & 63);
+            sets[i & 3][(b >> 6) as usize] |= 1u64 << (b & 63);
         }
+        let mut bits = union4(&sets);
         let miss = std::mem::take(&mut fh[MISSING_BIN as usize]);
         bits[3] &= !(1u64 << 63);
+        // prefix sums over the bins holding rows, ascending, clearing each bin as it is read
+        let pre = &mut *self.pre;
+        let mut acc = [0.0; 3];
+        let mut len = 0;
+        for (wi, mut word) in bits.into_iter().enumerate() {
+            while word != 0 {
+                let b = wi * 64 + word.trailing_zeros() as usize;
+                word &= word - 1;
+                let e = std::mem::take(&mut fh[b]);
+                pre.push(&mut len, b as u8, &mut acc, e);
+            }
+        }
         let min_leaf = self.params.min_samples_leaf as f64;
-        // read each bin once, clearing it; bins left after an early end are cleared after
-        let mut entries = BitIter::new(bits).map(|b| (b, std::mem::take(&mut fh[b as usize])));
-        let nonconstant = scan1(min_leaf, f, entries.by_ref(), miss, total, best);
-        entries.for_each(drop);
-        nonconstant
+        scan1(min_leaf, f, pre, len, miss, total, best)
     }
 
     /// Sums the node's rows by bin code of feature `f` into `fh` and lists the non-missing
@@ -898,9 +924,9 @@ impl Grower<'_> {
     fn small_hist(&mut self, f: usize, rows: &[u32]) {
         let (n, k, s) = (self.data.n, self.k, self.stride);
         let col = &self.data.codes[f * n..(f + 1) * n];
-        let mut bits = [0u64; 4];
+        let mut sets = [[0u64; 4]; 4];
         let fh = &mut self.fh[..];
-        for &r in rows {
+        for (i, &r) in rows.iter().enumerate() {
             let r = r as usize;
             let b = col[r] as usize;
             let h = &mut fh[b * s..(b + 1) * s];
@@ -909,8 +935,9 @@ impl Grower<'_> {
                 h[1 + j] += self.wy[r * k + j];
             }
             h[k + 1] += 1.0;
-            bits[b >> 6] |= 1 << (b & 63);
+            sets[i & 3][b >> 6] |= 1u64 << (b & 63);
         }
+        let mut bits = union4(&sets);
         bits[3] &= !(1u64 << 63); // the missing bin is handled apart
         self.touched.clear();
         for (wi, mut word) in bits.into_iter().enumerate() {
@@ -921,6 +948,13 @@ impl Grower<'_> {
             }
         }
     }
+}
+
+/// Union of four 256-bit sets. Rows mark the bins they fall in round-robin in four sets,
+/// so that consecutive rows setting bits in the same word do not wait on each other.
+#[inline(always)]
+fn union4(sets: &[[u64; 4]; 4]) -> [u64; 4] {
+    std::array::from_fn(|w| sets[0][w] | sets[1][w] | sets[2][w] | sets[3][w])
 }
 
 /// Scratch and limits for [`scan`].
@@ -1007,93 +1041,119 @@ fn scan(
     nonempty >= 2
 }
 
-/// [`scan`] for a single output, with the sums in registers: `entries` yields the
-/// non-missing bins in ascending code order with their (weight, weighted target, count).
+/// Prefix sums of one feature's non-empty bins in a node (single output): entry `i` holds the
+/// bin code and the sums of weight, weighted target and count over that bin and every
+/// non-empty bin below it; `score` is scratch for [`scan1`].
+struct Prefix1 {
+    code: [u8; 256],
+    w: [f64; 256],
+    s: [f64; 256],
+    c: [f64; 256],
+    score: [f64; 256],
+}
+
+impl Prefix1 {
+    /// Appends bin `code` with sums `e`, accumulating into `acc`; `len` is the entry count.
+    #[inline(always)]
+    fn push(&mut self, len: &mut usize, code: u8, acc: &mut [f64; 3], e: [f64; 3]) {
+        acc[0] += e[0];
+        acc[1] += e[1];
+        acc[2] += e[2];
+        let i = *len & 255;
+        self.code[i] = code;
+        self.w[i] = acc[0];
+        self.s[i] = acc[1];
+        self.c[i] = acc[2];
+        *len += 1;
+    }
+
+    /// Scores the split after every entry with `add` (the missing rows, or zeros) joining
+    /// the left side: `S_L^2 / W_L + S_R^2 / W_R`, or minus infinity where a side has too
+    /// few rows or no weight. Returns the largest score and the first entry reaching it.
+    /// Branch-free over the entries, so the loop runs at the division throughput.
+    #[inline(always)]
+    fn best_split(
+        &mut self,
+        len: usize,
+        add: [f64; 3],
+        min_leaf: f64,
+        total: &[f64],
+    ) -> (usize, f64) {
+        let (w_tot, s_tot, c_tot) = (total[0], total[1], total[2]);
+        let len = len.min(256);
+        let score = &mut self.score[..len];
+        let (w, s, c) = (&self.w[..len], &self.s[..len], &self.c[..len]);
+        for i in 0..len {
+            let (wl, sl, cl) = (w[i] + add[0], s[i] + add[1], c[i] + add[2]);
+            let (wr, sr) = (w_tot - wl, s_tot - sl);
+            // S_L^2 / W_L + S_R^2 / W_R with one division
+            let v = (sl * sl * wr + sr * sr * wl) / (wl * wr);
+            // `&` rather than `&&`, so that no branch splits the loop
+            let ok = (cl >= min_leaf) & (c_tot - cl >= min_leaf) & (wl > 0.0) & (wr > 0.0);
+            score[i] = if ok { v } else { f64::NEG_INFINITY };
+        }
+        first_max(score)
+    }
+}
+
+/// The largest of `v` (no NaN) and the first index holding it; `(0, -inf)` when empty.
+#[inline(always)]
+fn first_max(v: &[f64]) -> (usize, f64) {
+    let mut m = [f64::NEG_INFINITY; 4];
+    let mut chunks = v.chunks_exact(4);
+    for ch in chunks.by_ref() {
+        for j in 0..4 {
+            m[j] = if ch[j] > m[j] { ch[j] } else { m[j] };
+        }
+    }
+    let mut mx = m[0].max(m[1]).max(m[2].max(m[3]));
+    for &x in chunks.remainder() {
+        mx = if x > mx { x } else { mx };
+    }
+    (v.iter().position(|&x| x == mx).unwrap_or(0), mx)
+}
+
+/// [`scan`] for a single output: `pre` holds the prefix sums of the `len` non-empty
+/// non-missing bins of feature `f`; a split is tried after every bin with the missing rows
+/// (`miss`) on either side, and an improvement is recorded in `best` (the first candidate
+/// in bin order, missing rows right before left, reaching the largest score). Returns
+/// whether the feature is non-constant in the node (rows in two or more bins, counting the
+/// missing bin).
 fn scan1(
     min_leaf: f64,
     f: usize,
-    entries: impl Iterator<Item = (u8, [f64; 3])>,
+    pre: &mut Prefix1,
+    len: usize,
     miss: [f64; 3],
     total: &[f64],
     best: &mut Best,
 ) -> bool {
-    let (w_tot, s_tot, c_tot) = (total[0], total[1], total[2]);
-    let [w_miss, s_miss, c_miss] = miss;
-    let mut nonempty = usize::from(c_miss > 0.0);
-    let (mut wl, mut sl, mut cl) = (0.0, 0.0, 0.0);
-    for (b, [w, sy, c]) in entries {
-        if c == 0.0 {
-            continue;
-        }
-        nonempty += 1;
-        wl += w;
-        sl += sy;
-        cl += c;
-        if c_tot - cl < min_leaf {
-            return nonempty >= 2 || c_tot - cl > 0.5;
-        }
-        if cl >= min_leaf {
-            let wr = w_tot - wl;
-            if wl > 0.0 && wr > 0.0 {
-                let sr = s_tot - sl;
-                let sc = sl * sl / wl + sr * sr / wr;
-                if sc > best.score {
-                    best.score = sc;
-                    best.feature = f;
-                    best.bin = b;
-                    best.missing_left = false;
-                    best.has_missing = c_miss > 0.0;
-                    best.left.copy_from_slice(&[wl, sl, cl]);
-                }
-            }
-        }
-        if c_miss > 0.0 && cl + c_miss >= min_leaf && c_tot - cl - c_miss >= min_leaf {
-            let (wl2, sl2) = (wl + w_miss, sl + s_miss);
-            let wr = w_tot - wl2;
-            if wl2 > 0.0 && wr > 0.0 {
-                let sr = s_tot - sl2;
-                let sc = sl2 * sl2 / wl2 + sr * sr / wr;
-                if sc > best.score {
-                    best.score = sc;
-                    best.feature = f;
-                    best.bin = b;
-                    best.missing_left = true;
-                    best.has_missing = true;
-                    best.left.copy_from_slice(&[wl2, sl2, cl + c_miss]);
-                }
-            }
-        }
+    let c_miss = miss[2];
+    if len + usize::from(c_miss > 0.0) < 2 {
+        return false;
     }
-    nonempty >= 2
-}
-
-/// The set bits of a 256-bit set, ascending.
-struct BitIter {
-    bits: [u64; 4],
-    word: usize,
-}
-
-impl BitIter {
-    fn new(bits: [u64; 4]) -> Self {
-        BitIter { bits, word: 0 }
-    }
-}
-
-impl Iterator for BitIter {
-    type Item = u8;
-
-    #[inline]
-    fn next(&mut self) -> Option<u8> {
-        while self.word < 4 {
-            let w = self.bits[self.word];
-            if w != 0 {
-                self.bits[self.word] = w & (w - 1);
-                return Some((self.word * 64 + w.trailing_zeros() as usize) as u8);
-            }
-            self.word += 1;
+    let (i_r, sc_r) = pre.best_split(len, [0.0; 3], min_leaf, total);
+    let (i, sc, missing_left) = if c_miss > 0.0 {
+        let (i_l, sc_l) = pre.best_split(len, miss, min_leaf, total);
+        if sc_l > sc_r || (sc_l == sc_r && i_l < i_r) {
+            (i_l, sc_l, true)
+        } else {
+            (i_r, sc_r, false)
         }
-        None
+    } else {
+        (i_r, sc_r, false)
+    };
+    if sc > best.score {
+        let add = if missing_left { miss } else { [0.0; 3] };
+        best.score = sc;
+        best.feature = f;
+        best.bin = pre.code[i];
+        best.missing_left = missing_left;
+        best.has_missing = c_miss > 0.0;
+        best.left
+            .copy_from_slice(&[pre.w[i] + add[0], pre.s[i] + add[1], pre.c[i] + add[2]]);
     }
+    true
 }
 
 /// Sum over outputs of `S_L^2 / W_L + S_R^2 / W_R` (the split's between-child sum of squares
