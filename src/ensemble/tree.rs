@@ -266,6 +266,8 @@ impl Tree {
     }
 
     /// Leaf ids of the rows `which` of a table with `p` features in the two-copy layout.
+    // forest fitting routes its out-of-bag rows while growing (see `grow`)
+    #[allow(dead_code)]
     pub(crate) fn apply_selected(&self, table: &[f64], p: usize, which: &[u32], out: &mut [u32]) {
         self.walk(table, |r| which[r] as usize * 2 * p, out);
     }
@@ -403,6 +405,9 @@ pub(crate) struct Grown {
     pub leaf_ranges: Vec<(usize, usize)>,
     /// Weighted variance reduction credited to each feature.
     pub gains: Vec<f64>,
+    /// The rows passed to [`grow`] as `routed` (rows left out of the fit), each with the leaf
+    /// id it falls in, grouped by leaf.
+    pub routed: Vec<(u32, u32)>,
 }
 
 /// A node waiting to be split or turned into a leaf; its sums (weight, weighted targets,
@@ -411,6 +416,10 @@ struct Pending {
     node: usize,
     start: usize,
     end: usize,
+    /// Range of the node's rows in the routed (left-out) rows.
+    routed: (usize, usize),
+    /// Sum over the node's rows and outputs of weight times target squared.
+    sq: f64,
     depth: usize,
     /// Full histogram (all features) when the node is large.
     hist: Option<Vec<f64>>,
@@ -431,22 +440,29 @@ struct Best {
 ///
 /// `targets` is `n x k` row-major (standardised outputs for a forest, pseudo-residuals for
 /// boosting); `weight[r]` is the effective weight of row `r` (sample weight times in-bag count);
-/// `rows` lists the distinct rows to use (all with positive weight).
+/// `rows` lists the distinct rows to use (all with positive weight). The rows `routed` (for
+/// a forest, the out-of-bag rows) take no part in the fit; they are sent down the tree as it
+/// grows, by their bin codes, which puts each in the leaf that [`Tree::apply`] would give its
+/// raw values (`bin(v) <= b` exactly when `v <= threshold`).
+#[allow(clippy::too_many_arguments)]
 pub(crate) fn grow(
     data: &Binned<'_>,
     targets: &[f64],
     k: usize,
     weight: &[f64],
     rows: Vec<u32>,
+    routed: Vec<u32>,
     params: &GrowParams,
     rng: &mut StdRng,
 ) -> Grown {
     let stride = k + 2;
     let mut wy = vec![0.0; data.n * k];
+    let mut q = vec![0.0; data.n];
     for &r in &rows {
         let r = r as usize;
         for j in 0..k {
             wy[r * k + j] = weight[r] * targets[r * k + j];
+            q[r] += wy[r * k + j] * targets[r * k + j];
         }
     }
     let ww = if k == 1 {
@@ -456,11 +472,11 @@ pub(crate) fn grow(
     };
     let mut g = Grower {
         data,
-        targets,
         k,
         stride,
         weight,
         wy,
+        q,
         ww,
         fh1: Box::new([[0.0; 3]; 256]),
         pre: Box::new(Prefix1 {
@@ -479,16 +495,17 @@ pub(crate) fn grow(
         order: (0..data.p).collect(),
         scratch: Vec::new(),
     };
-    g.run(rows, rng)
+    g.run(rows, routed, rng)
 }
 
 struct Grower<'a> {
     data: &'a Binned<'a>,
-    targets: &'a [f64],
     k: usize,
     stride: usize,
     weight: &'a [f64],
     wy: Vec<f64>,
+    /// Per row, the sum over outputs of weight times target squared.
+    q: Vec<f64>,
     /// Single output: (weight, weight * target) per row.
     ww: Vec<[f64; 2]>,
     /// Single output: one feature's histogram for a small node (zero between uses).
@@ -508,7 +525,7 @@ struct Grower<'a> {
 }
 
 impl Grower<'_> {
-    fn run(&mut self, mut rows: Vec<u32>, rng: &mut StdRng) -> Grown {
+    fn run(&mut self, mut rows: Vec<u32>, mut routed: Vec<u32>, rng: &mut StdRng) -> Grown {
         let p = self.data.p;
         // while growing, `nodes` holds every node (leaves point to themselves); the fitted
         // tree keeps only the internal ones
@@ -516,6 +533,8 @@ impl Grower<'_> {
         let mut leaf_of_node: Vec<u32> = vec![NOT_LEAF];
         let mut leaf_ranges: Vec<(usize, usize)> = Vec::new();
         let mut gains = vec![0.0; p];
+        let mut routed_leaves = Vec::with_capacity(routed.len());
+        let root_sq = rows.iter().map(|&r| self.q[r as usize]).sum();
 
         let mut root_sums = vec![0.0; self.stride];
         self.add_rows(&rows, &mut root_sums);
@@ -533,6 +552,8 @@ impl Grower<'_> {
             node: 0,
             start: 0,
             end: rows.len(),
+            routed: (0, routed.len()),
+            sq: root_sq,
             depth: 0,
             hist: root_hist,
         }];
@@ -550,13 +571,22 @@ impl Grower<'_> {
                 node,
                 start,
                 end,
+                routed: (r_start, r_end),
+                sq,
                 depth,
                 hist,
             } = pend;
             sums.copy_from_slice(&node_sums[node * s..(node + 1) * s]);
             let m = end - start;
             let found = if self.splittable(m, depth) {
-                self.find_split(&rows[start..end], &sums, hist.as_deref(), rng, &mut best)
+                self.find_split(
+                    &sums,
+                    sq,
+                    hist.as_deref(),
+                    rows[start..end].as_ref(),
+                    rng,
+                    &mut best,
+                )
             } else {
                 None
             };
@@ -565,8 +595,10 @@ impl Grower<'_> {
                     self.pool.push(h);
                 }
                 nodes[node] = leaf_node(node as u32);
-                leaf_of_node[node] = leaf_ranges.len() as u32;
+                let leaf = leaf_ranges.len() as u32;
+                leaf_of_node[node] = leaf;
                 leaf_ranges.push((start, end));
+                routed_leaves.extend(routed[r_start..r_end].iter().map(|&r| (r, leaf)));
                 continue;
             };
             gains[best.feature] += gain;
@@ -583,21 +615,17 @@ impl Grower<'_> {
                     c <= bin
                 }
             };
-            // branch-free: every row is written to both sides, and only its side advances
-            self.scratch.clear();
-            self.scratch.resize(end - start, 0);
-            let mut w = start;
-            let mut n_right = 0;
-            for i in start..end {
-                let r = rows[i];
+            let q = &self.q[..];
+            let (mut sq_l, mut sq_r) = (0.0, 0.0);
+            let n_left = partition(&mut rows[start..end], &mut self.scratch, |r| {
                 let left = goes_left(r);
-                rows[w] = r;
-                self.scratch[n_right] = r;
-                w += usize::from(left);
-                n_right += usize::from(!left);
-            }
-            rows[w..end].copy_from_slice(&self.scratch[..n_right]);
-            let mid = w;
+                // the children's sums in row order, as they would sum them themselves
+                let v = q[r as usize];
+                sq_l += if left { v } else { 0.0 };
+                sq_r += if left { 0.0 } else { v };
+                left
+            });
+            let mid = start + n_left;
             let (m_left, m_right) = (mid - start, end - mid);
 
             node_sums.extend_from_slice(&best.left);
@@ -618,6 +646,15 @@ impl Grower<'_> {
             nodes.push(leaf_node(ri as u32));
             leaf_of_node.push(NOT_LEAF);
             leaf_of_node.push(NOT_LEAF);
+            let r_mid = r_start
+                + partition(&mut routed[r_start..r_end], &mut self.scratch, |r| {
+                    let c = col[r as usize];
+                    if c == MISSING_BIN {
+                        missing_left
+                    } else {
+                        c <= bin
+                    }
+                });
 
             // children's histograms: build the smaller child's, subtract for the larger
             let want_l = self.wants_hist(m_left, depth + 1);
@@ -675,6 +712,8 @@ impl Grower<'_> {
                 node: ri,
                 start: mid,
                 end,
+                routed: (r_mid, r_end),
+                sq: sq_r,
                 depth: depth + 1,
                 hist: hr,
             });
@@ -682,6 +721,8 @@ impl Grower<'_> {
                 node: li,
                 start,
                 end: mid,
+                routed: (r_start, r_mid),
+                sq: sq_l,
                 depth: depth + 1,
                 hist: hl,
             });
@@ -692,6 +733,7 @@ impl Grower<'_> {
             rows,
             leaf_ranges,
             gains,
+            routed: routed_leaves,
         }
     }
 
@@ -766,11 +808,13 @@ impl Grower<'_> {
 
     /// Finds the best split of a node; returns its gain (weighted SSE reduction) and fills
     /// `best`, or `None` when no split satisfies the limits or improves the fit.
+    /// `sq` is the node's sum of weight times target squared (summed over outputs).
     fn find_split(
         &mut self,
-        rows: &[u32],
         sums: &[f64],
+        sq: f64,
         hist: Option<&[f64]>,
+        rows: &[u32],
         rng: &mut StdRng,
         best: &mut Best,
     ) -> Option<f64> {
@@ -779,21 +823,7 @@ impl Grower<'_> {
         if w_tot <= 0.0 {
             return None;
         }
-        // sum of squares, to tell a pure node and to scale the gain tolerance
-        let mut sq = 0.0;
-        if k == 1 {
-            for &r in rows {
-                let r = r as usize;
-                sq += self.ww[r][1] * self.targets[r];
-            }
-        } else {
-            for &r in rows {
-                let r = r as usize;
-                for j in 0..k {
-                    sq += self.wy[r * k + j] * self.targets[r * k + j];
-                }
-            }
-        }
+        // the sum of squares tells a pure node and scales the gain tolerance
         let parent_score: f64 = (0..k).map(|j| sums[1 + j] * sums[1 + j] / w_tot).sum();
         let tol = 1e-12 * sq.abs().max(f64::MIN_POSITIVE);
         if sq - parent_score <= tol {
@@ -948,6 +978,30 @@ impl Grower<'_> {
             }
         }
     }
+}
+
+/// Stable partition of `rows` by `goes_left` (called once per row, in order); returns the
+/// number going left, which end up first. Branch-free: every row is written to both sides
+/// and only its side's position advances.
+#[inline(always)]
+fn partition(
+    rows: &mut [u32],
+    scratch: &mut Vec<u32>,
+    mut goes_left: impl FnMut(u32) -> bool,
+) -> usize {
+    scratch.clear();
+    scratch.resize(rows.len(), 0);
+    let (mut n_left, mut n_right) = (0, 0);
+    for i in 0..rows.len() {
+        let r = rows[i];
+        let left = goes_left(r);
+        rows[n_left] = r;
+        scratch[n_right] = r;
+        n_left += usize::from(left);
+        n_right += usize::from(!left);
+    }
+    rows[n_left..].copy_from_slice(&scratch[..n_right]);
+    n_left
 }
 
 /// Union of four 256-bit sets. Rows mark the bins they fall in round-robin in four sets,
@@ -1229,7 +1283,7 @@ mod tests {
             n_try: x.ncols(),
         };
         let mut rng = StdRng::seed_from_u64(1);
-        grow(&data, y, 1, &w, rows, &params, &mut rng)
+        grow(&data, y, 1, &w, rows, Vec::new(), &params, &mut rng)
     }
 
     #[test]
@@ -1294,6 +1348,47 @@ mod tests {
         t.apply_rows(&wide, 2, &mut out);
         for (r, &leaf) in q.iter().zip(&out) {
             assert_eq!(t.apply(r), leaf as usize, "row {r:?}");
+        }
+    }
+
+    #[test]
+    fn routed_rows_reach_the_leaf_of_their_raw_values() {
+        // half the rows fit the tree, the other half (with missing values) are routed by bin
+        // code; each must land where walking its raw values lands
+        let n = 3000;
+        let x = Array2::from_shape_fn((n, 3), |(i, j)| {
+            if (i * 7 + j) % 11 == 0 {
+                f64::NAN
+            } else {
+                ((i * (31 + 17 * j)) % 211) as f64 / 7.0
+            }
+        });
+        let y: Vec<f64> = (0..n)
+            .map(|i| x[[i, 0]].min(20.0) * 2.0 - x[[i, 1]].max(3.0) + (i % 5) as f64)
+            .map(|v| if v.is_nan() { 1.0 } else { v })
+            .collect();
+        let mapper = BinMapper::fit(x.view(), 255);
+        let codes = mapper.transform(x.view());
+        let data = Binned::new(&codes, n, &mapper);
+        let w = vec![1.0; n];
+        let rows: Vec<u32> = (0..n as u32).filter(|r| r % 2 == 0).collect();
+        let routed: Vec<u32> = (0..n as u32).filter(|r| r % 2 == 1).collect();
+        let params = GrowParams {
+            max_depth: usize::MAX,
+            min_samples_leaf: 3,
+            n_try: 2,
+        };
+        let mut rng = StdRng::seed_from_u64(7);
+        let g = grow(&data, &y, 1, &w, rows, routed, &params, &mut rng);
+        assert!(g.leaf_ranges.len() > 50);
+        assert_eq!(g.routed.len(), n / 2);
+        let mut seen = vec![false; n];
+        for &(r, leaf) in &g.routed {
+            let r = r as usize;
+            assert!(r % 2 == 1 && !seen[r]);
+            seen[r] = true;
+            let row = [x[[r, 0]], x[[r, 1]], x[[r, 2]]];
+            assert_eq!(g.tree.apply(&row), leaf as usize, "row {r}");
         }
     }
 
