@@ -267,9 +267,8 @@ impl ForestSettings {
                 counts[idx[i] as usize] = 1;
             }
         }
-        let mut rows: Vec<u32> = (0..n as u32)
-            .filter(|&r| counts[r as usize] > 0 && w[r as usize] > 0.0)
-            .collect();
+        let mut rows: Vec<u32> = Vec::with_capacity(n);
+        rows.extend((0..n as u32).filter(|&r| counts[r as usize] > 0 && w[r as usize] > 0.0));
         if rows.is_empty() {
             // every drawn row has zero weight: fall back to all weighted rows once each
             for r in 0..n {
@@ -283,7 +282,8 @@ impl ForestSettings {
             in_tree[r as usize] = true;
         }
         // out-of-bag rows are routed to their leaves while the tree grows
-        let oob_rows: Vec<u32> = (0..n as u32).filter(|&r| !in_tree[r as usize]).collect();
+        let mut oob_rows: Vec<u32> = Vec::with_capacity(n - rows.len());
+        oob_rows.extend((0..n as u32).filter(|&r| !in_tree[r as usize]));
         let grown = grow(data, z, k, &rw, rows, oob_rows, params, &mut rng);
         let n_leaves = grown.leaf_ranges.len();
 

@@ -488,7 +488,12 @@ pub(crate) fn grow(
         }),
         params: *params,
         pool: Vec::new(),
-        fh: vec![0.0; 256 * stride],
+        // the multi-output small-node histogram (the single-output one is `fh1`)
+        fh: if k == 1 {
+            Vec::new()
+        } else {
+            vec![0.0; 256 * stride]
+        },
         touched: Vec::new(),
         acc: vec![0.0; stride],
         tmp: vec![0.0; stride],
@@ -529,9 +534,13 @@ impl Grower<'_> {
         let p = self.data.p;
         // while growing, `nodes` holds every node (leaves point to themselves); the fitted
         // tree keeps only the internal ones
-        let mut nodes: Vec<Node> = vec![leaf_node(0)];
-        let mut leaf_of_node: Vec<u32> = vec![NOT_LEAF];
-        let mut leaf_ranges: Vec<(usize, usize)> = Vec::new();
+        // a tree has at most one leaf per `min_samples_leaf` rows
+        let max_leaves = rows.len() / self.params.min_samples_leaf.max(1) + 1;
+        let mut nodes: Vec<Node> = Vec::with_capacity(2 * max_leaves);
+        nodes.push(leaf_node(0));
+        let mut leaf_of_node: Vec<u32> = Vec::with_capacity(2 * max_leaves);
+        leaf_of_node.push(NOT_LEAF);
+        let mut leaf_ranges: Vec<(usize, usize)> = Vec::with_capacity(max_leaves);
         let mut gains = vec![0.0; p];
         let mut routed_leaves = Vec::with_capacity(routed.len());
         let root_sq = rows.iter().map(|&r| self.q[r as usize]).sum();
@@ -546,7 +555,8 @@ impl Grower<'_> {
             None
         };
         let s = self.stride;
-        let mut node_sums = root_sums;
+        let mut node_sums = Vec::with_capacity(2 * max_leaves * s);
+        node_sums.extend_from_slice(&root_sums);
         let mut sums = vec![0.0; s];
         let mut stack = vec![Pending {
             node: 0,
