@@ -446,7 +446,7 @@ impl BoostSettings {
             for i in 0..nt {
                 grad[i] = loss.negative_gradient(yt[i] - f[i]);
             }
-            let grown = grow(&data, &grad, 1, &rw, rows, &params, &mut rng);
+            let grown = grow(&data, &grad, 1, &rw, rows, Vec::new(), &params, &mut rng);
             let mut values = Vec::with_capacity(grown.leaf_ranges.len());
             for &(a, b) in &grown.leaf_ranges {
                 res.clear();

@@ -171,8 +171,6 @@ impl ForestSettings {
             .collect();
         let mut x_train = Vec::with_capacity(n * p);
         copy_rows(&x, 0, n, &mut x_train);
-        let mut x_wide = Vec::with_capacity(2 * n * p);
-        copy_rows_wide(&x, 0, n, &mut x_wide);
 
         let mapper = BinMapper::fit(x, self.max_bins);
         let codes = mapper.transform(x);
@@ -186,7 +184,7 @@ impl ForestSettings {
 
         let fits: Vec<TreeFit> = (0..self.n_trees)
             .into_par_iter()
-            .map(|t| self.fit_tree(t, &data, &z, &y_train, k, &w, &x_wide, &params, draws))
+            .map(|t| self.fit_tree(t, &data, &z, &y_train, k, &w, &params, draws))
             .collect();
 
         // OOB means and importance, reduced in tree order
@@ -249,12 +247,10 @@ impl ForestSettings {
         y: &[f64],
         k: usize,
         w: &[f64],
-        x_wide: &[f64],
         params: &GrowParams,
         draws: usize,
     ) -> TreeFit {
         let n = data.n;
-        let p = data.p;
         let mut rng = StdRng::seed_from_u64(derive_seed(self.seed, STREAM_TREE, t as u64));
         let mut counts = vec![0u32; n];
         if self.bootstrap {
@@ -271,9 +267,8 @@ impl ForestSettings {
                 counts[idx[i] as usize] = 1;
             }
         }
-        let mut rows: Vec<u32> = (0..n as u32)
-            .filter(|&r| counts[r as usize] > 0 && w[r as usize] > 0.0)
-            .collect();
+        let mut rows: Vec<u32> = Vec::with_capacity(n);
+        rows.extend((0..n as u32).filter(|&r| counts[r as usize] > 0 && w[r as usize] > 0.0));
         if rows.is_empty() {
             // every drawn row has zero weight: fall back to all weighted rows once each
             for r in 0..n {
@@ -286,7 +281,10 @@ impl ForestSettings {
         for &r in &rows {
             in_tree[r as usize] = true;
         }
-        let grown = grow(data, z, k, &rw, rows, params, &mut rng);
+        // out-of-bag rows are routed to their leaves while the tree grows
+        let mut oob_rows: Vec<u32> = Vec::with_capacity(n - rows.len());
+        oob_rows.extend((0..n as u32).filter(|&r| !in_tree[r as usize]));
+        let grown = grow(data, z, k, &rw, rows, oob_rows, params, &mut rng);
         let n_leaves = grown.leaf_ranges.len();
 
         let mut values = vec![0.0; n_leaves * k];
@@ -312,10 +310,6 @@ impl ForestSettings {
         }
         let mut tree = grown.tree;
         tree.set_values(k, values);
-        let oob_rows: Vec<u32> = (0..n as u32).filter(|&r| !in_tree[r as usize]).collect();
-        let mut leaves = vec![0u32; oob_rows.len()];
-        tree.apply_selected(x_wide, p, &oob_rows, &mut leaves);
-        let oob = oob_rows.into_iter().zip(leaves).collect();
         TreeFit {
             tree,
             members: LeafMembers {
@@ -324,7 +318,7 @@ impl ForestSettings {
                 counts: m_counts,
             },
             gains: grown.gains,
-            oob,
+            oob: grown.routed,
         }
     }
 }

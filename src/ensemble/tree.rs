@@ -266,6 +266,8 @@ impl Tree {
     }
 
     /// Leaf ids of the rows `which` of a table with `p` features in the two-copy layout.
+    // forest fitting routes its out-of-bag rows while growing (see `grow`)
+    #[allow(dead_code)]
     pub(crate) fn apply_selected(&self, table: &[f64], p: usize, which: &[u32], out: &mut [u32]) {
         self.walk(table, |r| which[r] as usize * 2 * p, out);
     }
@@ -403,6 +405,9 @@ pub(crate) struct Grown {
     pub leaf_ranges: Vec<(usize, usize)>,
     /// Weighted variance reduction credited to each feature.
     pub gains: Vec<f64>,
+    /// The rows passed to [`grow`] as `routed` (rows left out of the fit), each with the leaf
+    /// id it falls in, grouped by leaf.
+    pub routed: Vec<(u32, u32)>,
 }
 
 /// A node waiting to be split or turned into a leaf; its sums (weight, weighted targets,
@@ -411,6 +416,10 @@ struct Pending {
     node: usize,
     start: usize,
     end: usize,
+    /// Range of the node's rows in the routed (left-out) rows.
+    routed: (usize, usize),
+    /// Sum over the node's rows and outputs of weight times target squared.
+    sq: f64,
     depth: usize,
     /// Full histogram (all features) when the node is large.
     hist: Option<Vec<f64>>,
@@ -431,22 +440,29 @@ struct Best {
 ///
 /// `targets` is `n x k` row-major (standardised outputs for a forest, pseudo-residuals for
 /// boosting); `weight[r]` is the effective weight of row `r` (sample weight times in-bag count);
-/// `rows` lists the distinct rows to use (all with positive weight).
+/// `rows` lists the distinct rows to use (all with positive weight). The rows `routed` (for
+/// a forest, the out-of-bag rows) take no part in the fit; they are sent down the tree as it
+/// grows, by their bin codes, which puts each in the leaf that [`Tree::apply`] would give its
+/// raw values (`bin(v) <= b` exactly when `v <= threshold`).
+#[allow(clippy::too_many_arguments)]
 pub(crate) fn grow(
     data: &Binned<'_>,
     targets: &[f64],
     k: usize,
     weight: &[f64],
     rows: Vec<u32>,
+    routed: Vec<u32>,
     params: &GrowParams,
     rng: &mut StdRng,
 ) -> Grown {
     let stride = k + 2;
     let mut wy = vec![0.0; data.n * k];
+    let mut q = vec![0.0; data.n];
     for &r in &rows {
         let r = r as usize;
         for j in 0..k {
             wy[r * k + j] = weight[r] * targets[r * k + j];
+            q[r] += wy[r * k + j] * targets[r * k + j];
         }
     }
     let ww = if k == 1 {
@@ -456,36 +472,51 @@ pub(crate) fn grow(
     };
     let mut g = Grower {
         data,
-        targets,
         k,
         stride,
         weight,
         wy,
+        q,
         ww,
         fh1: Box::new([[0.0; 3]; 256]),
+        pre: Box::new(Prefix1 {
+            code: [0; 256],
+            w: [0.0; 256],
+            s: [0.0; 256],
+            c: [0.0; 256],
+            score: [0.0; 256],
+        }),
         params: *params,
         pool: Vec::new(),
-        fh: vec![0.0; 256 * stride],
+        // the multi-output small-node histogram (the single-output one is `fh1`)
+        fh: if k == 1 {
+            Vec::new()
+        } else {
+            vec![0.0; 256 * stride]
+        },
         touched: Vec::new(),
         acc: vec![0.0; stride],
         tmp: vec![0.0; stride],
         order: (0..data.p).collect(),
         scratch: Vec::new(),
     };
-    g.run(rows, rng)
+    g.run(rows, routed, rng)
 }
 
 struct Grower<'a> {
     data: &'a Binned<'a>,
-    targets: &'a [f64],
     k: usize,
     stride: usize,
     weight: &'a [f64],
     wy: Vec<f64>,
+    /// Per row, the sum over outputs of weight times target squared.
+    q: Vec<f64>,
     /// Single output: (weight, weight * target) per row.
     ww: Vec<[f64; 2]>,
     /// Single output: one feature's histogram for a small node (zero between uses).
     fh1: Box<[[f64; 3]; 256]>,
+    /// Single output: prefix sums over one feature's non-empty bins in a node.
+    pre: Box<Prefix1>,
     params: GrowParams,
     pool: Vec<Vec<f64>>,
     /// One feature's histogram for a small node (zero between uses).
@@ -499,14 +530,20 @@ struct Grower<'a> {
 }
 
 impl Grower<'_> {
-    fn run(&mut self, mut rows: Vec<u32>, rng: &mut StdRng) -> Grown {
+    fn run(&mut self, mut rows: Vec<u32>, mut routed: Vec<u32>, rng: &mut StdRng) -> Grown {
         let p = self.data.p;
         // while growing, `nodes` holds every node (leaves point to themselves); the fitted
         // tree keeps only the internal ones
-        let mut nodes: Vec<Node> = vec![leaf_node(0)];
-        let mut leaf_of_node: Vec<u32> = vec![NOT_LEAF];
-        let mut leaf_ranges: Vec<(usize, usize)> = Vec::new();
+        // a tree has at most one leaf per `min_samples_leaf` rows
+        let max_leaves = rows.len() / self.params.min_samples_leaf.max(1) + 1;
+        let mut nodes: Vec<Node> = Vec::with_capacity(2 * max_leaves);
+        nodes.push(leaf_node(0));
+        let mut leaf_of_node: Vec<u32> = Vec::with_capacity(2 * max_leaves);
+        leaf_of_node.push(NOT_LEAF);
+        let mut leaf_ranges: Vec<(usize, usize)> = Vec::with_capacity(max_leaves);
         let mut gains = vec![0.0; p];
+        let mut routed_leaves = Vec::with_capacity(routed.len());
+        let root_sq = rows.iter().map(|&r| self.q[r as usize]).sum();
 
         let mut root_sums = vec![0.0; self.stride];
         self.add_rows(&rows, &mut root_sums);
@@ -518,12 +555,15 @@ impl Grower<'_> {
             None
         };
         let s = self.stride;
-        let mut node_sums = root_sums;
+        let mut node_sums = Vec::with_capacity(2 * max_leaves * s);
+        node_sums.extend_from_slice(&root_sums);
         let mut sums = vec![0.0; s];
         let mut stack = vec![Pending {
             node: 0,
             start: 0,
             end: rows.len(),
+            routed: (0, routed.len()),
+            sq: root_sq,
             depth: 0,
             hist: root_hist,
         }];
@@ -541,13 +581,22 @@ impl Grower<'_> {
                 node,
                 start,
                 end,
+                routed: (r_start, r_end),
+                sq,
                 depth,
                 hist,
             } = pend;
             sums.copy_from_slice(&node_sums[node * s..(node + 1) * s]);
             let m = end - start;
             let found = if self.splittable(m, depth) {
-                self.find_split(&rows[start..end], &sums, hist.as_deref(), rng, &mut best)
+                self.find_split(
+                    &sums,
+                    sq,
+                    hist.as_deref(),
+                    rows[start..end].as_ref(),
+                    rng,
+                    &mut best,
+                )
             } else {
                 None
             };
@@ -556,8 +605,10 @@ impl Grower<'_> {
                     self.pool.push(h);
                 }
                 nodes[node] = leaf_node(node as u32);
-                leaf_of_node[node] = leaf_ranges.len() as u32;
+                let leaf = leaf_ranges.len() as u32;
+                leaf_of_node[node] = leaf;
                 leaf_ranges.push((start, end));
+                routed_leaves.extend(routed[r_start..r_end].iter().map(|&r| (r, leaf)));
                 continue;
             };
             gains[best.feature] += gain;
@@ -574,19 +625,17 @@ impl Grower<'_> {
                     c <= bin
                 }
             };
-            self.scratch.clear();
-            let mut w = start;
-            for i in start..end {
-                let r = rows[i];
-                if goes_left(r) {
-                    rows[w] = r;
-                    w += 1;
-                } else {
-                    self.scratch.push(r);
-                }
-            }
-            rows[w..end].copy_from_slice(&self.scratch);
-            let mid = w;
+            let q = &self.q[..];
+            let (mut sq_l, mut sq_r) = (0.0, 0.0);
+            let n_left = partition(&mut rows[start..end], &mut self.scratch, |r| {
+                let left = goes_left(r);
+                // the children's sums in row order, as they would sum them themselves
+                let v = q[r as usize];
+                sq_l += if left { v } else { 0.0 };
+                sq_r += if left { 0.0 } else { v };
+                left
+            });
+            let mid = start + n_left;
             let (m_left, m_right) = (mid - start, end - mid);
 
             node_sums.extend_from_slice(&best.left);
@@ -607,6 +656,15 @@ impl Grower<'_> {
             nodes.push(leaf_node(ri as u32));
             leaf_of_node.push(NOT_LEAF);
             leaf_of_node.push(NOT_LEAF);
+            let r_mid = r_start
+                + partition(&mut routed[r_start..r_end], &mut self.scratch, |r| {
+                    let c = col[r as usize];
+                    if c == MISSING_BIN {
+                        missing_left
+                    } else {
+                        c <= bin
+                    }
+                });
 
             // children's histograms: build the smaller child's, subtract for the larger
             let want_l = self.wants_hist(m_left, depth + 1);
@@ -664,6 +722,8 @@ impl Grower<'_> {
                 node: ri,
                 start: mid,
                 end,
+                routed: (r_mid, r_end),
+                sq: sq_r,
                 depth: depth + 1,
                 hist: hr,
             });
@@ -671,6 +731,8 @@ impl Grower<'_> {
                 node: li,
                 start,
                 end: mid,
+                routed: (r_start, r_mid),
+                sq: sq_l,
                 depth: depth + 1,
                 hist: hl,
             });
@@ -681,6 +743,7 @@ impl Grower<'_> {
             rows,
             leaf_ranges,
             gains,
+            routed: routed_leaves,
         }
     }
 
@@ -755,11 +818,13 @@ impl Grower<'_> {
 
     /// Finds the best split of a node; returns its gain (weighted SSE reduction) and fills
     /// `best`, or `None` when no split satisfies the limits or improves the fit.
+    /// `sq` is the node's sum of weight times target squared (summed over outputs).
     fn find_split(
         &mut self,
-        rows: &[u32],
         sums: &[f64],
+        sq: f64,
         hist: Option<&[f64]>,
+        rows: &[u32],
         rng: &mut StdRng,
         best: &mut Best,
     ) -> Option<f64> {
@@ -768,21 +833,7 @@ impl Grower<'_> {
         if w_tot <= 0.0 {
             return None;
         }
-        // sum of squares, to tell a pure node and to scale the gain tolerance
-        let mut sq = 0.0;
-        if k == 1 {
-            for &r in rows {
-                let r = r as usize;
-                sq += self.ww[r][1] * self.targets[r];
-            }
-        } else {
-            for &r in rows {
-                let r = r as usize;
-                for j in 0..k {
-                    sq += self.wy[r * k + j] * self.targets[r * k + j];
-                }
-            }
-        }
+        // the sum of squares tells a pure node and scales the gain tolerance
         let parent_score: f64 = (0..k).map(|j| sums[1 + j] * sums[1 + j] / w_tot).sum();
         let tol = 1e-12 * sq.abs().max(f64::MIN_POSITIVE);
         if sq - parent_score <= tol {
@@ -804,11 +855,17 @@ impl Grower<'_> {
                     let miss_at = MISSING_BIN as usize * s;
                     let miss = &hf[miss_at..miss_at + s];
                     if k == 1 {
-                        let entries =
-                            (0..nb).map(|b| (b as u8, [hf[3 * b], hf[3 * b + 1], hf[3 * b + 2]]));
                         let miss = [miss[0], miss[1], miss[2]];
+                        let pre = &mut *self.pre;
+                        let mut acc = [0.0; 3];
+                        let mut len = 0;
+                        for (b, e) in hf[..3 * nb].chunks_exact(3).enumerate() {
+                            if e[2] != 0.0 {
+                                pre.push(&mut len, b as u8, &mut acc, [e[0], e[1], e[2]]);
+                            }
+                        }
                         let min_leaf = self.params.min_samples_leaf as f64;
-                        scan1(min_leaf, f, entries, miss, sums, best)
+                        scan1(min_leaf, f, pre, len, miss, sums, best)
                     } else {
                         scan(
                             &mut self.scan_ctx(),
@@ -871,8 +928,8 @@ impl Grower<'_> {
         let col = &self.data.codes[f * n..(f + 1) * n];
         let fh = &mut *self.fh1;
         let ww = &self.ww[..];
-        let mut bits = [0u64; 4];
-        for &r in rows {
+        let mut sets = [[0u64; 4]; 4];
+        for (i, &r) in rows.iter().enumerate() {
             let r = r as usize;
             let b = col[r];
             let [w, wy] = ww[r];
@@ -880,16 +937,25 @@ impl Grower<'_> {
             e[0] += w;
             e[1] += wy;
             e[2] += 1.0;
-            bits[(b >> 6) as usize] |= 1u64 << (b & 63);
+            sets[i & 3][(b >> 6) as usize] |= 1u64 << (b & 63);
         }
+        let mut bits = union4(&sets);
         let miss = std::mem::take(&mut fh[MISSING_BIN as usize]);
         bits[3] &= !(1u64 << 63);
+        // prefix sums over the bins holding rows, ascending, clearing each bin as it is read
+        let pre = &mut *self.pre;
+        let mut acc = [0.0; 3];
+        let mut len = 0;
+        for (wi, mut word) in bits.into_iter().enumerate() {
+            while word != 0 {
+                let b = wi * 64 + word.trailing_zeros() as usize;
+                word &= word - 1;
+                let e = std::mem::take(&mut fh[b]);
+                pre.push(&mut len, b as u8, &mut acc, e);
+            }
+        }
         let min_leaf = self.params.min_samples_leaf as f64;
-        // read each bin once, clearing it; bins left after an early end are cleared after
-        let mut entries = BitIter::new(bits).map(|b| (b, std::mem::take(&mut fh[b as usize])));
-        let nonconstant = scan1(min_leaf, f, entries.by_ref(), miss, total, best);
-        entries.for_each(drop);
-        nonconstant
+        scan1(min_leaf, f, pre, len, miss, total, best)
     }
 
     /// Sums the node's rows by bin code of feature `f` into `fh` and lists the non-missing
@@ -898,9 +964,9 @@ impl Grower<'_> {
     fn small_hist(&mut self, f: usize, rows: &[u32]) {
         let (n, k, s) = (self.data.n, self.k, self.stride);
         let col = &self.data.codes[f * n..(f + 1) * n];
-        let mut bits = [0u64; 4];
+        let mut sets = [[0u64; 4]; 4];
         let fh = &mut self.fh[..];
-        for &r in rows {
+        for (i, &r) in rows.iter().enumerate() {
             let r = r as usize;
             let b = col[r] as usize;
             let h = &mut fh[b * s..(b + 1) * s];
@@ -909,8 +975,9 @@ impl Grower<'_> {
                 h[1 + j] += self.wy[r * k + j];
             }
             h[k + 1] += 1.0;
-            bits[b >> 6] |= 1 << (b & 63);
+            sets[i & 3][b >> 6] |= 1u64 << (b & 63);
         }
+        let mut bits = union4(&sets);
         bits[3] &= !(1u64 << 63); // the missing bin is handled apart
         self.touched.clear();
         for (wi, mut word) in bits.into_iter().enumerate() {
@@ -921,6 +988,37 @@ impl Grower<'_> {
             }
         }
     }
+}
+
+/// Stable partition of `rows` by `goes_left` (called once per row, in order); returns the
+/// number going left, which end up first. Branch-free: every row is written to both sides
+/// and only its side's position advances.
+#[inline(always)]
+fn partition(
+    rows: &mut [u32],
+    scratch: &mut Vec<u32>,
+    mut goes_left: impl FnMut(u32) -> bool,
+) -> usize {
+    scratch.clear();
+    scratch.resize(rows.len(), 0);
+    let (mut n_left, mut n_right) = (0, 0);
+    for i in 0..rows.len() {
+        let r = rows[i];
+        let left = goes_left(r);
+        rows[n_left] = r;
+        scratch[n_right] = r;
+        n_left += usize::from(left);
+        n_right += usize::from(!left);
+    }
+    rows[n_left..].copy_from_slice(&scratch[..n_right]);
+    n_left
+}
+
+/// Union of four 256-bit sets. Rows mark the bins they fall in round-robin in four sets,
+/// so that consecutive rows setting bits in the same word do not wait on each other.
+#[inline(always)]
+fn union4(sets: &[[u64; 4]; 4]) -> [u64; 4] {
+    std::array::from_fn(|w| sets[0][w] | sets[1][w] | sets[2][w] | sets[3][w])
 }
 
 /// Scratch and limits for [`scan`].
@@ -1007,93 +1105,119 @@ fn scan(
     nonempty >= 2
 }
 
-/// [`scan`] for a single output, with the sums in registers: `entries` yields the
-/// non-missing bins in ascending code order with their (weight, weighted target, count).
+/// Prefix sums of one feature's non-empty bins in a node (single output): entry `i` holds the
+/// bin code and the sums of weight, weighted target and count over that bin and every
+/// non-empty bin below it; `score` is scratch for [`scan1`].
+struct Prefix1 {
+    code: [u8; 256],
+    w: [f64; 256],
+    s: [f64; 256],
+    c: [f64; 256],
+    score: [f64; 256],
+}
+
+impl Prefix1 {
+    /// Appends bin `code` with sums `e`, accumulating into `acc`; `len` is the entry count.
+    #[inline(always)]
+    fn push(&mut self, len: &mut usize, code: u8, acc: &mut [f64; 3], e: [f64; 3]) {
+        acc[0] += e[0];
+        acc[1] += e[1];
+        acc[2] += e[2];
+        let i = *len & 255;
+        self.code[i] = code;
+        self.w[i] = acc[0];
+        self.s[i] = acc[1];
+        self.c[i] = acc[2];
+        *len += 1;
+    }
+
+    /// Scores the split after every entry with `add` (the missing rows, or zeros) joining
+    /// the left side: `S_L^2 / W_L + S_R^2 / W_R`, or minus infinity where a side has too
+    /// few rows or no weight. Returns the largest score and the first entry reaching it.
+    /// Branch-free over the entries, so the loop runs at the division throughput.
+    #[inline(always)]
+    fn best_split(
+        &mut self,
+        len: usize,
+        add: [f64; 3],
+        min_leaf: f64,
+        total: &[f64],
+    ) -> (usize, f64) {
+        let (w_tot, s_tot, c_tot) = (total[0], total[1], total[2]);
+        let len = len.min(256);
+        let score = &mut self.score[..len];
+        let (w, s, c) = (&self.w[..len], &self.s[..len], &self.c[..len]);
+        for i in 0..len {
+            let (wl, sl, cl) = (w[i] + add[0], s[i] + add[1], c[i] + add[2]);
+            let (wr, sr) = (w_tot - wl, s_tot - sl);
+            // S_L^2 / W_L + S_R^2 / W_R with one division
+            let v = (sl * sl * wr + sr * sr * wl) / (wl * wr);
+            // `&` rather than `&&`, so that no branch splits the loop
+            let ok = (cl >= min_leaf) & (c_tot - cl >= min_leaf) & (wl > 0.0) & (wr > 0.0);
+            score[i] = if ok { v } else { f64::NEG_INFINITY };
+        }
+        first_max(score)
+    }
+}
+
+/// The largest of `v` (no NaN) and the first index holding it; `(0, -inf)` when empty.
+#[inline(always)]
+fn first_max(v: &[f64]) -> (usize, f64) {
+    let mut m = [f64::NEG_INFINITY; 4];
+    let mut chunks = v.chunks_exact(4);
+    for ch in chunks.by_ref() {
+        for j in 0..4 {
+            m[j] = if ch[j] > m[j] { ch[j] } else { m[j] };
+        }
+    }
+    let mut mx = m[0].max(m[1]).max(m[2].max(m[3]));
+    for &x in chunks.remainder() {
+        mx = if x > mx { x } else { mx };
+    }
+    (v.iter().position(|&x| x == mx).unwrap_or(0), mx)
+}
+
+/// [`scan`] for a single output: `pre` holds the prefix sums of the `len` non-empty
+/// non-missing bins of feature `f`; a split is tried after every bin with the missing rows
+/// (`miss`) on either side, and an improvement is recorded in `best` (the first candidate
+/// in bin order, missing rows right before left, reaching the largest score). Returns
+/// whether the feature is non-constant in the node (rows in two or more bins, counting the
+/// missing bin).
 fn scan1(
     min_leaf: f64,
     f: usize,
-    entries: impl Iterator<Item = (u8, [f64; 3])>,
+    pre: &mut Prefix1,
+    len: usize,
     miss: [f64; 3],
     total: &[f64],
     best: &mut Best,
 ) -> bool {
-    let (w_tot, s_tot, c_tot) = (total[0], total[1], total[2]);
-    let [w_miss, s_miss, c_miss] = miss;
-    let mut nonempty = usize::from(c_miss > 0.0);
-    let (mut wl, mut sl, mut cl) = (0.0, 0.0, 0.0);
-    for (b, [w, sy, c]) in entries {
-        if c == 0.0 {
-            continue;
-        }
-        nonempty += 1;
-        wl += w;
-        sl += sy;
-        cl += c;
-        if c_tot - cl < min_leaf {
-            return nonempty >= 2 || c_tot - cl > 0.5;
-        }
-        if cl >= min_leaf {
-            let wr = w_tot - wl;
-            if wl > 0.0 && wr > 0.0 {
-                let sr = s_tot - sl;
-                let sc = sl * sl / wl + sr * sr / wr;
-                if sc > best.score {
-                    best.score = sc;
-                    best.feature = f;
-                    best.bin = b;
-                    best.missing_left = false;
-                    best.has_missing = c_miss > 0.0;
-                    best.left.copy_from_slice(&[wl, sl, cl]);
-                }
-            }
-        }
-        if c_miss > 0.0 && cl + c_miss >= min_leaf && c_tot - cl - c_miss >= min_leaf {
-            let (wl2, sl2) = (wl + w_miss, sl + s_miss);
-            let wr = w_tot - wl2;
-            if wl2 > 0.0 && wr > 0.0 {
-                let sr = s_tot - sl2;
-                let sc = sl2 * sl2 / wl2 + sr * sr / wr;
-                if sc > best.score {
-                    best.score = sc;
-                    best.feature = f;
-                    best.bin = b;
-                    best.missing_left = true;
-                    best.has_missing = true;
-                    best.left.copy_from_slice(&[wl2, sl2, cl + c_miss]);
-                }
-            }
-        }
+    let c_miss = miss[2];
+    if len + usize::from(c_miss > 0.0) < 2 {
+        return false;
     }
-    nonempty >= 2
-}
-
-/// The set bits of a 256-bit set, ascending.
-struct BitIter {
-    bits: [u64; 4],
-    word: usize,
-}
-
-impl BitIter {
-    fn new(bits: [u64; 4]) -> Self {
-        BitIter { bits, word: 0 }
-    }
-}
-
-impl Iterator for BitIter {
-    type Item = u8;
-
-    #[inline]
-    fn next(&mut self) -> Option<u8> {
-        while self.word < 4 {
-            let w = self.bits[self.word];
-            if w != 0 {
-                self.bits[self.word] = w & (w - 1);
-                return Some((self.word * 64 + w.trailing_zeros() as usize) as u8);
-            }
-            self.word += 1;
+    let (i_r, sc_r) = pre.best_split(len, [0.0; 3], min_leaf, total);
+    let (i, sc, missing_left) = if c_miss > 0.0 {
+        let (i_l, sc_l) = pre.best_split(len, miss, min_leaf, total);
+        if sc_l > sc_r || (sc_l == sc_r && i_l < i_r) {
+            (i_l, sc_l, true)
+        } else {
+            (i_r, sc_r, false)
         }
-        None
+    } else {
+        (i_r, sc_r, false)
+    };
+    if sc > best.score {
+        let add = if missing_left { miss } else { [0.0; 3] };
+        best.score = sc;
+        best.feature = f;
+        best.bin = pre.code[i];
+        best.missing_left = missing_left;
+        best.has_missing = c_miss > 0.0;
+        best.left
+            .copy_from_slice(&[pre.w[i] + add[0], pre.s[i] + add[1], pre.c[i] + add[2]]);
     }
+    true
 }
 
 /// Sum over outputs of `S_L^2 / W_L + S_R^2 / W_R` (the split's between-child sum of squares
@@ -1169,7 +1293,7 @@ mod tests {
             n_try: x.ncols(),
         };
         let mut rng = StdRng::seed_from_u64(1);
-        grow(&data, y, 1, &w, rows, &params, &mut rng)
+        grow(&data, y, 1, &w, rows, Vec::new(), &params, &mut rng)
     }
 
     #[test]
@@ -1234,6 +1358,47 @@ mod tests {
         t.apply_rows(&wide, 2, &mut out);
         for (r, &leaf) in q.iter().zip(&out) {
             assert_eq!(t.apply(r), leaf as usize, "row {r:?}");
+        }
+    }
+
+    #[test]
+    fn routed_rows_reach_the_leaf_of_their_raw_values() {
+        // half the rows fit the tree, the other half (with missing values) are routed by bin
+        // code; each must land where walking its raw values lands
+        let n = 3000;
+        let x = Array2::from_shape_fn((n, 3), |(i, j)| {
+            if (i * 7 + j) % 11 == 0 {
+                f64::NAN
+            } else {
+                ((i * (31 + 17 * j)) % 211) as f64 / 7.0
+            }
+        });
+        let y: Vec<f64> = (0..n)
+            .map(|i| x[[i, 0]].min(20.0) * 2.0 - x[[i, 1]].max(3.0) + (i % 5) as f64)
+            .map(|v| if v.is_nan() { 1.0 } else { v })
+            .collect();
+        let mapper = BinMapper::fit(x.view(), 255);
+        let codes = mapper.transform(x.view());
+        let data = Binned::new(&codes, n, &mapper);
+        let w = vec![1.0; n];
+        let rows: Vec<u32> = (0..n as u32).filter(|r| r % 2 == 0).collect();
+        let routed: Vec<u32> = (0..n as u32).filter(|r| r % 2 == 1).collect();
+        let params = GrowParams {
+            max_depth: usize::MAX,
+            min_samples_leaf: 3,
+            n_try: 2,
+        };
+        let mut rng = StdRng::seed_from_u64(7);
+        let g = grow(&data, &y, 1, &w, rows, routed, &params, &mut rng);
+        assert!(g.leaf_ranges.len() > 50);
+        assert_eq!(g.routed.len(), n / 2);
+        let mut seen = vec![false; n];
+        for &(r, leaf) in &g.routed {
+            let r = r as usize;
+            assert!(r % 2 == 1 && !seen[r]);
+            seen[r] = true;
+            let row = [x[[r, 0]], x[[r, 1]], x[[r, 2]]];
+            assert_eq!(g.tree.apply(&row), leaf as usize, "row {r}");
         }
     }
 
