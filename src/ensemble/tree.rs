@@ -265,13 +265,6 @@ impl Tree {
         self.walk(rows, |r| r * 2 * p, out);
     }
 
-    /// Leaf ids of the rows `which` of a table with `p` features in the two-copy layout.
-    // forest fitting routes its out-of-bag rows while growing (see `grow`)
-    #[allow(dead_code)]
-    pub(crate) fn apply_selected(&self, table: &[f64], p: usize, which: &[u32], out: &mut [u32]) {
-        self.walk(table, |r| which[r] as usize * 2 * p, out);
-    }
-
     /// Walks `out.len()` rows, row `r` starting at `data[offset(r)]`, one level at a time
     /// over blocks of rows: each pass moves every row still at an internal node one step and
     /// keeps only those rows for the next pass. The rows' steps are independent, so their
