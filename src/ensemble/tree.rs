@@ -150,6 +150,9 @@ pub struct Tree {
     nodes: Vec<Node>,
     /// `nodes` padded with copies of the root to a power-of-two length, for the block walk.
     nodes_pow2: Vec<Node>,
+    /// One more than the largest column any node reads in the two-copy row layout (0 without
+    /// splits): a row of that layout must be at least this wide.
+    wide_columns: usize,
     n_outputs: usize,
     /// Leaf values, `n_leaves x n_outputs`, row-major.
     values: Vec<f64>,
@@ -186,9 +189,15 @@ impl Tree {
         if let Some(&root) = nodes.first() {
             nodes_pow2.resize(nodes.len().next_power_of_two(), root);
         }
+        let wide_columns = nodes
+            .iter()
+            .map(|n| n.packed as usize + 1)
+            .max()
+            .unwrap_or(0);
         Tree {
             nodes,
             nodes_pow2,
+            wide_columns,
             n_outputs,
             values,
         }
@@ -261,16 +270,31 @@ impl Tree {
 
     /// Leaf ids of a block of rows with `p` features in the two-copy layout of
     /// [`super::copy_rows_wide`] (`2 p` values per row), written to `out`.
+    ///
+    /// # Panics
+    /// If `rows` holds fewer than `out.len()` rows of `2 p` values, or a node reads a feature
+    /// at or beyond `p` (fitted and validated trees never do).
     pub(crate) fn apply_rows(&self, rows: &[f64], p: usize, out: &mut [u32]) {
-        self.walk(rows, |r| r * 2 * p, out);
+        let width = 2 * p;
+        assert!(
+            rows.len() >= out.len() * width && self.wide_columns <= width,
+            "tree walk: {} values for {} rows of {width}, tree reads {} columns",
+            rows.len(),
+            out.len(),
+            self.wide_columns
+        );
+        self.walk(rows, width, out);
     }
 
     /// Walks `out.len()` rows, row `r` starting at `data[offset(r)]`, one level at a time
     /// over blocks of rows: each pass moves every row still at an internal node one step and
     /// keeps only those rows for the next pass. The rows' steps are independent, so their
     /// memory loads overlap, and the pass has no data-dependent branch.
+    ///
+    /// The caller guarantees that `data` holds `out.len()` rows of `width` values and that no
+    /// node reads a column at or beyond `width` ([`Tree::apply_rows`] checks both).
     #[inline(always)]
-    fn walk(&self, data: &[f64], offset: impl Fn(usize) -> usize, out: &mut [u32]) {
+    fn walk(&self, data: &[f64], width: usize, out: &mut [u32]) {
         // Fixed-size scratch indexed with `& (BLOCK - 1)` needs no bounds checks; the node
         // array is padded to a power of two (`nodes_pow2`) for the same reason.
         const BLOCK: usize = 128;
@@ -280,8 +304,9 @@ impl Tree {
         if n_int == 0 {
             return;
         }
-        let nodes = &self.nodes_pow2[..];
-        let node_mask = nodes.len() - 1;
+        let node_mask = self.nodes_pow2.len() - 1;
+        // re-sliced to `node_mask + 1` so that the compiler sees `i & node_mask` is in bounds
+        let nodes = &self.nodes_pow2[..=node_mask];
         let mut cur = [0u32; BLOCK];
         let mut off = [0usize; BLOCK];
         let mut act_in = [0u8; BLOCK];
@@ -291,7 +316,7 @@ impl Tree {
             let mut na = block.len();
             for r in 0..na {
                 cur[r & MASK] = 0;
-                off[r & MASK] = offset(r0 + r);
+                off[r & MASK] = (r0 + r) * width;
                 act_in[r & MASK] = r as u8;
             }
             while na > 0 {
@@ -299,7 +324,13 @@ impl Tree {
                 for i in 0..na {
                     let r = act_in[i & MASK] as usize;
                     let nd = &nodes[cur[r & MASK] as usize & node_mask];
-                    let next = nd.next_wide(data[off[r & MASK] + nd.packed as usize]);
+                    let at = off[r & MASK] + nd.packed as usize;
+                    debug_assert!(at < data.len());
+                    // SAFETY: `off` is `row * width` for a row below `out.len()` and
+                    // `nd.packed < wide_columns <= width` (checked in `apply_rows`), so
+                    // `at < out.len() * width <= data.len()`.
+                    let v = unsafe { *data.get_unchecked(at) };
+                    let next = nd.next_wide(v);
                     cur[r & MASK] = next;
                     act_out[k & MASK] = r as u8;
                     k += usize::from(next < n_int);
