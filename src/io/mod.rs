@@ -138,8 +138,22 @@ pub fn write_map(
     values: &[f64],
     description: Option<&str>,
 ) -> Result<(), IoError> {
+    write_map_with(path, grid, values, description, None)
+}
+
+/// As [`write_map`], with the node coordinates of XYZ text already formatted when given (many
+/// maps on one grid share them; see [`xyz::Coordinates`]).
+pub fn write_map_with(
+    path: &Path,
+    grid: &Grid,
+    values: &[f64],
+    description: Option<&str>,
+    coords: Option<&xyz::Coordinates>,
+) -> Result<(), IoError> {
     if is_geotiff(path) {
         geotiff::write(path, grid, values, description)
+    } else if let Some(c) = coords {
+        xyz::write_with_coordinates(path, grid, values, c)
     } else {
         xyz::write(path, grid, values)
     }

@@ -13,12 +13,75 @@ use std::path::Path;
 /// How many off-grid points an error lists.
 const OFF_GRID_LISTED: usize = 5;
 
+/// The `x y ` text of every node of a grid, in index order, formatted once and shared by every
+/// map written on that grid (the coordinates are most of an XYZ file's formatting work).
+pub struct Coordinates {
+    nx: usize,
+    ny: usize,
+    /// Concatenated `x y ` prefixes.
+    text: Vec<u8>,
+    /// `ends[k]` is the end of node `k`'s prefix in `text` (its start is `ends[k - 1]` or 0).
+    ends: Vec<usize>,
+}
+
+impl Coordinates {
+    /// Formats the coordinates of every node of `grid`.
+    pub fn new(grid: &Grid) -> Self {
+        let mut buf = ryu::Buffer::new();
+        let mut text = Vec::with_capacity(grid.len() * 24);
+        let mut ends = Vec::with_capacity(grid.len());
+        for j in 0..grid.ny {
+            for i in 0..grid.nx {
+                let (x, y) = grid.node_xy(i, j);
+                text.extend_from_slice(buf.format(x).as_bytes());
+                text.push(b' ');
+                text.extend_from_slice(buf.format(y).as_bytes());
+                text.push(b' ');
+                ends.push(text.len());
+            }
+        }
+        Coordinates {
+            nx: grid.nx,
+            ny: grid.ny,
+            text,
+            ends,
+        }
+    }
+
+    /// The `x y ` prefix of node `(i, j)` (row-major node `k = j * nx + i`).
+    fn prefix(&self, k: usize) -> &[u8] {
+        let start = if k == 0 { 0 } else { self.ends[k - 1] };
+        &self.text[start..self.ends[k]]
+    }
+}
+
 /// Writes a map as XYZ text, atomically: a `#` comment header, then one `x y value` line per node
 /// in index order, nulls written as the grid's null value. Coordinates and values use the shortest
 /// decimal form that reads back to the same `f64` (Ryu, Adams 2018, PLDI; exponent form such as
 /// `1e-7` for very small or large magnitudes).
 pub fn write(path: &Path, grid: &Grid, values: &[f64]) -> Result<(), IoError> {
     check_len(path, grid, values)?;
+    write_with_coordinates(path, grid, values, &Coordinates::new(grid))
+}
+
+/// As [`write`], with the node coordinates already formatted (see [`Coordinates`]); they must
+/// come from a grid of the same size.
+pub fn write_with_coordinates(
+    path: &Path,
+    grid: &Grid,
+    values: &[f64],
+    coords: &Coordinates,
+) -> Result<(), IoError> {
+    check_len(path, grid, values)?;
+    if (coords.nx, coords.ny) != (grid.nx, grid.ny) {
+        return Err(IoError::format(
+            path,
+            format!(
+                "coordinates formatted for {} x {} nodes, grid has {} x {}; nothing written",
+                coords.nx, coords.ny, grid.nx, grid.ny
+            ),
+        ));
+    }
     atomic::write_with(path, |w| {
         writeln!(
             w,
@@ -30,15 +93,11 @@ pub fn write(path: &Path, grid: &Grid, values: &[f64]) -> Result<(), IoError> {
         for j in 0..grid.ny {
             line.clear();
             for i in 0..grid.nx {
-                let (x, y) = grid.node_xy(i, j);
-                let v = values[grid.index(i, j)];
+                let k = grid.index(i, j);
+                let v = values[k];
                 let v = if v.is_nan() { grid.null_value } else { v };
-                for (k, f) in [x, y, v].into_iter().enumerate() {
-                    if k > 0 {
-                        line.push(b' ');
-                    }
-                    line.extend_from_slice(buf.format(f).as_bytes());
-                }
+                line.extend_from_slice(coords.prefix(k));
+                line.extend_from_slice(buf.format(v).as_bytes());
                 line.push(b'\n');
             }
             w.write_all(&line)?;

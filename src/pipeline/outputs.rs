@@ -255,8 +255,14 @@ pub fn write_step_maps(
         "number of attributes outside the range seen at the wells".into(),
         "count",
     )?;
+    let coords = jobs
+        .iter()
+        .any(|(path, _, _)| !io::is_geotiff(path))
+        .then(|| io::xyz::Coordinates::new(grid));
     jobs.par_iter()
-        .map(|(path, values, desc)| io::write_map(path, grid, values, Some(desc)))
+        .map(|(path, values, desc)| {
+            io::write_map_with(path, grid, values, Some(desc), coords.as_ref())
+        })
         .collect::<Result<Vec<()>, _>>()?;
     Ok(entries)
 }

@@ -124,3 +124,28 @@ fn wrong_length_writes_nothing() {
     assert!(xyz::write(&dir.path().join("m.xyz"), &grid(0.0), &[0.0; 3]).is_err());
     assert!(list_files(dir.path()).is_empty());
 }
+
+#[test]
+fn shared_coordinates_write_the_same_text() {
+    // Every line must read `x y value` with the node's own coordinates, in index order, whether
+    // the coordinates are formatted per map or once per grid; a grid of another size is refused.
+    let dir = tempfile::tempdir().unwrap();
+    let g = grid(33.3);
+    let coords = xyz::Coordinates::new(&g);
+    let v: Vec<f64> = (0..g.len()).map(|k| (k as f64).sqrt() - 1e-7).collect();
+    let (a, b) = (dir.path().join("a.xyz"), dir.path().join("b.xyz"));
+    xyz::write(&a, &g, &v).unwrap();
+    xyz::write_with_coordinates(&b, &g, &v, &coords).unwrap();
+    let text = std::fs::read_to_string(&b).unwrap();
+    assert_eq!(std::fs::read_to_string(&a).unwrap(), text);
+    for (k, line) in text.lines().skip(1).enumerate() {
+        let f: Vec<f64> = line.split(' ').map(|s| s.parse().unwrap()).collect();
+        let (x, y) = g.node_xy(k % g.nx, k / g.nx);
+        assert_eq!((f[0], f[1], f[2]), (x, y, v[k]), "line {}", k + 2);
+    }
+    let other = Grid { nx: 5, ..grid(0.0) };
+    let c = dir.path().join("c.xyz");
+    let e = xyz::write_with_coordinates(&c, &g, &v, &xyz::Coordinates::new(&other)).unwrap_err();
+    assert!(e.to_string().contains("c.xyz"), "{e}");
+    assert!(!c.exists());
+}
