@@ -2,12 +2,14 @@
 //! away from the wells the model was fitted to.
 //!
 //! What is asserted here is the safety direction: bands are never over-confident at the nodes
-//! (coverage not more than 5 points below nominal overall, and at least 0.65 in the bottom and top
-//! deciles of the truth, where the target is 0.70) and the end correction, where kept, does not raise the error at the nodes the wells stand for. The
-//! two-sided targets (coverage within 0.80 +- 0.05 away from wells; top-decile bias cut by 30 %)
-//! are printed and recorded in `target/tmp/truth-figures.json`; they are not reached on this field
-//! (bands come out conservative at nodes, 0.87-0.95, because wells sit where the reservoir changed
-//! and most nodes did not) and the project's notes say so instead of loosening a test to pass.
+//! (coverage not more than 5 points below nominal overall, and at least 0.65 in the bottom and
+//! top deciles of the truth, where the target is 0.70) and the end correction, where kept, does
+//! not raise the error at the nodes the wells stand for. The two-sided targets (coverage within
+//! 0.80 +- 0.05 away from wells; top-decile bias cut by 30 %) are printed and recorded in
+//! `target/tmp/truth-figures.json`; they are not reached on this field (bands come out
+//! conservative at nodes, 0.90-0.94 with localised bands among the candidates, because wells sit
+//! where the reservoir changed and most nodes did not; dSw's top decile is covered 0.69) and the
+//! project's notes say so instead of loosening a test to pass.
 
 use super::end_to_end::fixture;
 use tidemark::metrics::end_bias;
