@@ -64,7 +64,7 @@ pub fn write(path: &Path, grid: &Grid, values: &[f64]) -> Result<(), IoError> {
     write_with_coordinates(path, grid, values, &Coordinates::new(grid))
 }
 
-/// As [`write`], with the node coordinates already formatted (see [`Coordinates`]); they must
+/// As [`write()`], with the node coordinates already formatted (see [`Coordinates`]); they must
 /// come from a grid of the same size.
 pub fn write_with_coordinates(
     path: &Path,
