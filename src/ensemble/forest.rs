@@ -382,6 +382,9 @@ pub struct Forest {
 }
 
 /// Reusable per-task buffers for prediction.
+/// "No per-row hook" for [`Forest::distribution_pass`].
+const NO_HOOK: Option<&fn(&[f64])> = None;
+
 struct Scratch {
     rows: Vec<f64>,
     leaves: Vec<u32>,
@@ -450,7 +453,7 @@ impl Forest {
         );
     }
 
-    fn assert_output(&self, output: usize) {
+    pub(crate) fn assert_output(&self, output: usize) {
         assert!(
             output < self.n_outputs,
             "output {output} out of range (forest has {} outputs)",
@@ -617,7 +620,7 @@ impl Forest {
         levels: &[f64],
         thresholds: &[f64],
     ) -> (Array2<f64>, Array2<f64>) {
-        let (_, q, c) = self.distribution_pass(x, output, levels, thresholds, false);
+        let (_, q, c, _) = self.distribution_pass(x, output, levels, thresholds, false, NO_HOOK);
         (q, c)
     }
 
@@ -634,19 +637,28 @@ impl Forest {
         levels: &[f64],
         thresholds: &[f64],
     ) -> (Vec<f64>, Array2<f64>, Array2<f64>) {
-        self.distribution_pass(x, output, levels, thresholds, true)
+        let (m, q, c, _) = self.distribution_pass(x, output, levels, thresholds, true, NO_HOOK);
+        (m, q, c)
     }
 
-    /// Shared body of the distribution predictions; with `with_mean` every record starts with
-    /// the row's mean prediction of `output`.
-    fn distribution_pass(
+    /// Shared body of the distribution predictions: per row, the mean of `output` (when
+    /// `with_mean`; else the returned mean is empty), the quantiles at `levels`, the CDF at
+    /// `thresholds` and, when `hook` is given, `hook(acc)` where `acc` holds the row's
+    /// quantile-forest weights by position in the kernel's sorted targets (before they are
+    /// cumulated).
+    pub(crate) fn distribution_pass<T, F>(
         &self,
         x: ArrayView2<f64>,
         output: usize,
         levels: &[f64],
         thresholds: &[f64],
         with_mean: bool,
-    ) -> (Vec<f64>, Array2<f64>, Array2<f64>) {
+        hook: Option<&F>,
+    ) -> (Vec<f64>, Array2<f64>, Array2<f64>, Vec<T>)
+    where
+        T: Send,
+        F: Fn(&[f64]) -> T + Sync,
+    {
         self.assert_x(&x);
         self.assert_output(output);
         assert!(
@@ -660,20 +672,22 @@ impl Forest {
             .collect();
         let (nl, nt) = (levels.len(), thresholds.len());
         let lead = usize::from(with_mean);
+        let w = lead + nl + nt;
         let n = self.n_train;
         let inv = 1.0 / self.trees.len() as f64;
         let block = QrfKernel::block_rows(n);
-        let flat = self.map_chunks(x, block * n, |_, m, leaves, acc, out| {
-            let w = lead + nl + nt;
-            out.resize(m * w, 0.0);
+        // one (records, hook results) pair per chunk of rows, in row order
+        let chunks = self.map_chunks(x, block * n, |_, m, leaves, acc, out| {
+            let mut flat = vec![0.0; m * w];
+            let mut extra = Vec::with_capacity(if hook.is_some() { m } else { 0 });
             if with_mean {
                 for (t, tree) in self.trees.iter().enumerate() {
                     for r in 0..m {
-                        out[r * w] += tree.leaf_value(leaves[t * m + r] as usize, output);
+                        flat[r * w] += tree.leaf_value(leaves[t * m + r] as usize, output);
                     }
                 }
                 for r in 0..m {
-                    out[r * w] *= inv;
+                    flat[r * w] *= inv;
                 }
             }
             for r0 in (0..m).step_by(block) {
@@ -682,8 +696,11 @@ impl Forest {
                 acc.fill(0.0);
                 kernel.accumulate_block(leaves, m, r0, nb, acc);
                 for (i, cum) in acc.chunks_exact_mut(n).enumerate() {
+                    if let Some(h) = hook {
+                        extra.push(h(cum));
+                    }
                     QrfKernel::cumulate(cum);
-                    let rec = &mut out[(r0 + i) * w + lead..(r0 + i + 1) * w];
+                    let rec = &mut flat[(r0 + i) * w + lead..(r0 + i + 1) * w];
                     for (slot, &q) in rec.iter_mut().zip(levels) {
                         *slot = kernel.quantile(cum, q);
                     }
@@ -692,9 +709,15 @@ impl Forest {
                     }
                 }
             }
+            out.push((flat, extra));
         });
         let rows = x.nrows();
-        let w = lead + nl + nt;
+        let mut flat = Vec::with_capacity(rows * w);
+        let mut extra = Vec::new();
+        for (f, e) in chunks {
+            flat.extend(f);
+            extra.extend(e);
+        }
         let mean = if with_mean {
             (0..rows).map(|r| flat[r * w]).collect()
         } else {
@@ -702,7 +725,7 @@ impl Forest {
         };
         let q = Array2::from_shape_fn((rows, nl), |(r, l)| flat[r * w + lead + l]);
         let c = Array2::from_shape_fn((rows, nt), |(r, t)| flat[r * w + lead + nl + t]);
-        (mean, q, c)
+        (mean, q, c, extra)
     }
 
     /// `P(Y <= t_i | x_i)` for output `output`, one threshold per row (NaN threshold: NaN).

@@ -52,73 +52,22 @@ impl Forest {
         f: F,
     ) -> (Vec<f64>, Array2<f64>, Array2<f64>, Vec<T>)
     where
-        T: Send + Default + Clone,
+        T: Send,
         F: Fn(&[f64]) -> T + Sync,
     {
-        self.check_x(x).expect("feature columns");
-        assert!(
-            output < self.n_outputs(),
-            "output {output} out of range (forest has {} outputs)",
-            self.n_outputs()
-        );
-        assert!(
-            levels.iter().all(|q| (0.0..=1.0).contains(q)),
-            "quantile levels must be in [0, 1], got {levels:?}"
-        );
-        let kernel = self.qrf_kernel(output);
-        let row_of = self.kernel_rows(&kernel);
-        let t_pos: Vec<Option<usize>> = thresholds
-            .iter()
-            .map(|&t| (!t.is_nan()).then(|| kernel.threshold_position(t)))
-            .collect();
-        let (nl, nt) = (levels.len(), thresholds.len());
+        self.assert_output(output);
+        let row_of = self.kernel_rows(&self.qrf_kernel(output));
         let n = self.n_train();
-        let inv = 1.0 / self.n_trees() as f64;
-        let block = QrfKernel::block_rows(n);
-        let w = 1 + nl + nt;
-        let trees = self.trees();
-        let records: Vec<(Vec<f64>, T)> =
-            self.map_chunks(x, block * n, |_, m, leaves, acc, out| {
-                let mut num = vec![0.0; m * w];
-                for (t, tree) in trees.iter().enumerate() {
-                    for r in 0..m {
-                        num[r * w] += tree.leaf_value(leaves[t * m + r] as usize, output);
-                    }
+        let by_training_row = |by_position: &[f64]| -> T {
+            let mut w = vec![0.0; n];
+            for (&row, &v) in row_of.iter().zip(by_position) {
+                if row != u32::MAX {
+                    w[row as usize] = v;
                 }
-                let mut by_row = vec![0.0; n];
-                let mut extra = vec![T::default(); m];
-                for r0 in (0..m).step_by(block) {
-                    let nb = block.min(m - r0);
-                    let acc = &mut acc[..nb * n];
-                    acc.fill(0.0);
-                    kernel.accumulate_block(leaves, m, r0, nb, acc);
-                    for (i, cum) in acc.chunks_exact_mut(n).enumerate() {
-                        by_row.fill(0.0);
-                        for (p, &row) in row_of.iter().enumerate() {
-                            if row != u32::MAX {
-                                by_row[row as usize] = cum[p];
-                            }
-                        }
-                        extra[r0 + i] = f(&by_row);
-                        QrfKernel::cumulate(cum);
-                        let rec = &mut num[(r0 + i) * w..(r0 + i + 1) * w];
-                        rec[0] *= inv;
-                        for (slot, &q) in rec[1..].iter_mut().zip(levels) {
-                            *slot = kernel.quantile(cum, q);
-                        }
-                        for (slot, tp) in rec[1 + nl..].iter_mut().zip(&t_pos) {
-                            *slot = tp.map_or(f64::NAN, |p| QrfKernel::cdf(cum, p));
-                        }
-                    }
-                }
-                out.extend(num.chunks_exact(w).map(<[f64]>::to_vec).zip(extra));
-            });
-        let rows = x.nrows();
-        let mean = records.iter().map(|r| r.0[0]).collect();
-        let q = Array2::from_shape_fn((rows, nl), |(r, l)| records[r].0[1 + l]);
-        let c = Array2::from_shape_fn((rows, nt), |(r, t)| records[r].0[1 + nl + t]);
-        let extra = records.into_iter().map(|r| r.1).collect();
-        (mean, q, c, extra)
+            }
+            f(&w)
+        };
+        self.distribution_pass(x, output, levels, thresholds, true, Some(&by_training_row))
     }
 }
 
