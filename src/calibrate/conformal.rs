@@ -540,34 +540,26 @@ pub fn cross_fitted_band(
     min_wells: usize,
     bounds: (f64, f64),
 ) -> (Vec<f64>, Vec<f64>, Vec<bool>) {
-    let n = base.len();
-    let mut lo = vec![bounds.0; n];
-    let mut hi = vec![bounds.1; n];
-    let mut few = vec![true; n];
-    let k = super::folds::n_folds(folds);
-    for f in 0..k {
-        let train: Vec<usize> = (0..n).filter(|&i| folds[i] != f).collect();
-        if train.is_empty() {
-            continue;
-        }
-        let cal = BandCalibration::fit(
-            method,
-            &pick(base, &train),
-            &pick(y, &train),
-            &pick(group, &train),
-            level,
-            max_bins,
-            min_wells,
-        );
-        for i in (0..n).filter(|&i| folds[i] == f) {
+    cross_fit(
+        folds,
+        bounds,
+        |train| {
+            BandCalibration::fit(
+                method,
+                &pick(base, train),
+                &pick(y, train),
+                &pick(group, train),
+                level,
+                max_bins,
+                min_wells,
+            )
+        },
+        |cal, i| {
             let (l, _, h) = cal.apply(base[i], bounds);
             let info = &cal.bin_info[cal.bins.bin(base[i].mid).min(cal.bin_info.len() - 1)];
-            lo[i] = l;
-            hi[i] = h;
-            few[i] = info.q_lo.is_none() || info.q_hi.is_none();
-        }
-    }
-    (lo, hi, few)
+            (l, h, info.q_lo.is_none() || info.q_hi.is_none())
+        },
+    )
 }
 
 /// Cross-fitted localised band on out-of-fold rows, as [`cross_fitted_band`]: the rows of fold
@@ -586,32 +578,50 @@ pub fn cross_fitted_local_band(
     prox: &[Vec<f64>],
     bounds: (f64, f64),
 ) -> (Vec<f64>, Vec<f64>, Vec<bool>) {
-    let n = base.len();
+    let alpha_side = (1.0 - level) / 2.0;
+    cross_fit(
+        folds,
+        bounds,
+        |train| {
+            BandCalibration::fit_local(
+                method,
+                &pick(base, train),
+                &pick(y, train),
+                &pick(group, train),
+                level,
+                locality,
+            )
+        },
+        |cal, i| {
+            let local = cal.local.as_ref().expect("localised");
+            let (q_lo, q_hi) = local.quantiles(&prox[i], alpha_side);
+            let (l, _, h) = cal.apply_quantiles(base[i], bounds, q_lo, q_hi);
+            (l, h, q_lo.is_none() || q_hi.is_none())
+        },
+    )
+}
+
+/// The fold loop of the cross-fitted bands: for each fold, `fit` on the other folds' rows (in
+/// increasing row order) and `apply(calibration, i) -> (lo, hi, too_few)` to each held-out row
+/// `i`. Rows of a fold with no other rows keep the physical bounds and are flagged.
+fn cross_fit<C>(
+    folds: &[usize],
+    bounds: (f64, f64),
+    fit: impl Fn(&[usize]) -> C,
+    apply: impl Fn(&C, usize) -> (f64, f64, bool),
+) -> (Vec<f64>, Vec<f64>, Vec<bool>) {
+    let n = folds.len();
     let mut lo = vec![bounds.0; n];
     let mut hi = vec![bounds.1; n];
     let mut few = vec![true; n];
-    let k = super::folds::n_folds(folds);
-    let alpha_side = (1.0 - level) / 2.0;
-    for f in 0..k {
+    for f in 0..super::folds::n_folds(folds) {
         let train: Vec<usize> = (0..n).filter(|&i| folds[i] != f).collect();
         if train.is_empty() {
             continue;
         }
-        let cal = BandCalibration::fit_local(
-            method,
-            &pick(base, &train),
-            &pick(y, &train),
-            &pick(group, &train),
-            level,
-            locality,
-        );
-        let local = cal.local.as_ref().expect("localised");
+        let cal = fit(&train);
         for i in (0..n).filter(|&i| folds[i] == f) {
-            let (q_lo, q_hi) = local.quantiles(&prox[i], alpha_side);
-            let (l, _, h) = cal.apply_quantiles(base[i], bounds, q_lo, q_hi);
-            lo[i] = l;
-            hi[i] = h;
-            few[i] = q_lo.is_none() || q_hi.is_none();
+            (lo[i], hi[i], few[i]) = apply(&cal, i);
         }
     }
     (lo, hi, few)
