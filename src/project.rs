@@ -191,6 +191,9 @@ pub struct CalibrationSection {
     pub max_bins: usize,
     /// Wells each bin needs, >= 1 (default 10).
     pub min_wells_per_bin: usize,
+    /// Calibrate the band for the mapped nodes by weighting the wells with the covariate-shift
+    /// ratio of the nodes' attributes to theirs (default false).
+    pub covariate_shift: bool,
 }
 
 impl Default for CalibrationSection {
@@ -202,6 +205,7 @@ impl Default for CalibrationSection {
             end_correction: true,
             max_bins: 3,
             min_wells_per_bin: 10,
+            covariate_shift: false,
         }
     }
 }
@@ -542,6 +546,7 @@ struct RawCalibration {
     end_correction: Option<bool>,
     max_bins: Option<i64>,
     min_wells_per_bin: Option<i64>,
+    covariate_shift: Option<bool>,
 }
 
 #[derive(Deserialize)]
@@ -1091,6 +1096,7 @@ fn check(raw: RawManifest, manifest_path: PathBuf) -> Result<Project, ManifestEr
                 d.min_wells_per_bin,
                 1,
             )?,
+            covariate_shift: c.covariate_shift.unwrap_or(d.covariate_shift),
         },
     };
 

@@ -202,3 +202,40 @@ pub fn node_features(survey: &Survey, step: usize) -> Array2<f64> {
     x.column_mut(na).fill(step as f64);
     x
 }
+
+/// A seeded random sample of at most `max_rows` (node, step) pairs of the survey's grid, as
+/// feature rows like [`node_features`]'s. Only nodes where at least one attribute is not null
+/// count (the mapped population); every step is sampled alike. The pairs are drawn without
+/// replacement and kept in (step, node) order, so the table depends on the seed alone.
+pub fn node_sample(survey: &Survey, max_rows: usize, seed: u64) -> Array2<f64> {
+    use rand::seq::index::sample;
+    use rand::{SeedableRng, rngs::StdRng};
+    let n = survey.project.grid.len();
+    // Pair (step s, node) is kept as s * n + node.
+    let mut pairs: Vec<usize> = Vec::new();
+    for (s, maps) in survey.maps.iter().enumerate() {
+        for node in 0..n {
+            if maps
+                .iter()
+                .any(|m| m.get(node).is_some_and(|v| !v.is_nan()))
+            {
+                pairs.push(s * n + node);
+            }
+        }
+    }
+    let take = max_rows.min(pairs.len());
+    let mut picked: Vec<usize> = sample(&mut StdRng::seed_from_u64(seed), pairs.len(), take)
+        .into_iter()
+        .collect();
+    picked.sort_unstable();
+    let na = survey.maps.first().map_or(0, |m| m.len());
+    let mut x = Array2::from_elem((take, na + 1), f64::NAN);
+    for (r, &k) in picked.iter().enumerate() {
+        let (s, node) = (pairs[k] / n, pairs[k] % n);
+        for (a, map) in survey.maps[s].iter().enumerate() {
+            x[[r, a]] = map.get(node).copied().unwrap_or(f64::NAN);
+        }
+        x[[r, na]] = s as f64;
+    }
+    x
+}

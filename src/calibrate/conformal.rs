@@ -155,6 +155,79 @@ pub fn min_wells_for_band(level: f64) -> usize {
     n
 }
 
+/// The calibration rows as exchangeable units: the well of each row, each row's weight and the
+/// weight of the new point's mass at `+inf`.
+///
+/// Without a covariate shift ([`Units::wells`]) every well weighs one, shared among its rows, and
+/// the new point weighs one well. Under a covariate shift ([`Units::shifted`]; Tibshirani et al.
+/// 2019, see [`super::shift`]) row `i` weighs `u_i r_i` and the new point `r_new`, where `r` is the
+/// ratio of the nodes' to the wells' attribute density; the weights are scaled so that they sum
+/// to the number of wells, which leaves every weighted quantile unchanged.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Units {
+    /// Well id per row.
+    pub group: Vec<usize>,
+    /// Weight per row, finite and `>= 0`.
+    pub weight: Vec<f64>,
+    /// Weight of the new point.
+    pub test_weight: f64,
+}
+
+impl Units {
+    /// Wells as units: row weight `1/(rows of its well)`, new point one well.
+    pub fn wells(group: &[usize]) -> Self {
+        Self {
+            group: group.to_vec(),
+            weight: well_unit_weights(group),
+            test_weight: 1.0,
+        }
+    }
+
+    /// Wells weighted by their rows' covariate-shift ratios `ratio` (one per row), the new
+    /// point by `test_ratio`. Ratios that are not finite and positive count as one.
+    pub fn shifted(group: &[usize], ratio: &[f64], test_ratio: f64) -> Self {
+        let ok = |r: f64| if r.is_finite() && r > 0.0 { r } else { 1.0 };
+        let unit = well_unit_weights(group);
+        let raw: Vec<f64> = unit.iter().zip(ratio).map(|(u, &r)| u * ok(r)).collect();
+        let total: f64 = raw.iter().sum();
+        let scale = if total > 0.0 {
+            unit.iter().sum::<f64>() / total
+        } else {
+            1.0
+        };
+        Self {
+            group: group.to_vec(),
+            weight: raw.iter().map(|v| v * scale).collect(),
+            test_weight: ok(test_ratio) * scale,
+        }
+    }
+
+    /// The units of rows `idx` (weights kept as they are: a common scale does not move a
+    /// weighted quantile).
+    pub fn pick(&self, idx: &[usize]) -> Self {
+        Self {
+            group: pick(&self.group, idx),
+            weight: pick(&self.weight, idx),
+            test_weight: self.test_weight,
+        }
+    }
+
+    /// Kish's effective number of wells `(sum W_g)^2 / sum W_g^2` over the wells' total weights
+    /// `W_g` (equals the number of wells without a shift).
+    pub fn effective_wells(&self) -> f64 {
+        let mut per: std::collections::BTreeMap<usize, f64> = Default::default();
+        for (g, w) in self.group.iter().zip(&self.weight) {
+            *per.entry(*g).or_insert(0.0) += w;
+        }
+        let v: Vec<f64> = per.into_values().collect();
+        super::shift::effective_size(&v)
+    }
+}
+
+fn one() -> f64 {
+    1.0
+}
+
 /// Mondrian bins of the predicted value: `edges.len() + 1` bins; bin `i` holds values in
 /// `(edges[i-1], edges[i]]`.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
@@ -188,13 +261,13 @@ impl MondrianBins {
     }
 
     /// Build bins from predicted values: `max_bins` bins at equal-weight quantiles of `pred` (each
-    /// well weighing one), then the bin with the least weight is merged into its lighter neighbour
+    /// row weighing its unit weight), then the bin with the least weight is merged into its lighter neighbour
     /// until every bin holds at least `min_wells` wells of weight.
-    pub fn build(pred: &[f64], group: &[usize], max_bins: usize, min_wells: f64) -> Self {
-        let w = well_unit_weights(group);
+    pub fn build(pred: &[f64], units: &Units, max_bins: usize, min_wells: f64) -> Self {
+        let w = &units.weight;
         let mut pw: Vec<(f64, f64)> = pred
             .iter()
-            .zip(&w)
+            .zip(w)
             .filter(|(p, _)| p.is_finite())
             .map(|(&p, &w)| (p, w))
             .collect();
@@ -292,8 +365,12 @@ pub struct BandCalibration {
 pub struct Localisation {
     /// Share of the proximity weights, in (0, 1]; 0 would be the global band.
     pub locality: f64,
-    /// Well-unit weight `u_i` of every calibration row, in row order.
+    /// Unit weight `u_i` of every calibration row, in row order.
     pub unit_weights: Vec<f64>,
+    /// Weight of the new node's point mass at `+inf` (one well when there is no covariate
+    /// shift; see [`Units`]).
+    #[serde(default = "one")]
+    pub test_weight: f64,
     /// Calibration rows in increasing order of their lower-side score.
     pub lo_rows: Vec<u32>,
     /// Lower-side scores in increasing order (finite only).
@@ -305,8 +382,8 @@ pub struct Localisation {
 }
 
 impl Localisation {
-    /// Keep the scores of the calibration rows (`s_lo`, `s_hi`, `unit` in row order).
-    pub fn new(locality: f64, s_lo: &[f64], s_hi: &[f64], unit: &[f64]) -> Self {
+    /// Keep the scores of the calibration rows (`s_lo`, `s_hi`, `units` in row order).
+    pub fn new(locality: f64, s_lo: &[f64], s_hi: &[f64], units: &Units) -> Self {
         let sorted = |s: &[f64]| -> (Vec<u32>, Vec<f64>) {
             let mut idx: Vec<u32> = (0..s.len() as u32)
                 .filter(|&i| s[i as usize].is_finite())
@@ -319,7 +396,8 @@ impl Localisation {
         let (hi_rows, hi_scores) = sorted(s_hi);
         Self {
             locality,
-            unit_weights: unit.to_vec(),
+            unit_weights: units.weight.clone(),
+            test_weight: units.test_weight,
             lo_rows,
             lo_scores,
             hi_rows,
@@ -349,8 +427,8 @@ impl Localisation {
             .zip(&self.hi_rows)
             .map(|(&s, &r)| (s, weight(r)));
         (
-            quantile_of_sorted(lo, 1.0, alpha_side),
-            quantile_of_sorted(hi, 1.0, alpha_side),
+            quantile_of_sorted(lo, self.test_weight, alpha_side),
+            quantile_of_sorted(hi, self.test_weight, alpha_side),
         )
     }
 }
@@ -383,14 +461,14 @@ impl BandBase {
 }
 
 impl BandCalibration {
-    /// Calibrate on held-out-well rows: `base` per row, truth `y`, well id `group`.
+    /// Calibrate on held-out-well rows: `base` per row, truth `y`, the rows' `units`.
     /// `max_bins`/`min_wells` control the Mondrian bins; the effective minimum is never below
     /// [`min_wells_for_band`] so that a bin only exists if it can back a finite band.
     pub fn fit(
         method: BandMethod,
         base: &[BandBase],
         y: &[f64],
-        group: &[usize],
+        units: &Units,
         level: f64,
         max_bins: usize,
         min_wells: usize,
@@ -398,8 +476,8 @@ impl BandCalibration {
         let alpha_side = (1.0 - level) / 2.0;
         let mids: Vec<f64> = base.iter().map(|b| b.mid).collect();
         let need = min_wells.max(min_wells_for_band(level)) as f64;
-        let bins = MondrianBins::build(&mids, group, max_bins, need);
-        let w = well_unit_weights(group);
+        let bins = MondrianBins::build(&mids, units, max_bins, need);
+        let (w, group) = (&units.weight, &units.group);
         let nb = bins.len();
         let mut s_lo: Vec<Vec<f64>> = vec![Vec::new(); nb];
         let mut s_hi: Vec<Vec<f64>> = vec![Vec::new(); nb];
@@ -427,8 +505,18 @@ impl BandCalibration {
                     wells: distinct.len(),
                     well_weight: wt[b].iter().sum(),
                     rows: wt[b].len(),
-                    q_lo: conformal_quantile(&s_lo[b], &wt[b], alpha_side),
-                    q_hi: conformal_quantile(&s_hi[b], &wt[b], alpha_side),
+                    q_lo: weighted_conformal_quantile(
+                        &s_lo[b],
+                        &wt[b],
+                        units.test_weight,
+                        alpha_side,
+                    ),
+                    q_hi: weighted_conformal_quantile(
+                        &s_hi[b],
+                        &wt[b],
+                        units.test_weight,
+                        alpha_side,
+                    ),
                 }
             })
             .collect();
@@ -448,22 +536,17 @@ impl BandCalibration {
         method: BandMethod,
         base: &[BandBase],
         y: &[f64],
-        group: &[usize],
+        units: &Units,
         level: f64,
         locality: f64,
     ) -> Self {
-        let mut cal = Self::fit(method, base, y, group, level, 1, 1);
+        let mut cal = Self::fit(method, base, y, units, level, 1, 1);
         let (s_lo, s_hi): (Vec<f64>, Vec<f64>) = base
             .iter()
             .zip(y)
             .map(|(b, &v)| ((b.lo - v) / b.scale, (v - b.hi) / b.scale))
             .unzip();
-        cal.local = Some(Localisation::new(
-            locality,
-            &s_lo,
-            &s_hi,
-            &well_unit_weights(group),
-        ));
+        cal.local = Some(Localisation::new(locality, &s_lo, &s_hi, units));
         cal
     }
 
@@ -534,7 +617,7 @@ pub fn cross_fitted_band(
     folds: &[usize],
     base: &[BandBase],
     y: &[f64],
-    group: &[usize],
+    units: &Units,
     level: f64,
     max_bins: usize,
     min_wells: usize,
@@ -548,7 +631,7 @@ pub fn cross_fitted_band(
                 method,
                 &pick(base, train),
                 &pick(y, train),
-                &pick(group, train),
+                &units.pick(train),
                 level,
                 max_bins,
                 min_wells,
@@ -572,7 +655,7 @@ pub fn cross_fitted_local_band(
     folds: &[usize],
     base: &[BandBase],
     y: &[f64],
-    group: &[usize],
+    units: &Units,
     level: f64,
     locality: f64,
     prox: &[Vec<f64>],
@@ -587,7 +670,7 @@ pub fn cross_fitted_local_band(
                 method,
                 &pick(base, train),
                 &pick(y, train),
-                &pick(group, train),
+                &units.pick(train),
                 level,
                 locality,
             )
@@ -663,7 +746,7 @@ mod tests {
     #[test]
     fn bins_merge_until_each_holds_enough_wells() {
         let pred: Vec<f64> = (0..30).map(f64::from).collect();
-        let group: Vec<usize> = (0..30).collect();
+        let group = Units::wells(&(0..30).collect::<Vec<usize>>());
         let b = MondrianBins::build(&pred, &group, 3, 10.0);
         assert_eq!(b.len(), 3);
         // 30 wells in 3 bins of 10 cannot give bins of 11 by merging neighbours.

@@ -19,8 +19,8 @@
 
 use super::CalibrateError;
 use super::conformal::MondrianBins;
+use super::conformal::Units;
 use super::isotonic::{IsotonicMap, IsotonicSettings};
-use super::well_unit_weights;
 use serde::{Deserialize, Serialize};
 
 /// How the probability of one threshold is computed.
@@ -65,13 +65,20 @@ pub struct PredictiveSystem {
     pub residuals: Vec<Vec<f64>>,
     /// Cumulative well weight per bin, aligned with `residuals` (last entry = bin total).
     pub cum_weight: Vec<Vec<f64>>,
+    /// Weight of the new point (one well without a covariate shift; see [`Units`]).
+    #[serde(default = "one")]
+    pub test_weight: f64,
+}
+
+fn one() -> f64 {
+    1.0
 }
 
 impl PredictiveSystem {
-    /// Fit from held-out rows: predicted value `mid`, truth `y`, well id `group`, and the bins;
-    /// residuals unscaled.
-    pub fn fit(mid: &[f64], y: &[f64], group: &[usize], bins: MondrianBins) -> Self {
-        Self::fit_scaled(mid, &vec![1.0; mid.len()], y, group, bins)
+    /// Fit from held-out rows: predicted value `mid`, truth `y`, the rows' `units`, and the
+    /// bins; residuals unscaled.
+    pub fn fit(mid: &[f64], y: &[f64], units: &Units, bins: MondrianBins) -> Self {
+        Self::fit_scaled(mid, &vec![1.0; mid.len()], y, units, bins)
     }
 
     /// As [`PredictiveSystem::fit`] with residuals divided by `scale` (> 0) per row.
@@ -79,10 +86,10 @@ impl PredictiveSystem {
         mid: &[f64],
         scale: &[f64],
         y: &[f64],
-        group: &[usize],
+        units: &Units,
         bins: MondrianBins,
     ) -> Self {
-        let w = well_unit_weights(group);
+        let w = &units.weight;
         let nb = bins.len();
         let mut per: Vec<Vec<(f64, f64)>> = vec![Vec::new(); nb];
         for i in 0..mid.len().min(y.len()).min(scale.len()) {
@@ -108,16 +115,18 @@ impl PredictiveSystem {
             bins,
             residuals,
             cum_weight,
+            test_weight: units.test_weight,
         }
     }
 
     /// `Q(t)` at predicted value `mid` with tie-breaking `tau` in `[0, 1]`:
-    /// `[W{mid + a_i < t} + tau (W{mid + a_i = t} + 1)] / (W + 1)` (unscaled residuals).
+    /// `[W{mid + a_i < t} + tau (W{mid + a_i = t} + w)] / (W + w)` (unscaled residuals; `w` the
+    /// new point's weight, one well without a covariate shift).
     pub fn cdf(&self, mid: f64, t: f64, tau: f64) -> f64 {
         self.cdf_scaled(mid, 1.0, t, tau)
     }
 
-    /// `Q(t)` for scaled residuals: `[W{mid + s a_i < t} + tau (W{mid + s a_i = t} + 1)] / (W + 1)`.
+    /// `Q(t)` for scaled residuals: `[W{mid + s a_i < t} + tau (W{mid + s a_i = t} + w)] / (W + w)`.
     pub fn cdf_scaled(&self, mid: f64, scale: f64, t: f64, tau: f64) -> f64 {
         if !mid.is_finite() || !t.is_finite() || scale.is_nan() || scale <= 0.0 {
             return f64::NAN;
@@ -135,7 +144,8 @@ impl PredictiveSystem {
         } else {
             cw[at_or_below - 1]
         } - w_below;
-        (w_below + tau * (w_at + 1.0)) / (total + 1.0)
+        let w = self.test_weight;
+        (w_below + tau * (w_at + w)) / (total + w)
     }
 
     /// `P(Y <= t)` for a map: `Q(t)` with `tau = 1/2` and residual scale `scale` (1 when
@@ -218,7 +228,7 @@ mod tests {
         let cps = PredictiveSystem::fit(
             &[0.0; 3],
             &[1.0, 2.0, 3.0],
-            &[0, 1, 2],
+            &Units::wells(&[0, 1, 2]),
             MondrianBins::single(),
         );
         assert!((cps.cdf(0.0, 2.5, 0.5) - 2.5 / 4.0).abs() < 1e-12);
@@ -231,7 +241,7 @@ mod tests {
             &[0.0; 3],
             &[2.0; 3],
             &[1.0, 2.0, 3.0],
-            &[0, 1, 2],
+            &Units::wells(&[0, 1, 2]),
             MondrianBins::single(),
         );
         assert!((s.cdf_scaled(0.0, 4.0, 5.0, 0.5) - 2.5 / 4.0).abs() < 1e-12);

@@ -22,6 +22,7 @@ pub mod conformal;
 pub mod exceedance;
 pub mod folds;
 pub mod isotonic;
+pub mod shift;
 pub mod target;
 
 pub use target::{

@@ -29,6 +29,7 @@
 //! came from models that saw the held-out fold, a second-order leak that nested cross-validation
 //! would remove at K times the cost.
 
+use super::conformal::Units;
 use super::conformal::{
     BandBase, BandCalibration, BandMethod, BinInfo, MondrianBins, cross_fitted_band,
     cross_fitted_local_band, finite_band_possible, min_wells_for_band, pick,
@@ -37,10 +38,11 @@ use super::exceedance::{
     ExceedMethod, PitRecalibration, PredictiveSystem, bounded_cdf, crossing_probability,
 };
 use super::isotonic::{IsotonicMap, IsotonicSettings, cross_fit};
-use super::{CalibrateError, FoldMethod, LearnerChoice, count_wells, folds, well_unit_weights};
+use super::shift::{RowShift, ShiftDiagnostics};
+use super::{CalibrateError, FoldMethod, LearnerChoice, count_wells, folds};
 use crate::ensemble::{BoostSettings, Booster, Forest, ForestSettings};
 use crate::metrics::{
-    ExceedInput, Metrics, MetricsInput, ReliabilityBin, brier, end_bias, interval_score,
+    ExceedInput, Metrics, MetricsInput, ReliabilityBin, brier, end_bias, interval_score_one,
     pit_histogram, reliability, serde_nan, slope,
 };
 use ndarray::{Array2, ArrayView2, Axis};
@@ -161,6 +163,9 @@ pub struct TargetData<'a> {
     pub bounds: (f64, f64),
     /// Decision thresholds.
     pub thresholds: Vec<Threshold>,
+    /// Covariate-shift ratios from the wells to the mapped nodes ([`super::shift`]); `None`
+    /// calibrates the band for the wells' own population.
+    pub shift: Option<RowShift<'a>>,
 }
 
 /// One out-of-fold row of the diagnostics.
@@ -281,7 +286,8 @@ pub struct BandCandidate {
     /// see [`super::conformal::Localisation`]).
     #[serde(default)]
     pub locality: f64,
-    /// Out-of-fold mean interval score (lower is better).
+    /// Out-of-fold mean interval score (lower is better); under a covariate shift, each row
+    /// weighted by its calibration weight, the estimate of the score at the mapped nodes.
     #[serde(deserialize_with = "serde_nan::f64_or_nan")]
     pub interval_score: f64,
     /// Out-of-fold coverage.
@@ -317,6 +323,9 @@ pub struct BandDiagnostics {
     /// Out-of-fold rows whose cross-fitted band fell back to a bound (their calibration folds
     /// held too few wells).
     pub oof_rows_at_bounds: usize,
+    /// The covariate shift's effect, when the band was calibrated for the mapped nodes.
+    #[serde(default)]
+    pub shift: Option<ShiftDiagnostics>,
 }
 
 /// How one threshold's probabilities are made and how reliable they were out of fold.
@@ -810,6 +819,25 @@ pub fn calibrate_target(
         few: Vec<bool>,
         score: f64,
     }
+    let units = match data.shift {
+        Some(sh) => Units::shifted(data.group, sh.ratio, sh.test_ratio),
+        None => Units::wells(data.group),
+    };
+    // Candidates are compared by their mean interval score over the held-out rows; under a
+    // covariate shift each row weighs its calibration weight, which estimates the score at the
+    // mapped nodes.
+    let score_weight: Vec<f64> = match data.shift {
+        Some(_) => units.weight.clone(),
+        None => vec![1.0; n],
+    };
+    let band_score = |lo: &[f64], hi: &[f64]| -> f64 {
+        let (mut s, mut w) = (0.0, 0.0);
+        for i in 0..n {
+            s += score_weight[i] * interval_score_one(data.y[i], lo[i], hi[i], alpha);
+            w += score_weight[i];
+        }
+        s / w
+    };
     let mut candidates: Vec<Candidate> = Vec::new();
     for method in [
         BandMethod::CvResidual,
@@ -823,13 +851,13 @@ pub fn calibrate_target(
                 &fold,
                 &base,
                 data.y,
-                data.group,
+                &units,
                 level,
                 max_bins,
                 settings.min_wells_per_bin,
                 bounds,
             );
-            let score = interval_score(data.y, &lo, &hi, alpha);
+            let score = band_score(&lo, &hi);
             candidates.push(Candidate {
                 method,
                 max_bins,
@@ -843,9 +871,9 @@ pub fn calibrate_target(
         }
         for &locality in LOCALITIES {
             let (lo, hi, few) = cross_fitted_local_band(
-                method, &fold, &base, data.y, data.group, level, locality, &prox_oof, bounds,
+                method, &fold, &base, data.y, &units, level, locality, &prox_oof, bounds,
             );
-            let score = interval_score(data.y, &lo, &hi, alpha);
+            let score = band_score(&lo, &hi);
             candidates.push(Candidate {
                 method,
                 max_bins: 1,
@@ -888,13 +916,13 @@ pub fn calibrate_target(
     } = candidates.swap_remove(chosen);
     drop(candidates);
     let band = if locality > 0.0 {
-        BandCalibration::fit_local(method, &base, data.y, data.group, level, locality)
+        BandCalibration::fit_local(method, &base, data.y, &units, level, locality)
     } else {
         BandCalibration::fit(
             method,
             &base,
             data.y,
-            data.group,
+            &units,
             level,
             band_bins,
             settings.min_wells_per_bin,
@@ -933,6 +961,24 @@ pub fn calibrate_target(
         min_wells_needed: need,
         message,
         oof_rows_at_bounds: at_bounds,
+        shift: data.shift.map(|_| {
+            let covered = |w: &[f64]| -> f64 {
+                let (mut c, mut t) = (0.0, 0.0);
+                for i in 0..n {
+                    t += w[i];
+                    if lo_oof[i] <= data.y[i] && data.y[i] <= hi_oof[i] {
+                        c += w[i];
+                    }
+                }
+                c / t
+            };
+            ShiftDiagnostics {
+                effective_wells: units.effective_wells(),
+                test_weight: units.test_weight,
+                coverage_wells: covered(&super::well_unit_weights(data.group)),
+                coverage_nodes: covered(&units.weight),
+            }
+        }),
     };
     // The predictive system uses the band's residual scale and bins.
     let cps_scale: Vec<f64> = base
@@ -947,7 +993,6 @@ pub fn calibrate_target(
         .collect();
 
     // 5. Exceedance: conformal predictive system vs recalibrated forest CDF, cross-fitted.
-    let unit_w = well_unit_weights(data.group);
     let mut p_cps = vec![vec![f64::NAN; n]; t_values.len()];
     let mut p_rec = vec![vec![f64::NAN; n]; t_values.len()];
     let mut pit = vec![f64::NAN; n];
@@ -956,10 +1001,10 @@ pub fn calibrate_target(
         let train: Vec<usize> = (0..n).filter(|&i| fold[i] != f).collect();
         let test: Vec<usize> = (0..n).filter(|&i| fold[i] == f).collect();
         let tr_mid = pick(&mid_oof, &train);
-        let tr_group = pick(data.group, &train);
+        let tr_units = units.pick(&train);
         let bins = MondrianBins::build(
             &tr_mid,
-            &tr_group,
+            &tr_units,
             band_bins,
             settings.min_wells_per_bin as f64,
         );
@@ -967,10 +1012,10 @@ pub fn calibrate_target(
             &tr_mid,
             &pick(&cps_scale, &train),
             &pick(data.y, &train),
-            &tr_group,
+            &tr_units,
             bins,
         );
-        let rec = PitRecalibration::fit(&pick(&pit_raw, &train), &pick(&unit_w, &train)).ok();
+        let rec = PitRecalibration::fit(&pick(&pit_raw, &train), &tr_units.weight).ok();
         for &i in &test {
             pit[i] = cps.cdf_scaled(mid_oof[i], cps_scale[i], data.y[i], 0.5);
             if let Some(r) = &rec {
@@ -1073,12 +1118,12 @@ pub fn calibrate_target(
     let (forest, booster) = fit_models(data, settings, &all, use_boost && best < 1.0, k as u64)?;
     let cps_bins = MondrianBins::build(
         &mid_oof,
-        data.group,
+        &units,
         band_bins,
         settings.min_wells_per_bin as f64,
     );
-    let cps = PredictiveSystem::fit_scaled(&mid_oof, &cps_scale, data.y, data.group, cps_bins);
-    let recalibration = PitRecalibration::fit(&pit_raw, &unit_w)?;
+    let cps = PredictiveSystem::fit_scaled(&mid_oof, &cps_scale, data.y, &units, cps_bins);
+    let recalibration = PitRecalibration::fit(&pit_raw, &units.weight)?;
 
     let rows = (0..n)
         .map(|i| OofRow {

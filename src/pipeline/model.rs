@@ -3,6 +3,7 @@
 use super::PipelineError;
 use crate::applicability::{Applicability, Assessment};
 use crate::calibrate::CalibratedTarget;
+use crate::calibrate::shift::ShiftSummary;
 use crate::project::{Convention, TargetSpec, ThresholdSpec};
 use ndarray::{Array2, ArrayView2, Axis};
 use serde::{Deserialize, Serialize};
@@ -36,6 +37,10 @@ pub struct SavedModel {
     pub applicability: Applicability,
     /// Training wells (name, x, y), one entry per distinct position, for pictures and scoring.
     pub wells: Vec<(String, f64, f64)>,
+    /// How representative the wells' attributes are of the mapped nodes (absent in models
+    /// written before it was computed, or when it could not be estimated).
+    #[serde(default)]
+    pub wells_vs_nodes: Option<ShiftSummary>,
 }
 
 /// Predicted maps of one target on one step (values in node order, `NaN` where a node has a null

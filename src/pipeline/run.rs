@@ -5,6 +5,7 @@ use super::PipelineError;
 use super::model::{SavedModel, StepMaps, convention_text};
 use super::outputs::{Formats, MapEntry, Writer, write_step_maps};
 use crate::applicability::Applicability;
+use crate::calibrate::shift::{self, CovariateShift, RowShift, ShiftSettings};
 use crate::calibrate::{self, CalibratedTarget, CalibrationSettings, TargetData, Threshold};
 use crate::ensemble::{BoostSettings, ForestSettings};
 use crate::project::{self, Direction, Project, Survey};
@@ -151,6 +152,9 @@ impl Stages {
     }
 }
 
+/// Grid nodes sampled (over all steps) to estimate the covariate shift from wells to nodes.
+pub const SHIFT_NODE_SAMPLE: usize = 4000;
+
 /// Maps the manifest's settings onto the calibration settings.
 pub fn calibration_settings(project: &Project, seed: u64) -> CalibrationSettings {
     let m = &project.model;
@@ -212,7 +216,8 @@ pub fn thresholds_for(project: &Project, t: usize) -> Vec<Threshold> {
 }
 
 /// Calibrates target `t` on the rows `rows` of the training set, using only the feature columns
-/// `cols` (all columns for the main run; fewer for ablation studies).
+/// `cols` (all columns for the main run; fewer for ablation studies). With `shift` (one ratio per
+/// training-set row), the band is calibrated for the mapped nodes ([`calibrate::shift`]).
 pub fn calibrate_rows(
     project: &Project,
     ts: &TrainingSet,
@@ -220,6 +225,7 @@ pub fn calibrate_rows(
     rows: &[usize],
     cols: &[usize],
     settings: &CalibrationSettings,
+    shift: Option<&CovariateShift>,
 ) -> Result<CalibratedTarget, PipelineError> {
     let x = ts.x.select(Axis(0), rows).select(Axis(1), cols);
     let y: Vec<f64> = rows.iter().map(|&r| ts.y[[r, t]]).collect();
@@ -227,6 +233,9 @@ pub fn calibrate_rows(
     let xy: Vec<[f64; 2]> = rows.iter().map(|&r| ts.xy[r]).collect();
     let step: Vec<usize> = rows.iter().map(|&r| ts.step[r]).collect();
     let weight: Vec<f64> = rows.iter().map(|&r| ts.weight[r]).collect();
+    let ratio: Vec<f64> = shift.map_or_else(Vec::new, |s| {
+        rows.iter().map(|&r| s.well_ratio[r]).collect()
+    });
     let spec = &project.targets[t];
     let data = TargetData {
         name: &spec.name,
@@ -238,6 +247,10 @@ pub fn calibrate_rows(
         weight: &weight,
         bounds: (spec.min, spec.max),
         thresholds: thresholds_for(project, t),
+        shift: shift.map(|s| RowShift {
+            ratio: &ratio,
+            test_ratio: s.node_mean_ratio,
+        }),
     };
     calibrate::calibrate_target(&data, settings).map_err(|source| PipelineError::Calibrate {
         target: spec.name.clone(),
@@ -306,11 +319,43 @@ pub fn fit_model(
     let project = &survey.project;
     let settings = calibration_settings(project, seed);
     let all_cols: Vec<usize> = (0..ts.x.ncols()).collect();
+    // How typical of the nodes the wells are: always estimated and reported (summary.json);
+    // used to weight the band's calibration only when the manifest asks for it.
+    let nodes = sample::node_sample(survey, SHIFT_NODE_SAMPLE, seed ^ 0x5a1f);
+    let applied = project.calibration.covariate_shift;
+    let shift = match shift::estimate(
+        ts.x.view(),
+        &ts.group,
+        nodes.view(),
+        &ShiftSettings::default(),
+    ) {
+        Ok(s) => Some(s),
+        // Only a grid without any mapped node or fewer than two wells get here; the
+        // calibration below reports the latter in its own words.
+        Err(_) if !applied => None,
+        Err(source) => {
+            return Err(PipelineError::Calibrate {
+                target: "(covariate shift from the wells to the nodes)".into(),
+                source,
+            });
+        }
+    };
+    let wells_vs_nodes = shift.as_ref().map(|s| s.summary(&ts.group, applied));
+    let shift = shift.filter(|_| applied);
+    stages.done("wells against nodes");
     let bar = stages.bar(project.targets.len() as u64, "calibrate targets");
     let mut calibrated = Vec::new();
     for t in 0..project.targets.len() {
         let rows = target_rows(ts, t);
-        calibrated.push(calibrate_rows(project, ts, t, &rows, &all_cols, &settings)?);
+        calibrated.push(calibrate_rows(
+            project,
+            ts,
+            t,
+            &rows,
+            &all_cols,
+            &settings,
+            shift.as_ref(),
+        )?);
         bar.inc(1);
     }
     bar.finish_and_clear();
@@ -347,6 +392,7 @@ pub fn fit_model(
         calibrated,
         applicability,
         wells: well_positions(survey),
+        wells_vs_nodes,
     };
     Ok((model, imp))
 }

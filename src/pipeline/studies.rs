@@ -161,6 +161,9 @@ pub struct Summary {
     pub targets: Vec<TargetSummary>,
     /// Area-of-applicability threshold on the dissimilarity index.
     pub applicability_threshold: f64,
+    /// How representative the wells' attributes are of the mapped nodes (`None` when it could
+    /// not be estimated).
+    pub wells_vs_nodes: Option<crate::calibrate::shift::ShiftSummary>,
     /// Ranked infill targets (empty without `[infill]`).
     pub infill: Vec<Target>,
     /// Cautions that go with the results.
@@ -205,6 +208,7 @@ pub fn summary(
         rows: ts.x.nrows(),
         targets,
         applicability_threshold: model.applicability.threshold,
+        wells_vs_nodes: model.wells_vs_nodes.clone(),
         infill: infill.to_vec(),
         cautions: super::CAUTIONS.iter().map(|s| s.to_string()).collect(),
     }
@@ -364,7 +368,7 @@ pub fn sensitivity(
                 };
                 for r in 0..repeats {
                     let rows = curve_rows(ts, t, n_wells, k, seed, si, r);
-                    let cal = calibrate_rows(project, ts, t, &rows, &all_cols, &settings);
+                    let cal = calibrate_rows(project, ts, t, &rows, &all_cols, &settings, None);
                     if let Ok(cal) = cal {
                         point.r2.push(cal.diagnostics.metrics.r2);
                         point.coverage.push(cal.diagnostics.metrics.coverage);
@@ -389,8 +393,8 @@ pub fn sensitivity(
         if !removed.is_empty() && keep.len() > 1 {
             for t in 0..project.targets.len() {
                 let rows = target_rows(ts, t);
-                let all = calibrate_rows(project, ts, t, &rows, &all_cols, &settings)?;
-                let without = calibrate_rows(project, ts, t, &rows, &keep, &settings)?;
+                let all = calibrate_rows(project, ts, t, &rows, &all_cols, &settings, None)?;
+                let without = calibrate_rows(project, ts, t, &rows, &keep, &settings, None)?;
                 out.ablation.push(Ablation {
                     target: project.targets[t].name.clone(),
                     removed: removed.clone(),

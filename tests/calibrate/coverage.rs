@@ -8,7 +8,7 @@ use rand::SeedableRng;
 use rand::rngs::StdRng;
 use statrs::stats_tests::ttest_onesample::ttest_onesample;
 use statrs::stats_tests::{Alternative, NaNPolicy};
-use tidemark::calibrate::conformal::{BandBase, BandCalibration, BandMethod};
+use tidemark::calibrate::conformal::{BandBase, BandCalibration, BandMethod, Units};
 
 const LEVEL: f64 = 0.8;
 const REPEATS: usize = 100;
@@ -45,7 +45,15 @@ fn one_draw(method: BandMethod, n: usize, max_bins: usize, seed: u64) -> [f64; 3
     let mut rng = StdRng::seed_from_u64(seed);
     let cal = wells(&mut rng, n, 0);
     let bases: Vec<BandBase> = cal.x.iter().map(|&x| base(method, x)).collect();
-    let band = BandCalibration::fit(method, &bases, &cal.y, &cal.group, LEVEL, max_bins, 1);
+    let band = BandCalibration::fit(
+        method,
+        &bases,
+        &cal.y,
+        &Units::wells(&cal.group),
+        LEVEL,
+        max_bins,
+        1,
+    );
     assert!(!band.too_few_wells());
     let test = wells(&mut rng, TEST_WELLS, n);
     let edges: Vec<(f64, f64)> = test

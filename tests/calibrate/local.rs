@@ -9,9 +9,18 @@
 use rand::rngs::StdRng;
 use rand::{RngExt, SeedableRng};
 use tidemark::calibrate::conformal::{
-    BandBase, BandCalibration, BandMethod, Localisation, conformal_quantile,
+    BandBase, BandCalibration, BandMethod, Localisation, Units, conformal_quantile,
     weighted_conformal_quantile,
 };
+
+/// Units of one-row wells with weights `u` and a new point weighing one.
+fn units(u: &[f64]) -> Units {
+    Units {
+        group: (0..u.len()).collect(),
+        weight: u.to_vec(),
+        test_weight: 1.0,
+    }
+}
 
 /// The `k`-th smallest (1-based) of `s`, or `None` when `k > n`.
 fn kth(s: &[f64], k: usize) -> Option<f64> {
@@ -74,7 +83,7 @@ fn localisation_with_proximity_equal_to_the_well_weights_is_the_global_band() {
     let u = vec![1.0 / 3.0; 36];
     let prox: Vec<f64> = u.iter().map(|v| v / 12.0).collect();
     for l in [0.25, 0.5, 1.0] {
-        let loc = Localisation::new(l, &s_lo, &s_hi, &u);
+        let loc = Localisation::new(l, &s_lo, &s_hi, &units(&u));
         assert_eq!(
             loc.quantiles(&prox, 0.1),
             (
@@ -95,11 +104,11 @@ fn full_locality_weights_only_the_rows_the_forest_points_to() {
     let mut prox = vec![0.0; 10];
     prox[0] = 0.5;
     prox[1] = 0.5;
-    let loc = Localisation::new(1.0, &s, &s, &u);
+    let loc = Localisation::new(1.0, &s, &s, &units(&u));
     assert_eq!(loc.quantiles(&prox, 0.1), (Some(2.0), Some(2.0)));
     // Half locality: v = 0.5 + 5 * [0.5, 0.5, 0, ...] = (3, 3, 0.5 x 8); 9.9 is reached at the
     // eighth score (3 + 3 + 6 x 0.5 = 9 at score 8, 9.5 at 9, 10 at 10).
-    let loc = Localisation::new(0.5, &s, &s, &u);
+    let loc = Localisation::new(0.5, &s, &s, &units(&u));
     assert_eq!(loc.quantiles(&prox, 0.1), (Some(10.0), Some(10.0)));
     // a = 0.2 needs 0.8 * 11 = 8.8: reached at score 8 (cumulative 9).
     assert_eq!(loc.quantiles(&prox, 0.2), (Some(8.0), Some(8.0)));
@@ -113,7 +122,14 @@ fn localised_band_is_ordered_and_bounded() {
         .map(|i| i as f64 * 0.1 + ((i * 7) % 5) as f64 * 0.05 - 0.1)
         .collect();
     let group: Vec<usize> = (0..n).collect();
-    let cal = BandCalibration::fit_local(BandMethod::CvResidual, &base, &y, &group, 0.8, 0.5);
+    let cal = BandCalibration::fit_local(
+        BandMethod::CvResidual,
+        &base,
+        &y,
+        &Units::wells(&group),
+        0.8,
+        0.5,
+    );
     assert!(cal.local.is_some());
     let prox = vec![1.0 / n as f64; n];
     for mid in [-1.0, 0.0, 1.5, 9.0] {

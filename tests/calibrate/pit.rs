@@ -13,7 +13,7 @@ use rand::{RngExt, SeedableRng};
 use statrs::distribution::{ContinuousCDF, Normal, Uniform};
 use statrs::stats_tests::NaNPolicy;
 use statrs::stats_tests::ks_test::{KSOneSampleAlternativeMethod, ks_onesample};
-use tidemark::calibrate::conformal::MondrianBins;
+use tidemark::calibrate::conformal::{MondrianBins, Units};
 use tidemark::calibrate::exceedance::{PitRecalibration, PredictiveSystem};
 use tidemark::calibrate::well_unit_weights;
 
@@ -39,7 +39,12 @@ fn conformal_predictive_system_pit_is_uniform() {
         let mut rng = StdRng::seed_from_u64(5_000 + d as u64);
         let cal = wells(&mut rng, CAL_WELLS, 0);
         let mid: Vec<f64> = cal.x.iter().map(|&x| cheap_model(x)).collect();
-        let cps = PredictiveSystem::fit(&mid, &cal.y, &cal.group, MondrianBins::single());
+        let cps = PredictiveSystem::fit(
+            &mid,
+            &cal.y,
+            &Units::wells(&cal.group),
+            MondrianBins::single(),
+        );
         let test = wells(&mut rng, 1, CAL_WELLS);
         let tau: f64 = rng.random();
         pits.push(cps.cdf(cheap_model(test.x[0]), test.y[0], tau));

@@ -80,6 +80,7 @@ fn data<'a>(f: &'a Field) -> TargetData<'a> {
                 above: false,
             },
         ],
+        shift: None,
     }
 }
 

@@ -1,6 +1,8 @@
 //! Too few wells: no finite band is printed that the data cannot back.
 
-use tidemark::calibrate::conformal::{BandBase, BandCalibration, BandMethod, min_wells_for_band};
+use tidemark::calibrate::conformal::{
+    BandBase, BandCalibration, BandMethod, Units, min_wells_for_band,
+};
 
 fn calibrate(n_wells: usize, level: f64) -> BandCalibration {
     // Two rows per well.
@@ -9,7 +11,15 @@ fn calibrate(n_wells: usize, level: f64) -> BandCalibration {
     let base: Vec<BandBase> = (0..y.len())
         .map(|i| BandBase::centred(0.01 * i as f64))
         .collect();
-    BandCalibration::fit(BandMethod::CvResidual, &base, &y, &group, level, 3, 10)
+    BandCalibration::fit(
+        BandMethod::CvResidual,
+        &base,
+        &y,
+        &Units::wells(&group),
+        level,
+        3,
+        10,
+    )
 }
 
 #[test]
