@@ -9,5 +9,6 @@ mod isotonic;
 mod local;
 mod metrics;
 mod pit;
+mod shift;
 mod target;
 mod too_few;

@@ -2,7 +2,7 @@
 
 use super::fixtures::*;
 use tidemark::project::{Extract, load_survey};
-use tidemark::sample::{at_wells, node_features};
+use tidemark::sample::{at_wells, node_features, node_sample};
 
 #[test]
 fn training_set_from_the_tiny_project() {
@@ -91,4 +91,37 @@ fn node_features_columns() {
     assert!((x[[r, 0]] - tiny_value(1, 0, 4.0, 3.0)).abs() < 1e-6);
     assert!((x[[r, 1]] - tiny_value(1, 1, 4.0, 3.0)).abs() < 1e-12);
     assert_eq!(x[[r, 2]], 1.0);
+}
+
+#[test]
+fn node_sample_rows_are_node_feature_rows() {
+    let dir = tempfile::tempdir().unwrap();
+    let survey = load_survey(&tiny_project(dir.path())).unwrap();
+    let full: Vec<_> = (0..survey.maps.len())
+        .map(|s| node_features(&survey, s))
+        .collect();
+    let mapped = |x: &ndarray::Array2<f64>, r: usize| x.row(r).iter().take(2).any(|v| !v.is_nan());
+    let n_mapped: usize = full
+        .iter()
+        .map(|x| (0..x.nrows()).filter(|&r| mapped(x, r)).count())
+        .sum();
+    let s = node_sample(&survey, 25, 3);
+    assert_eq!(s.nrows(), 25);
+    // Every sampled row is a mapped node's feature row of its step, and no row repeats.
+    let mut seen = Vec::new();
+    for r in 0..s.nrows() {
+        let step = s[[r, 2]] as usize;
+        let x = &full[step];
+        let found = (0..x.nrows()).find(|&k| {
+            mapped(x, k)
+                && (0..3)
+                    .all(|c| x[[k, c]] == s[[r, c]] || (x[[k, c]].is_nan() && s[[r, c]].is_nan()))
+        });
+        let k = found.unwrap_or_else(|| panic!("sample row {r} is no node of step {step}"));
+        assert!(!seen.contains(&(step, k)), "row {r} repeats");
+        seen.push((step, k));
+    }
+    // Same seed, same sample; asking for more than there is returns every mapped node once.
+    assert_eq!(node_sample(&survey, 25, 3), s);
+    assert_eq!(node_sample(&survey, usize::MAX, 3).nrows(), n_mapped);
 }

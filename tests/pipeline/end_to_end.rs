@@ -316,6 +316,28 @@ fn run_json_records_provenance_and_cautions() {
 }
 
 #[test]
+fn summary_says_how_typical_of_the_nodes_the_wells_are() {
+    let f = fixture();
+    let v: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(f.out.join("summary.json")).unwrap())
+            .unwrap();
+    let s = &v["wells_vs_nodes"];
+    let auc = s["auc"].as_f64().unwrap();
+    let eff = s["effective_wells"].as_f64().unwrap();
+    let wells = s["wells"].as_u64().unwrap() as f64;
+    eprintln!("wells vs nodes: {s}");
+    // The generated field's wells sit at injectors and producers, so the classifier separates
+    // them from the nodes better than chance; Kish's effective size never exceeds the count.
+    assert!(auc > 0.5 && auc <= 1.0, "auc {auc}");
+    assert!(
+        eff > 1.0 && eff <= wells + 1e-9,
+        "effective wells {eff} of {wells}"
+    );
+    assert_eq!(s["applied"], false, "the default calibrates for the wells");
+    assert!(s["node_rows"].as_u64().unwrap() > 0);
+}
+
+#[test]
 fn the_binary_refuses_a_bad_tile_and_names_it() {
     let f = fixture();
     let out = Command::new(env!("CARGO_BIN_EXE_tidemark"))
