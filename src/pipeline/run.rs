@@ -434,8 +434,11 @@ pub fn utc_now() -> String {
     )
 }
 
-/// The settings shown on the review page.
-fn settings_table(project: &Project) -> Vec<crate::report::input::KeyValue> {
+/// The settings shown on the review page, with how typical of the nodes the wells are.
+fn settings_table(
+    project: &Project,
+    wells_vs_nodes: Option<&shift::ShiftSummary>,
+) -> Vec<crate::report::input::KeyValue> {
     let kv = |k: &str, v: String| crate::report::input::KeyValue {
         key: k.into(),
         value: v,
@@ -466,6 +469,26 @@ fn settings_table(project: &Project) -> Vec<crate::report::input::KeyValue> {
             format!(
                 "at most {}, at least {} wells each",
                 c.max_bins, c.min_wells_per_bin
+            ),
+        ),
+        kv(
+            "wells against nodes",
+            wells_vs_nodes.map_or_else(
+                || "not estimated".to_string(),
+                |s| {
+                    format!(
+                        "AUC {:.2} (0.5: wells look like any node), {:.1} effective wells of {}; \
+                         bands {} by the nodes' density ratio",
+                        s.auc,
+                        s.effective_wells,
+                        s.wells,
+                        if s.applied {
+                            "weighted"
+                        } else {
+                            "not weighted"
+                        }
+                    )
+                },
             ),
         ),
     ]
@@ -598,7 +621,7 @@ pub fn run(opts: &RunOptions) -> Result<RunOutcome, PipelineError> {
                     created: utc_now(),
                     seed: Some(seed),
                     project_file: project.manifest_path.display().to_string(),
-                    settings: settings_table(project),
+                    settings: settings_table(project, model.wells_vs_nodes.as_ref()),
                     timings: stages
                         .timings
                         .iter()
