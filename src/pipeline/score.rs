@@ -28,6 +28,13 @@ pub struct NodeScores {
     pub away_from_wells: Option<Metrics>,
     /// Nodes inside the area of applicability and away from wells.
     pub inside_away: Option<Metrics>,
+    /// Nodes where the truth is exactly zero: the reservoir did not change there (unswept, no
+    /// gas out of solution). A band whose central part straddles zero covers every such node,
+    /// so for a target with many of them the coverage on all nodes exceeds nominal even when
+    /// each node's band is calibrated; [`NodeScores::changed`] is the informative set.
+    pub unchanged: Option<Metrics>,
+    /// Nodes where the truth is not zero.
+    pub changed: Option<Metrics>,
 }
 
 /// Scores of one target on one step.
@@ -142,6 +149,8 @@ fn scores(
         inside: score_set(model, t, data, &|k| inside[k]),
         away_from_wells: score_set(model, t, data, &|k| away[k]),
         inside_away: score_set(model, t, data, &|k| inside[k] && away[k]),
+        unchanged: score_set(model, t, data, &|k| data.truth[k] == 0.0),
+        changed: score_set(model, t, data, &|k| data.truth[k] != 0.0),
     }
 }
 

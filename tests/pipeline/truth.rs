@@ -59,6 +59,21 @@ fn band_coverage_away_from_wells_is_near_nominal() {
         // Issue 6's looser check on every node.
         let all = pooled(&v, t, "all")["coverage"].as_f64().unwrap();
         eprintln!("{t} all: coverage {all:.3}");
+        // Unchanged (truth exactly zero) and changed nodes split every node.
+        let count = |set: &str| pooled(&v, t, set)["n_rows"].as_u64().unwrap_or(0);
+        assert_eq!(
+            count("unchanged") + count("changed"),
+            count("all"),
+            "{t}: unchanged + changed = all"
+        );
+        for set in ["unchanged", "changed"] {
+            let m = pooled(&v, t, set);
+            eprintln!(
+                "{t} {set}: coverage {}, nodes {}",
+                m["coverage"], m["n_rows"]
+            );
+            figures.push(serde_json::json!({"target": t, "nodes": set, "coverage": m["coverage"]}));
+        }
         misses.extend((all < 0.73).then(|| format!("{t} all: coverage {all:.3} < 0.73")));
     }
     let path = std::path::Path::new(env!("CARGO_TARGET_TMPDIR")).join("truth-figures.json");
