@@ -20,6 +20,9 @@ pub const CAUTIONS: &[&str] = &[
     "These maps and rankings are decision support, not a reserves estimate.",
     "Bands and probabilities are calibrated on the wells available; they cannot anticipate effects \
      that no well has sampled. Predictions outside the area of applicability are extrapolations.",
+    "Wells usually stand where the reservoir changed most, so bands calibrated on them tend to be \
+     wider between wells than their nominal level implies; summary.json (wells_vs_nodes) says how \
+     typical of the mapped nodes the wells' attributes are.",
     "Have results reviewed by qualified reservoir engineers and geoscientists before they inform \
      drilling, development or reserves decisions or any disclosure, and follow the rules and \
      reporting standards that apply where the field lies.",
