@@ -112,6 +112,9 @@ pub enum CalibrateError {
         /// Wells needed.
         needed: usize,
     },
+    /// The covariate shift from wells to nodes could not be estimated.
+    #[error("covariate shift from the wells to the nodes: {0}")]
+    Shift(String),
     /// Isotonic regression input was unusable.
     #[error("isotonic regression: {0}")]
     Isotonic(String),

@@ -97,7 +97,7 @@ pub struct CovariateShift {
 
 /// Estimates the ratio `p_node(x) / p_well(x)` at every well row of `well_x` (rows of well
 /// `group[i]`) from a sample of node rows `node_x` (same columns). Errors on a shape mismatch,
-/// bad settings, no node rows or fewer than two wells.
+/// bad settings, or no node or well rows.
 pub fn estimate(
     well_x: ArrayView2<f64>,
     group: &[usize],
@@ -122,14 +122,13 @@ pub fn estimate(
             expected: well_x.ncols(),
         });
     }
-    let wells = super::count_wells(group);
-    if nn == 0 || wells < 2 {
-        return Err(CalibrateError::TooFewWells {
-            target: "covariate shift".into(),
-            wells,
-            rows: nw,
-            needed: 2,
-        });
+    if nn == 0 {
+        return Err(CalibrateError::Shift(
+            "no mapped node (every attribute is null at every node)".into(),
+        ));
+    }
+    if nw == 0 {
+        return Err(CalibrateError::Shift("no well rows".into()));
     }
     // Standardised design with an intercept column; missing values at the mean (0).
     let p = well_x.ncols();

@@ -179,4 +179,13 @@ fn estimate_rejects_mismatched_inputs() {
     let n = Array2::<f64>::zeros((5, 2));
     let e = estimate(w.view(), &[0, 0, 1, 1], n.view(), &bad).unwrap_err();
     assert!(e.to_string().contains("max_ratio"), "{e}");
+    let none = Array2::<f64>::zeros((0, 2));
+    let e = estimate(
+        w.view(),
+        &[0, 0, 1, 1],
+        none.view(),
+        &ShiftSettings::default(),
+    )
+    .unwrap_err();
+    assert!(e.to_string().contains("no mapped node"), "{e}");
 }
