@@ -34,6 +34,9 @@ pub struct Args {
     /// Number of wells [default 45].
     #[arg(long)]
     pub wells: Option<usize>,
+    /// Observation wells besides the producers and injectors, placed uniformly [default 0].
+    #[arg(long)]
+    pub observers: Option<usize>,
     /// Number of monitor surveys (steps m1..mN) [default 4].
     #[arg(long)]
     pub steps: Option<usize>,
@@ -94,6 +97,9 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
     if let Some(v) = args.wells {
         s.wells = v;
     }
+    if let Some(v) = args.observers {
+        s.observers = v;
+    }
     if let Some(v) = args.steps {
         s.steps = v;
     }
@@ -132,14 +138,11 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
     let start = Instant::now();
     let field = synth::generate(&s)?;
     synth::write_project(&field, &s, out)?;
-    let producers = field
-        .wells
-        .iter()
-        .filter(|w| w.kind == WellKind::Producer)
-        .count();
+    let count = |kind: WellKind| field.wells.iter().filter(|w| w.kind == kind).count();
     println!(
         "wrote {} (synthetic, seed {}) to {}: {} x {} nodes at {} m, {} steps, {} wells \
-         ({} producers, {} injectors), {} well observations, {} attributes per step, in {:.1} s",
+         ({} producers, {} injectors, {} observers), {} well observations, {} attributes per \
+         step, in {:.1} s",
         synth::project::FIELD_NAME,
         s.seed,
         out.display(),
@@ -148,8 +151,9 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
         s.spacing,
         s.steps,
         field.wells.len(),
-        producers,
-        field.wells.len() - producers,
+        count(WellKind::Producer),
+        count(WellKind::Injector),
+        count(WellKind::Observer),
         field.well_rows.len(),
         field.attribute_names.len(),
         start.elapsed().as_secs_f64()

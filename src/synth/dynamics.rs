@@ -236,6 +236,7 @@ impl Dynamics {
             let sign = match w.kind {
                 WellKind::Producer => -1.0,
                 WellKind::Injector => 1.0,
+                WellKind::Observer => continue,
             };
             let mut add = |wx: f64, wy: f64| {
                 let r = (x - wx).hypot(y - wy).max(self.r_min);

@@ -95,6 +95,9 @@ pub struct SynthSettings {
     pub wells: usize,
     /// Fraction of the wells that inject water \[0.3\], in \[0, 1).
     pub injector_fraction: f64,
+    /// Observation wells besides `wells` \[0\], <= 1000: no flow, placed uniformly outside the
+    /// lobe, measured at every monitor.
+    pub observers: usize,
     /// Minimum distance between wells, m \[350\] (relaxed when the grid is too small).
     pub min_well_spacing: f64,
     /// Range of producer rates, reservoir m3/day \[200, 700\].
@@ -268,6 +271,7 @@ impl Default for SynthSettings {
             null_value: -999.25,
             wells: 45,
             injector_fraction: 0.3,
+            observers: 0,
             min_well_spacing: 350.0,
             producer_rate: [200.0, 700.0],
             injector_rate: [400.0, 1400.0],
@@ -422,6 +426,9 @@ impl SynthSettings {
         finite("null_value", self.null_value)?;
         if self.wells < 2 || self.wells > 1000 {
             return Err(bad("wells", self.wells, "must lie in 2..=1000"));
+        }
+        if self.observers > 1000 {
+            return Err(bad("observers", self.observers, "must lie in 0..=1000"));
         }
         frac("injector_fraction", self.injector_fraction, 0.0, 0.9)?;
         nonneg("min_well_spacing", self.min_well_spacing)?;

@@ -5,6 +5,8 @@
 //! sample the field unevenly, as real wells do), injectors half near the oil-water contact
 //! (peripheral injection) and half inside the oil leg, a minimum spacing between wells, no well on
 //! the fault, and none in the porous lobe, which therefore lies away from every training point.
+//! Optional observation wells neither produce nor inject: they are placed uniformly over the
+//! field outside the lobe, so they sample the reservoir as a random grid node would.
 
 use super::reservoir::Reservoir;
 use super::{SynthError, SynthSettings, sub_seed};
@@ -20,6 +22,8 @@ pub enum WellKind {
     Producer,
     /// Injects water (pressure rises, a water front grows).
     Injector,
+    /// Observes only: no flow, measured from the base survey on.
+    Observer,
 }
 
 impl WellKind {
@@ -28,6 +32,7 @@ impl WellKind {
         match self {
             WellKind::Producer => "producer",
             WellKind::Injector => "injector",
+            WellKind::Observer => "observer",
         }
     }
 }
@@ -226,6 +231,7 @@ pub fn place(res: &Reservoir, s: &SynthSettings) -> Result<Vec<PlacedWell>, Synt
                                 rng.random_range(s.injector_rate[0]..=s.injector_rate[1]),
                                 rng.random_range(0.25..=(0.5 * t_end).max(0.25)),
                             ),
+                            WellKind::Observer => (0.0, 0.0),
                         };
                         placed.push(PlacedWell {
                             name: String::new(),
@@ -242,13 +248,58 @@ pub fn place(res: &Reservoir, s: &SynthSettings) -> Result<Vec<PlacedWell>, Synt
             }
         }
     }
+    // Observation wells: anywhere outside the lobe and clear of the fault and the other wells,
+    // drawn after the flowing wells so that those are the same with or without observers.
+    for _ in 0..s.observers {
+        let mut tries = 0usize;
+        loop {
+            tries += 1;
+            if tries.is_multiple_of(4000) {
+                spacing *= 0.85;
+                if spacing < 0.5 * res.spacing {
+                    return Err(SynthError::Generation(format!(
+                        "cannot place {} observation wells besides {} wells on a {} x {} grid; \
+                         use fewer wells or a larger grid",
+                        s.observers, s.wells, res.nx, res.ny
+                    )));
+                }
+            }
+            let x = rng.random_range(margin..(width - margin).max(margin + 1.0));
+            let y = rng.random_range(margin..(height - margin).max(margin + 1.0));
+            if res.no_well[res.nearest(x, y)] {
+                continue;
+            }
+            if let Some(f) = res.fault
+                && f.signed_distance(x, y).abs() < fault_clear
+            {
+                continue;
+            }
+            if placed.iter().any(|p| (p.x - x).hypot(p.y - y) < spacing) {
+                continue;
+            }
+            placed.push(PlacedWell {
+                name: String::new(),
+                kind: WellKind::Observer,
+                rate: 0.0,
+                start: 0.0,
+                x,
+                y,
+                compartment: res.compartment_at(x, y),
+            });
+            break;
+        }
+    }
     // names in order of start within each kind
-    for kind in [WellKind::Producer, WellKind::Injector] {
+    for kind in [WellKind::Producer, WellKind::Injector, WellKind::Observer] {
         let mut idx: Vec<usize> = (0..placed.len())
             .filter(|&i| placed[i].kind == kind)
             .collect();
         idx.sort_by(|a, b| placed[*a].start.total_cmp(&placed[*b].start));
-        let letter = if kind == WellKind::Producer { 'P' } else { 'I' };
+        let letter = match kind {
+            WellKind::Producer => 'P',
+            WellKind::Injector => 'I',
+            WellKind::Observer => 'O',
+        };
         for (k, i) in idx.into_iter().enumerate() {
             placed[i].name = format!("SKB-{letter}{:02}", k + 1);
         }

@@ -263,6 +263,7 @@ fn wells_are_irregular_and_avoid_the_lobe() {
             let range = match w.kind {
                 WellKind::Producer => s.producer_rate,
                 WellKind::Injector => s.injector_rate,
+                WellKind::Observer => [0.0, 0.0],
             };
             assert!(w.rate >= range[0] && w.rate <= range[1]);
             assert!(w.start >= 0.0 && w.start < t_end);
@@ -481,6 +482,7 @@ fn synth_command_writes_a_project_and_refuses_a_non_empty_folder() {
         spacing: Some(60.0),
         rotation: Some(-15.0),
         wells: Some(8),
+        observers: None,
         steps: Some(2),
         interval: None,
         snr: Some(8.0),
@@ -527,4 +529,42 @@ fn synth_command_writes_a_project_and_refuses_a_non_empty_folder() {
     };
     assert_eq!(run(from).unwrap(), 0);
     assert_eq!(files(&out), files(&again));
+}
+
+#[test]
+fn observation_wells_watch_without_changing_the_field() {
+    // Observers are placed after the flowing wells and carry no flow, so the same seed gives the
+    // same flowing wells, the same truth and the same seismic with or without them.
+    let plain = synth::generate(&small(21)).unwrap();
+    let s = SynthSettings {
+        observers: 4,
+        ..small(21)
+    };
+    let watched = synth::generate(&s).unwrap();
+    assert_eq!(plain.truth, watched.truth);
+    assert_eq!(plain.attributes, watched.attributes);
+    let observers: Vec<_> = watched
+        .wells
+        .iter()
+        .filter(|w| w.kind == WellKind::Observer)
+        .collect();
+    assert_eq!(observers.len(), 4);
+    assert_eq!(watched.wells.len(), plain.wells.len() + 4);
+    for w in &plain.wells {
+        assert!(
+            watched
+                .wells
+                .iter()
+                .any(|v| v.name == w.name && v.x == w.x && v.y == w.y && v.kind == w.kind),
+            "{} moved",
+            w.name
+        );
+    }
+    for o in &observers {
+        assert_eq!(o.rate, 0.0);
+        assert!(o.name.starts_with("SKB-O"), "{}", o.name);
+        // Measured at every monitor, from the base survey on.
+        let rows = watched.well_rows.iter().filter(|r| r.0 == o.name).count();
+        assert_eq!(rows, s.steps, "{}", o.name);
+    }
 }
