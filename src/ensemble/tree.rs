@@ -1012,7 +1012,7 @@ impl Grower<'_> {
         let fh = &mut *self.fh1;
         let ww = &self.ww[..];
         let mut sets = [[0u64; 4]; 4];
-        for (i, &r) in rows.iter().enumerate() {
+        let mut add = |set: &mut [u64; 4], r: u32| {
             let r = r as usize;
             let b = col[r];
             let [w, wy] = ww[r];
@@ -1020,7 +1020,17 @@ impl Grower<'_> {
             e[0] += w;
             e[1] += wy;
             e[2] += 1.0;
-            sets[i & 3][(b >> 6) as usize] |= 1u64 << (b & 63);
+            set[(b >> 6) as usize] |= 1u64 << (b & 63);
+        };
+        // rows in order, four at a time so that each row's set is fixed
+        let mut quads = rows.chunks_exact(4);
+        for q in quads.by_ref() {
+            for (set, &r) in sets.iter_mut().zip(q) {
+                add(set, r);
+            }
+        }
+        for &r in quads.remainder() {
+            add(&mut sets[0], r);
         }
         let mut bits = union4(&sets);
         let miss = std::mem::take(&mut fh[MISSING_BIN as usize]);
