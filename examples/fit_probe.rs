@@ -1,13 +1,15 @@
 //! Times forest fitting on Friedman #1 (development probe for tree growing).
 //!
-//! `cargo run --release --example fit_probe -- ROWS [defaults|matched] [REPEATS]` fits a
+//! `cargo run --release --example fit_probe -- ROWS [defaults|matched|sub50|leaf5|smartcore] [REPEATS]` fits a
 //! 300-tree forest on ROWS rows of Friedman #1 (the data of `benches/ensemble.rs`) REPEATS
 //! times (default 5) and prints, per fit, the wall time and the process CPU time (user +
 //! system, all threads, from `/proc/self/task/*/schedstat`), then their medians, the held-out R2 on 5,000
 //! fresh rows and a fingerprint of the fitted model (its held-out predictions and OOB
 //! predictions, bit for bit), so that a change to growing can be checked to give the same
 //! trees. `matched` uses smartcore 0.7's default settings (3 of 10 features per split, leaves
-//! of one row), as the bench's `tidemark_matched`. Compare CPU medians, not wall times, when
+//! of one row), as the bench's `tidemark_matched`; `sub50` draws half the rows without
+//! replacement per tree and `leaf5` keeps at least five rows per leaf (other settings at the
+//! defaults); `smartcore` times smartcore 0.7's `RandomForestRegressor` at its defaults. Compare CPU medians, not wall times, when
 //! the machine is shared; `RAYON_NUM_THREADS=1` measures one core.
 
 use std::time::Instant;
@@ -66,25 +68,33 @@ fn main() {
     let args: Vec<String> = std::env::args().skip(1).collect();
     let n: usize = args.first().map_or(2000, |a| a.parse().expect("ROWS"));
     let mode = args.get(1).map_or("defaults", String::as_str);
-    let matched = mode == "matched";
     let reps: usize = args.get(2).map_or(5, |a| a.parse().expect("REPEATS"));
     let (x, y) = friedman1(n, 1);
     let (xv, yv) = friedman1(5000, 99);
     let p = x.ncols();
-    let settings = if matched {
-        ForestSettings {
-            n_trees: 300,
-            seed: 1,
+    let base = ForestSettings {
+        n_trees: 300,
+        seed: 1,
+        ..Default::default()
+    };
+    let settings = match mode {
+        "matched" => ForestSettings {
             max_features: (p as f64).sqrt().floor() / p as f64,
             min_samples_leaf: 1,
-            ..Default::default()
-        }
-    } else {
-        ForestSettings {
-            n_trees: 300,
-            seed: 1,
-            ..Default::default()
-        }
+            ..base
+        },
+        // subsampling half the rows without replacement instead of the bootstrap
+        "sub50" => ForestSettings {
+            bootstrap: false,
+            sample_fraction: 0.5,
+            ..base
+        },
+        // larger leaves
+        "leaf5" => ForestSettings {
+            min_samples_leaf: 5,
+            ..base
+        },
+        _ => base,
     };
     if mode == "smartcore" {
         smartcore_times(&x, &y, &xv, &yv, reps);
@@ -115,7 +125,7 @@ fn main() {
     println!(
         "rows {n} {}: min cpu {:.4} s, median wall {:.4} s, median cpu {:.4} s, R2 {:.4}, \
          fingerprint {h:016x}",
-        if matched { "matched" } else { "defaults" },
+        mode,
         cpus.iter().copied().fold(f64::INFINITY, f64::min),
         median(&mut walls),
         median(&mut cpus),
