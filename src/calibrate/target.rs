@@ -29,9 +29,8 @@
 //! came from models that saw the held-out fold, a second-order leak that nested cross-validation
 //! would remove at K times the cost.
 
-use super::conformal::Units;
 use super::conformal::{
-    BandBase, BandCalibration, BandMethod, BinInfo, MondrianBins, cross_fitted_band,
+    BandBase, BandCalibration, BandMethod, BinInfo, MondrianBins, Units, cross_fitted_band,
     cross_fitted_local_band, finite_band_possible, min_wells_for_band, pick,
 };
 use super::exceedance::{
