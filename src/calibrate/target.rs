@@ -14,8 +14,12 @@
 //!    applied at a strength `s` in {1/4, 1/2, 3/4, 1} as `raw + s (iso(raw) - raw)`, the strength
 //!    with the lowest out-of-fold squared error kept, and only if it beats the uncorrected
 //!    predictor. The final map is fitted on all out-of-fold pairs.
-//! 4. Band: [`BandMethod::CvResidual`] and [`BandMethod::Cqr`], each cross-fitted on held-out
-//!    wells; the one with the lower out-of-fold interval score (Gneiting & Raftery 2007) is kept.
+//! 4. Band: [`BandMethod::CvResidual`], [`BandMethod::Normalized`] and [`BandMethod::Cqr`], each
+//!    with 1..`max_bins` Mondrian bins and localised at several localities, cross-fitted on
+//!    held-out wells; the one with the lowest out-of-fold interval score (Gneiting & Raftery
+//!    2007) is kept. With [`TargetData::shift`] the wells are weighted by the nodes-to-wells
+//!    density ratio in the calibration and in that score (weighted conformal under covariate
+//!    shift, Tibshirani et al. 2019; see [`super::shift`]).
 //! 5. Exceedance per threshold: conformal predictive system or recalibrated forest CDF, whichever
 //!    has the lower out-of-fold Brier score.
 //! 6. Metrics overall and per step on the out-of-fold rows; final models fitted on all rows.
