@@ -189,3 +189,41 @@ fn estimate_rejects_mismatched_inputs() {
     .unwrap_err();
     assert!(e.to_string().contains("no mapped node"), "{e}");
 }
+
+#[test]
+fn shifted_units_by_hand() {
+    // Wells 0 (two rows), 1, 2; ratios 1, 3, 2, 2; new node 4. Unit weights 0.5, 0.5, 1, 1; times
+    // the ratios 0.5, 1.5, 2, 2 (sum 6); scaled to the 3 wells by 1/2: 0.25, 0.75, 1, 1 and the
+    // new node 2. Each well then weighs 1 in total: 3 effective wells.
+    let u = Units::shifted(&[0, 0, 1, 2], &[1.0, 3.0, 2.0, 2.0], 4.0);
+    assert_eq!(u.weight, vec![0.25, 0.75, 1.0, 1.0]);
+    assert_eq!(u.test_weight, 2.0);
+    assert!((u.effective_wells() - 3.0).abs() < 1e-12);
+    // A ratio that is not finite and positive counts as one.
+    let v = Units::shifted(&[0, 1], &[f64::NAN, -2.0], 0.0);
+    assert_eq!(v.weight, vec![1.0, 1.0]);
+    assert_eq!(v.test_weight, 1.0);
+}
+
+#[test]
+fn the_new_points_weight_sets_the_finite_sample_price() {
+    // Scores 1, 2, 3 of weight 1 each; a = 0.2 needs (1 - a)(3 + w) of cumulative weight
+    // (Tibshirani et al. 2019, eq. 7). w = 0.5: 2.8, reached at the third score. w = 2: 4 > 3,
+    // only the point mass at +inf gets there.
+    use tidemark::calibrate::conformal::weighted_conformal_quantile;
+    let s = [1.0, 2.0, 3.0];
+    let w = [1.0; 3];
+    assert_eq!(weighted_conformal_quantile(&s, &w, 0.5, 0.2), Some(3.0));
+    assert_eq!(weighted_conformal_quantile(&s, &w, 2.0, 0.2), None);
+    // The predictive system takes the same weight: Q(t) = (W{a < t} + tau (W{a = t} + w)) /
+    // (W + w). Residuals 1, 2, 3 at mid 0, w = 2: Q(2.5) = (2 + 0.5 * 2) / 5 = 0.6.
+    use tidemark::calibrate::conformal::MondrianBins;
+    use tidemark::calibrate::exceedance::PredictiveSystem;
+    let units = Units {
+        group: vec![0, 1, 2],
+        weight: vec![1.0; 3],
+        test_weight: 2.0,
+    };
+    let cps = PredictiveSystem::fit(&[0.0; 3], &s, &units, MondrianBins::single());
+    assert!((cps.cdf(0.0, 2.5, 0.5) - 0.6).abs() < 1e-12);
+}
