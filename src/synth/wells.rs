@@ -122,6 +122,33 @@ fn quotas(total: usize, weights: &[f64], floor: usize) -> Vec<usize> {
     q
 }
 
+/// Every 4000th try shrinks the spacing between wells by 15 %; false once it has shrunk below
+/// half a grid spacing (the wells do not fit).
+fn relax_spacing(tries: usize, spacing: &mut f64, grid_spacing: f64) -> bool {
+    if !tries.is_multiple_of(4000) {
+        return true;
+    }
+    *spacing *= 0.85;
+    *spacing >= 0.5 * grid_spacing
+}
+
+/// Whether a well may stand at local `(x, y)`: outside the lobe, `fault_clear` from the fault and
+/// `spacing` from every well placed so far.
+fn clear_spot(
+    res: &Reservoir,
+    placed: &[PlacedWell],
+    x: f64,
+    y: f64,
+    spacing: f64,
+    fault_clear: f64,
+) -> bool {
+    !res.no_well[res.nearest(x, y)]
+        && res
+            .fault
+            .is_none_or(|f| f.signed_distance(x, y).abs() >= fault_clear)
+        && !placed.iter().any(|p| (p.x - x).hypot(p.y - y) < spacing)
+}
+
 /// Places the wells of the field.
 pub fn place(res: &Reservoir, s: &SynthSettings) -> Result<Vec<PlacedWell>, SynthError> {
     let mut rng = StdRng::seed_from_u64(sub_seed(s.seed, &[2]));
@@ -183,29 +210,20 @@ pub fn place(res: &Reservoir, s: &SynthSettings) -> Result<Vec<PlacedWell>, Synt
                 let mut tries = 0usize;
                 loop {
                     tries += 1;
-                    if tries.is_multiple_of(4000) {
-                        spacing *= 0.85;
-                        if spacing < 0.5 * res.spacing {
-                            return Err(SynthError::Generation(format!(
-                                "cannot place {} wells on a {} x {} grid at {} m spacing; \
-                                 use fewer wells or a larger grid",
-                                s.wells, res.nx, res.ny, res.spacing
-                            )));
-                        }
+                    if !relax_spacing(tries, &mut spacing, res.spacing) {
+                        return Err(SynthError::Generation(format!(
+                            "cannot place {} wells on a {} x {} grid at {} m spacing; \
+                             use fewer wells or a larger grid",
+                            s.wells, res.nx, res.ny, res.spacing
+                        )));
                     }
                     let x = rng.random_range(margin..(width - margin).max(margin + 1.0));
                     let y = rng.random_range(margin..(height - margin).max(margin + 1.0));
                     let u: f64 = rng.random();
                     let i = res.nearest(x, y);
-                    if res.compartment_at(x, y) != c || res.no_well[i] {
-                        continue;
-                    }
-                    if let Some(f) = res.fault
-                        && f.signed_distance(x, y).abs() < fault_clear
+                    if res.compartment_at(x, y) != c
+                        || !clear_spot(res, &placed, x, y, spacing, fault_clear)
                     {
-                        continue;
-                    }
-                    if placed.iter().any(|p| (p.x - x).hypot(p.y - y) < spacing) {
                         continue;
                     }
                     let ok = if peripheral {
@@ -254,27 +272,16 @@ pub fn place(res: &Reservoir, s: &SynthSettings) -> Result<Vec<PlacedWell>, Synt
         let mut tries = 0usize;
         loop {
             tries += 1;
-            if tries.is_multiple_of(4000) {
-                spacing *= 0.85;
-                if spacing < 0.5 * res.spacing {
-                    return Err(SynthError::Generation(format!(
-                        "cannot place {} observation wells besides {} wells on a {} x {} grid; \
-                         use fewer wells or a larger grid",
-                        s.observers, s.wells, res.nx, res.ny
-                    )));
-                }
+            if !relax_spacing(tries, &mut spacing, res.spacing) {
+                return Err(SynthError::Generation(format!(
+                    "cannot place {} observation wells besides {} wells on a {} x {} grid; \
+                     use fewer wells or a larger grid",
+                    s.observers, s.wells, res.nx, res.ny
+                )));
             }
             let x = rng.random_range(margin..(width - margin).max(margin + 1.0));
             let y = rng.random_range(margin..(height - margin).max(margin + 1.0));
-            if res.no_well[res.nearest(x, y)] {
-                continue;
-            }
-            if let Some(f) = res.fault
-                && f.signed_distance(x, y).abs() < fault_clear
-            {
-                continue;
-            }
-            if placed.iter().any(|p| (p.x - x).hypot(p.y - y) < spacing) {
+            if !clear_spot(res, &placed, x, y, spacing, fault_clear) {
                 continue;
             }
             placed.push(PlacedWell {
