@@ -21,38 +21,16 @@ use std::time::Duration;
 
 use criterion::{BenchmarkId, Criterion, SamplingMode, criterion_group, criterion_main};
 use ndarray::{Array1, Array2, Axis};
-use rand::rngs::StdRng;
-use rand::{RngExt, SeedableRng};
-use rand_distr::{Distribution, StandardNormal};
 use smartcore::ensemble::random_forest_regressor::{
     RandomForestRegressor, RandomForestRegressorParameters,
 };
 use tidemark::ensemble::{Forest, ForestSettings};
 
+#[path = "support/friedman.rs"]
+mod friedman;
+use friedman::{friedman1, r2};
+
 const N_TREES: usize = 300;
-
-/// Friedman #1: `10 sin(pi x0 x1) + 20 (x2 - 0.5)^2 + 10 x3 + 5 x4 + N(0, 1)`, 10 features.
-fn friedman1(n: usize, seed: u64) -> (Array2<f64>, Array1<f64>) {
-    let mut rng = StdRng::seed_from_u64(seed);
-    let x = Array2::from_shape_fn((n, 10), |_| rng.random::<f64>());
-    let y = Array1::from_shape_fn(n, |i| {
-        let r = x.row(i);
-        let e: f64 = StandardNormal.sample(&mut rng);
-        10.0 * (std::f64::consts::PI * r[0] * r[1]).sin()
-            + 20.0 * (r[2] - 0.5).powi(2)
-            + 10.0 * r[3]
-            + 5.0 * r[4]
-            + e
-    });
-    (x, y)
-}
-
-fn r2(y: &[f64], pred: &[f64]) -> f64 {
-    let mean = y.iter().sum::<f64>() / y.len() as f64;
-    let sst: f64 = y.iter().map(|v| (v - mean).powi(2)).sum();
-    let sse: f64 = y.iter().zip(pred).map(|(a, b)| (a - b).powi(2)).sum();
-    1.0 - sse / sst
-}
 
 fn ours(x: &Array2<f64>, y: &Array1<f64>) -> Forest {
     ForestSettings {
@@ -97,7 +75,7 @@ fn one_thread() -> rayon::ThreadPool {
 }
 
 fn forest_fit(c: &mut Criterion) {
-    let (xv, yv) = friedman1(5000, 99);
+    let (xv, yv) = friedman1(5000, 1.0, 99);
     let mut group = c.benchmark_group("forest_fit");
     group
         .sample_size(10)
@@ -106,7 +84,7 @@ fn forest_fit(c: &mut Criterion) {
         .measurement_time(Duration::from_secs(1));
     let pool = one_thread();
     for n in [200usize, 2_000, 20_000] {
-        let (x, y) = friedman1(n, 1);
+        let (x, y) = friedman1(n, 1.0, 1);
         let yv = yv.as_slice().expect("contiguous");
         let a = ours(&x, &y).predict(xv.view()).column(0).to_vec();
         let am = ours_matched(&x, &y).predict(xv.view()).column(0).to_vec();
@@ -135,7 +113,7 @@ fn forest_fit(c: &mut Criterion) {
 }
 
 fn forest_predict_quantiles(c: &mut Criterion) {
-    let (x, y) = friedman1(200, 1);
+    let (x, y) = friedman1(200, 1.0, 1);
     let forest = ours(&x, &y);
     let mut group = c.benchmark_group("forest_predict_quantiles");
     group
@@ -144,7 +122,7 @@ fn forest_predict_quantiles(c: &mut Criterion) {
         .warm_up_time(Duration::from_millis(100))
         .measurement_time(Duration::from_secs(1));
     for n in [100_000usize, 1_000_000] {
-        let (xq, _) = friedman1(n, 5);
+        let (xq, _) = friedman1(n, 1.0, 5);
         group.bench_with_input(BenchmarkId::new("p10_p50_p90_exceed", n), &n, |bch, _| {
             bch.iter(|| {
                 black_box(forest.predict_distribution(xq.view(), 0, &[0.1, 0.5, 0.9], &[15.0]))
@@ -155,10 +133,10 @@ fn forest_predict_quantiles(c: &mut Criterion) {
 }
 
 fn forest_predict_mean(c: &mut Criterion) {
-    let (x, y) = friedman1(200, 1);
+    let (x, y) = friedman1(200, 1.0, 1);
     let forest = ours(&x, &y);
     let smart = theirs(&x, &y);
-    let (xq, _) = friedman1(10_000, 5);
+    let (xq, _) = friedman1(10_000, 1.0, 5);
     let mut group = c.benchmark_group("forest_predict_mean");
     group
         .sample_size(10)

@@ -15,26 +15,11 @@
 use std::time::Instant;
 
 use ndarray::{Array1, Array2, Axis};
-use rand::rngs::StdRng;
-use rand::{RngExt, SeedableRng};
-use rand_distr::{Distribution, StandardNormal};
 use tidemark::ensemble::ForestSettings;
 
-/// Friedman #1 as in `benches/ensemble.rs`.
-fn friedman1(n: usize, seed: u64) -> (Array2<f64>, Array1<f64>) {
-    let mut rng = StdRng::seed_from_u64(seed);
-    let x = Array2::from_shape_fn((n, 10), |_| rng.random::<f64>());
-    let y = Array1::from_shape_fn(n, |i| {
-        let r = x.row(i);
-        let e: f64 = StandardNormal.sample(&mut rng);
-        10.0 * (std::f64::consts::PI * r[0] * r[1]).sin()
-            + 20.0 * (r[2] - 0.5).powi(2)
-            + 10.0 * r[3]
-            + 5.0 * r[4]
-            + e
-    });
-    (x, y)
-}
+#[path = "../benches/support/friedman.rs"]
+mod friedman;
+use friedman::{friedman1, r2};
 
 /// CPU seconds used so far by the live threads of this process (the first field of each
 /// thread's `/proc/self/task/*/schedstat`, nanoseconds on the CPU); rayon's pool threads live
@@ -69,8 +54,8 @@ fn main() {
     let n: usize = args.first().map_or(2000, |a| a.parse().expect("ROWS"));
     let mode = args.get(1).map_or("defaults", String::as_str);
     let reps: usize = args.get(2).map_or(5, |a| a.parse().expect("REPEATS"));
-    let (x, y) = friedman1(n, 1);
-    let (xv, yv) = friedman1(5000, 99);
+    let (x, y) = friedman1(n, 1.0, 1);
+    let (xv, yv) = friedman1(5000, 1.0, 99);
     let p = x.ncols();
     let base = ForestSettings {
         n_trees: 300,
@@ -131,13 +116,6 @@ fn main() {
         median(&mut cpus),
         r2(yv.as_slice().expect("contiguous"), &pred),
     );
-}
-
-fn r2(y: &[f64], pred: &[f64]) -> f64 {
-    let mean = y.iter().sum::<f64>() / y.len() as f64;
-    let sst: f64 = y.iter().map(|v| (v - mean).powi(2)).sum();
-    let sse: f64 = y.iter().zip(pred).map(|(a, b)| (a - b).powi(2)).sum();
-    1.0 - sse / sst
 }
 
 /// The same timings for smartcore 0.7's `RandomForestRegressor` at its defaults (300 trees).
