@@ -28,10 +28,10 @@
 //! weight of a new node; the rule is exact when every node has that ratio and otherwise an
 //! approximation, which the calibration reports beside the coverage at held-out wells.
 //!
-//! **How strong the shift is.** The cross-fitted area under the ROC curve of the classifier
-//! (0.5: wells look like any node) and the effective number of wells
-//! `(sum v)^2 / sum v^2` of the well weights `v` (Kish 1965, "Survey Sampling", sec. 11.7)
-//! go into the diagnostics.
+//! **How strong the shift is.** The area under the ROC curve of the classifier (0.5: wells look
+//! like any node; computed in sample, which a model of one coefficient per attribute fitted on
+//! thousands of rows barely flatters) and Kish's effective number of wells `(sum v)^2 / sum v^2`
+//! of the well weights `v` (Kish 1965, "Survey Sampling", sec. 11.7) go into the diagnostics.
 
 use ndarray::{Array2, ArrayView2, Axis};
 use serde::{Deserialize, Serialize};
