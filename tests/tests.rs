@@ -1,5 +1,6 @@
 //! Integration tests, compiled as one binary. Each area keeps its tests in its own folder.
 
+mod architecture;
 mod calibrate;
 mod ensemble;
 mod foundation;

@@ -18,7 +18,7 @@ pub struct Args {
     /// Worker threads (default: all cores).
     #[arg(long)]
     pub threads: Option<usize>,
-    /// No progress output.
+    /// No progress output or tables (warnings are still printed).
     #[arg(long)]
     pub quiet: bool,
 }
@@ -50,6 +50,7 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
     opts.quiet = args.quiet;
     opts.formats = Formats::default();
     let outcome = run_pipeline(&opts).context("running the demo")?;
+    super::run::print_warnings(&outcome.record.warnings);
     let truth = project.parent().map(|p| p.join("truth"));
     if let Some(truth) = truth.filter(|t| t.is_dir()) {
         crate::pipeline::score::score_and_report(&outcome.out, &truth)

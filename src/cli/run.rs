@@ -19,7 +19,7 @@ pub struct Args {
     /// Worker threads (default: all cores). Results do not depend on it.
     #[arg(long)]
     pub threads: Option<usize>,
-    /// No progress bars or stage messages.
+    /// No progress bars, stage messages or tables (warnings are still printed).
     #[arg(long)]
     pub quiet: bool,
     /// Skip the XYZ text copies of the maps (GeoTIFF only).
@@ -65,11 +65,17 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
     }
     let outcome =
         run_pipeline(&opts).with_context(|| format!("running {}", args.project.display()))?;
+    // Warnings are never silenced: `--quiet` hides progress and tables only.
+    print_warnings(&outcome.record.warnings);
     if !args.quiet {
         println!("results in {}", outcome.out.display());
-        for w in &outcome.record.warnings {
-            eprintln!("warning: {w}");
-        }
     }
     Ok(0)
+}
+
+/// Prints a run's warnings on stderr, one `warning: ...` line each.
+pub fn print_warnings(warnings: &[String]) {
+    for w in warnings {
+        eprintln!("warning: {w}");
+    }
 }

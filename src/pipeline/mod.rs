@@ -4,14 +4,26 @@
 //! The pipeline is glue: every number it writes comes from [`crate::calibrate`],
 //! [`crate::applicability`] and [`crate::decide`]. What it owns is the file layout of a results
 //! folder, the P10/P50/P90 labels, provenance (`run.json`) and the refusal to write over inputs.
+//!
+//! Its modules call only downwards (a test keeps it so):
+//! - [`run`]: the main job as a sequence of stages;
+//! - [`assemble`]: the review page's input from what the run produced;
+//! - [`studies`] (infill ranking, `summary.json`, sensitivity studies), [`pictures`], [`score`],
+//!   [`predict`];
+//! - [`fit`]: one target fitted and calibrated on chosen rows and columns, the whole model of a run;
+//! - [`stages`], [`warnings`], [`outputs`], [`model`] and this file's shared items.
 
+pub mod assemble;
+pub mod fit;
 pub mod model;
 pub mod outputs;
 pub mod pictures;
 pub mod predict;
 pub mod run;
 pub mod score;
+pub mod stages;
 pub mod studies;
+pub mod warnings;
 
 use std::path::PathBuf;
 

@@ -1,22 +1,20 @@
-//! Pictures of a run and the input of its review page.
+//! Pictures of a run.
 //!
 //! Draws, per step and target, P50 (diverging colour map for signed changes), band width and each
 //! exceedance probability (viridis), and per step the dissimilarity index, with wells posted and
 //! nodes outside the area of applicability hatched; the infill targets over the chance of remaining
-//! oil; error maps against a synthetic truth. Then assembles [`ReportInput`] from the run's
-//! diagnostics and studies, saves it as `report-data.json` and writes `report.html`.
+//! oil; error maps against a synthetic truth. The review page that shows them is assembled in
+//! [`super::assemble`].
 
 use super::PipelineError;
 use super::model::{SavedModel, StepMaps, convention_text};
 use super::outputs::Writer;
-use super::studies::{Sensitivity, Summary};
 use crate::decide::Target;
 use crate::grid::Grid;
-use crate::metrics::quantile_sorted;
+use crate::report::PictureRef;
 use crate::report::colormap::ColourScale;
 use crate::report::input as ri;
 use crate::report::picture::{MapGeometry, MapPicture, map_png};
-use crate::report::{PictureRef, ReportInput};
 use rayon::prelude::*;
 
 /// Size in pixels of every map picture.
@@ -33,20 +31,6 @@ struct Job {
     scale: ColourScale,
     values: Vec<f64>,
     hatch: bool,
-}
-
-/// Attribute family for grouped importance.
-pub fn family(attribute: &str) -> &'static str {
-    let l = attribute.to_lowercase();
-    if l == "step" {
-        "time step"
-    } else if l.contains("intercept") || l.contains("gradient") {
-        "AVO intercept/gradient"
-    } else if l.contains("shift") || l.contains("strain") || l.contains("time") {
-        "timing"
-    } else {
-        "amplitudes"
-    }
 }
 
 fn wells_of(model: &SavedModel) -> Vec<(f64, f64, String)> {
@@ -217,225 +201,4 @@ pub fn infill_picture(
     )?;
     w.bytes("pictures/targets.png", &png)?;
     Ok(PictureRef::File("pictures/targets.png".into()))
-}
-
-fn opt(v: f64) -> Option<f64> {
-    v.is_finite().then_some(v)
-}
-
-/// Band coverage by decile of the truth at the wells (out-of-fold rows).
-fn decile_coverage(d: &crate::calibrate::TargetDiagnostics) -> ri::DecileCoverage {
-    let mut truth: Vec<f64> = d.rows.iter().map(|r| r.truth).collect();
-    truth.sort_by(f64::total_cmp);
-    let cuts: Vec<f64> = (0..=10)
-        .map(|k| quantile_sorted(&truth, k as f64 / 10.0))
-        .collect();
-    let rows = (0..10)
-        .map(|k| {
-            let (a, b) = (cuts[k], cuts[k + 1]);
-            let inn: Vec<&crate::calibrate::OofRow> = d
-                .rows
-                .iter()
-                .filter(|r| r.truth >= a && (r.truth < b || (k == 9 && r.truth <= b)))
-                .collect();
-            let n = inn.len();
-            let cov = inn
-                .iter()
-                .filter(|r| r.truth >= r.lo && r.truth <= r.hi)
-                .count() as f64
-                / n.max(1) as f64;
-            let width = inn.iter().map(|r| r.hi - r.lo).sum::<f64>() / n.max(1) as f64;
-            ri::DecileRow {
-                decile: k + 1,
-                truth_low: opt(a),
-                truth_high: opt(b),
-                count: n,
-                coverage: (n > 0).then_some(cov),
-                mean_width: (n > 0).then_some(width),
-            }
-        })
-        .collect();
-    ri::DecileCoverage {
-        nominal: Some(d.level),
-        rows,
-    }
-}
-
-/// Everything [`build_report`] needs.
-pub struct ReportParts<'a> {
-    /// The run's summary.
-    pub summary: &'a Summary,
-    /// The model.
-    pub model: &'a SavedModel,
-    /// Map picture entries.
-    pub maps: Vec<ri::MapEntry>,
-    /// Infill section, if ranked.
-    pub infill: Option<ri::InfillSection>,
-    /// Sensitivity studies.
-    pub studies: &'a Sensitivity,
-    /// Run information.
-    pub run: ri::RunInfo,
-}
-
-/// Assembles the review page's input.
-pub fn build_report(p: ReportParts) -> ReportInput {
-    let model = p.model;
-    let targets = p
-        .summary
-        .targets
-        .iter()
-        .map(|t| {
-            let d = &t.diagnostics;
-            let m = &d.metrics;
-            let curve_points: Vec<ri::LearningPoint> = p
-                .studies
-                .curve
-                .iter()
-                .filter(|c| c.target == t.name && !c.r2.is_empty())
-                .map(|c| {
-                    let n = c.r2.len() as f64;
-                    ri::LearningPoint {
-                        wells: c.wells,
-                        r2_mean: opt(c.r2.iter().sum::<f64>() / n),
-                        r2_min: opt(c.r2.iter().copied().fold(f64::INFINITY, f64::min)),
-                        r2_max: opt(c.r2.iter().copied().fold(f64::NEG_INFINITY, f64::max)),
-                        coverage_mean: opt(c.coverage.iter().sum::<f64>() / n),
-                    }
-                })
-                .collect();
-            let by_attribute: Vec<ri::AttributeImportance> = t
-                .importance
-                .iter()
-                .map(|fi| ri::AttributeImportance {
-                    attribute: fi.feature.clone(),
-                    family: family(&fi.feature).into(),
-                    value: opt(fi.share),
-                    spread: None,
-                })
-                .collect();
-            let mut by_family: Vec<ri::FamilyImportance> = Vec::new();
-            for a in &by_attribute {
-                match by_family.iter_mut().find(|f| f.family == a.family) {
-                    Some(f) => f.value = Some(f.value.unwrap_or(0.0) + a.value.unwrap_or(0.0)),
-                    None => by_family.push(ri::FamilyImportance {
-                        family: a.family.clone(),
-                        value: a.value,
-                    }),
-                }
-            }
-            let ablation = p
-                .studies
-                .ablation
-                .iter()
-                .find(|a| a.target == t.name)
-                .map(|a| ri::Ablation {
-                    description: format!(
-                        "leave-wells-out skill with every attribute and without the \
-                         angle-dependent ones ({})",
-                        p.studies.note
-                    ),
-                    removed: a.removed.clone(),
-                    with_all: ri::Skill {
-                        r2: opt(a.r2_all),
-                        coverage: opt(a.coverage_all),
-                        ..ri::Skill::default()
-                    },
-                    without: ri::Skill {
-                        r2: opt(a.r2_without),
-                        coverage: opt(a.coverage_without),
-                        ..ri::Skill::default()
-                    },
-                });
-            let n_rows = d.rows.len();
-            ri::TargetReport {
-                name: t.name.clone(),
-                description: format!("change in {} ({})", t.name, t.unit),
-                unit: t.unit.clone(),
-                summary: ri::TargetSummary {
-                    wells: Some(d.n_wells),
-                    rows: Some(d.n_rows),
-                    learner: Some(d.learner.chosen.clone()),
-                    end_correction_kept: Some(d.end_correction.kept),
-                    r2: opt(m.r2),
-                    rmse: opt(m.rmse),
-                    bias: opt(m.bias),
-                    nominal_coverage: Some(d.level),
-                    coverage: opt(m.coverage),
-                    coverage_bottom_decile: opt(m.coverage_bottom_decile),
-                    coverage_top_decile: opt(m.coverage_top_decile),
-                    mean_width: opt(m.mean_width),
-                    warnings: d.warnings.clone(),
-                },
-                crossplot: Some(ri::CrossplotData {
-                    truth: d.rows.iter().map(|r| r.truth).collect(),
-                    raw: d.rows.iter().map(|r| r.raw).collect(),
-                    corrected: d.rows.iter().map(|r| r.corrected).collect(),
-                }),
-                coverage_by_decile: Some(decile_coverage(d)),
-                reliability: d
-                    .exceedance
-                    .iter()
-                    .map(|e| ri::ReliabilityTable {
-                        label: e.label.clone(),
-                        threshold: Some(e.value),
-                        brier: opt(match e.method {
-                            crate::calibrate::exceedance::ExceedMethod::Conformal => {
-                                e.brier_conformal
-                            }
-                            _ => e.brier_forest,
-                        }),
-                        bins: e
-                            .reliability
-                            .iter()
-                            .map(|b| ri::ReliabilityBin {
-                                forecast_low: b.p_lo,
-                                forecast_high: b.p_hi,
-                                mean_forecast: opt(b.mean_prob),
-                                observed_frequency: opt(b.observed),
-                                count: b.n,
-                            })
-                            .collect(),
-                    })
-                    .collect(),
-                pit: Some(ri::PitHistogram {
-                    counts: d
-                        .pit_histogram
-                        .iter()
-                        .map(|f| (f * n_rows as f64).round() as usize)
-                        .collect(),
-                }),
-                learning_curve: (!curve_points.is_empty()).then(|| ri::LearningCurve {
-                    repeats: p
-                        .studies
-                        .curve
-                        .iter()
-                        .map(|c| c.r2.len())
-                        .max()
-                        .unwrap_or(0),
-                    points: curve_points,
-                }),
-                importance: Some(ri::Importance {
-                    measure: "permutation importance (increase in out-of-bag error when an \
-                              attribute is shuffled), share of the total"
-                        .into(),
-                    unit: "share".into(),
-                    by_attribute,
-                    by_family,
-                }),
-                ablation,
-            }
-        })
-        .collect();
-    ReportInput {
-        project: p.summary.project.clone(),
-        run: p.run,
-        convention: convention_text(model.convention, model.level),
-        cautions: super::CAUTIONS.iter().map(|s| s.to_string()).collect(),
-        xy_unit: "m".into(),
-        steps: model.step_names.clone(),
-        targets,
-        maps: p.maps,
-        infill: p.infill,
-        truth: None,
-    }
 }

@@ -3,9 +3,10 @@
 //! angle-dependent attributes).
 
 use super::PipelineError;
+use super::fit::{calibrate_rows, calibration_settings, target_rows};
 use super::model::{SavedModel, StepMaps, convention_text};
 use super::outputs::Writer;
-use super::run::{Stages, calibrate_rows, calibration_settings, target_rows};
+use super::stages::Stages;
 use crate::calibrate::{CalibrationSettings, LearnerChoice};
 use crate::decide::{self, InfillSettings, RankInputs, Target};
 use crate::project::Survey;

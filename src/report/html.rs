@@ -1157,40 +1157,11 @@ fn truth_block(h: &mut String, tr: &TruthSection, input: &ReportInput, results_d
     }
 }
 
-/// Writes `bytes` to `path` through a temporary file in the same folder, then renames it.
-pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<(), ReportError> {
-    use std::io::Write;
-    let dir = path
-        .parent()
-        .filter(|d| !d.as_os_str().is_empty())
-        .unwrap_or(Path::new("."));
-    let name = path
-        .file_name()
-        .map(|n| n.to_string_lossy().into_owned())
-        .unwrap_or_else(|| "output".to_string());
-    let tmp = dir.join(format!(".{name}.tmp-{}", std::process::id()));
-    let io = |p: &Path| {
-        let p = p.to_path_buf();
-        move |source| ReportError::Io { path: p, source }
-    };
-    let result = (|| {
-        let mut f = std::fs::File::create(&tmp).map_err(io(&tmp))?;
-        f.write_all(bytes).map_err(io(&tmp))?;
-        f.sync_all().map_err(io(&tmp))?;
-        drop(f);
-        std::fs::rename(&tmp, path).map_err(io(path))
-    })();
-    if result.is_err() {
-        let _ = std::fs::remove_file(&tmp);
-    }
-    result
-}
-
 /// Renders the page and writes it to `results_dir/report.html` (temporary file, then rename).
 /// Returns the page's path.
 pub fn write_html(input: &ReportInput, results_dir: &Path) -> Result<PathBuf, ReportError> {
     let page = render_html(input, results_dir)?;
     let path = results_dir.join(PAGE_FILE);
-    write_atomic(&path, page.as_bytes())?;
+    super::write_atomic(&path, page.as_bytes())?;
     Ok(path)
 }

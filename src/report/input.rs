@@ -447,7 +447,7 @@ impl ReportInput {
             message: e.to_string(),
         })?;
         let path = results_dir.join(DATA_FILE);
-        super::html::write_atomic(&path, text.as_bytes())?;
+        super::write_atomic(&path, text.as_bytes())?;
         Ok(path)
     }
 }

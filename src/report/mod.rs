@@ -7,6 +7,9 @@
 //! - [`input`]: [`ReportInput`], the plain serialisable data the page is built from.
 //! - [`html`]: [`render_html`], one self-contained HTML page (pictures as data URIs, inline CSS, no
 //!   scripts, no network), and [`write_html`] (temporary file + rename).
+//!
+//! [`ReportError`] and [`write_atomic`], which every file above may use, live here; this file's
+//! own code uses none of its children, so no module of the report depends on another in a circle.
 
 pub mod colormap;
 pub mod font;
@@ -22,7 +25,7 @@ pub use picture::{
     PointSeries, Reference, bars_png, crossplot_png, line_png, map_png,
 };
 
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 
 /// Errors of the report module.
 #[derive(Debug, thiserror::Error)]
@@ -59,4 +62,33 @@ pub enum ReportError {
         /// The cause.
         source: std::io::Error,
     },
+}
+
+/// Writes `bytes` to `path` through a temporary file in the same folder, then renames it.
+pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<(), ReportError> {
+    use std::io::Write;
+    let dir = path
+        .parent()
+        .filter(|d| !d.as_os_str().is_empty())
+        .unwrap_or(Path::new("."));
+    let name = path
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_else(|| "output".to_string());
+    let tmp = dir.join(format!(".{name}.tmp-{}", std::process::id()));
+    let io = |p: &Path| {
+        let p = p.to_path_buf();
+        move |source| ReportError::Io { path: p, source }
+    };
+    let result = (|| {
+        let mut f = std::fs::File::create(&tmp).map_err(io(&tmp))?;
+        f.write_all(bytes).map_err(io(&tmp))?;
+        f.sync_all().map_err(io(&tmp))?;
+        drop(f);
+        std::fs::rename(&tmp, path).map_err(io(path))
+    })();
+    if result.is_err() {
+        let _ = std::fs::remove_file(&tmp);
+    }
+    result
 }

@@ -4,3 +4,4 @@ mod end_to_end;
 mod infill;
 mod report;
 mod truth;
+mod warnings;

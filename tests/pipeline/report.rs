@@ -1,7 +1,7 @@
 //! The review page of a real run: opens in a browser, and its studies equal a direct computation.
 
 use super::end_to_end::fixture;
-use tidemark::pipeline::run::{calibrate_rows, calibration_settings, target_rows};
+use tidemark::pipeline::fit::{calibrate_rows, calibration_settings, target_rows};
 use tidemark::pipeline::studies::{
     Sensitivity, angle_attributes, curve_rows, curve_sizes, study_settings,
 };

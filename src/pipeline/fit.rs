@@ -1,0 +1,258 @@
+//! Fitting and calibrating: the manifest's settings mapped onto [`CalibrationSettings`], the
+//! training rows of one target, one target calibrated on chosen rows and feature columns
+//! ([`calibrate_rows`], shared by the main run and the studies), permutation importance, and the
+//! whole model of a run ([`fit_model`]: every target, the covariate-shift estimate and the area of
+//! applicability).
+//!
+//! The method itself lives in [`crate::calibrate`] (leave-wells-out calibration) and
+//! [`crate::applicability`] (Meyer & Pebesma 2021); permutation importance is Breiman's (2001,
+//! Machine Learning 45) on the forest of each target.
+
+use super::PipelineError;
+use super::model::SavedModel;
+use super::stages::Stages;
+use crate::applicability::Applicability;
+use crate::calibrate::shift::{self, CovariateShift, RowShift, ShiftSettings};
+use crate::calibrate::{self, CalibratedTarget, CalibrationSettings, TargetData, Threshold};
+use crate::ensemble::{BoostSettings, ForestSettings};
+use crate::project::{self, Direction, Project, Survey};
+use crate::sample::{self, TrainingSet};
+use ndarray::Axis;
+
+/// Grid nodes sampled (over all steps) to estimate the covariate shift from wells to nodes.
+pub const SHIFT_NODE_SAMPLE: usize = 4000;
+
+/// Maps the manifest's settings onto the calibration settings.
+pub fn calibration_settings(project: &Project, seed: u64) -> CalibrationSettings {
+    let m = &project.model;
+    let c = &project.calibration;
+    CalibrationSettings {
+        level: c.level,
+        fold_method: match c.fold_method {
+            project::FoldMethod::Wells => calibrate::FoldMethod::Wells,
+            project::FoldMethod::Blocks => calibrate::FoldMethod::Blocks,
+            project::FoldMethod::OneWell => calibrate::FoldMethod::OneWell,
+        },
+        folds: c.folds,
+        end_correction: c.end_correction,
+        max_bins: c.max_bins,
+        min_wells_per_bin: c.min_wells_per_bin,
+        learner: match m.learner {
+            project::LearnerChoice::Auto => calibrate::LearnerChoice::Auto,
+            project::LearnerChoice::Forest => calibrate::LearnerChoice::Forest,
+            project::LearnerChoice::Boost => calibrate::LearnerChoice::Boost,
+        },
+        forest: ForestSettings {
+            n_trees: m.trees,
+            max_depth: (m.max_depth > 0).then_some(m.max_depth),
+            min_samples_leaf: m.min_samples_leaf,
+            max_features: m.max_features,
+            seed,
+            ..ForestSettings::default()
+        },
+        boost: BoostSettings {
+            n_rounds: m.boost_rounds,
+            learning_rate: m.learning_rate,
+            max_depth: m.boost_max_depth,
+            seed: seed.wrapping_add(1),
+            ..BoostSettings::default()
+        },
+        seed,
+    }
+}
+
+/// The rows of `ts` where target `t` was measured.
+pub fn target_rows(ts: &TrainingSet, t: usize) -> Vec<usize> {
+    (0..ts.x.nrows())
+        .filter(|&r| ts.y[[r, t]].is_finite())
+        .collect()
+}
+
+/// Calibration thresholds of target `t`.
+pub fn thresholds_for(project: &Project, t: usize) -> Vec<Threshold> {
+    project
+        .thresholds
+        .iter()
+        .filter(|th| th.target == project.targets[t].name)
+        .map(|th| Threshold {
+            label: th.label.clone(),
+            value: th.value,
+            above: matches!(th.direction, Direction::Above),
+        })
+        .collect()
+}
+
+/// Calibrates target `t` on the rows `rows` of the training set, using only the feature columns
+/// `cols` (all columns for the main run; fewer for ablation studies). With `shift` (one ratio per
+/// training-set row), the band is calibrated for the mapped nodes ([`calibrate::shift`]).
+pub fn calibrate_rows(
+    project: &Project,
+    ts: &TrainingSet,
+    t: usize,
+    rows: &[usize],
+    cols: &[usize],
+    settings: &CalibrationSettings,
+    shift: Option<&CovariateShift>,
+) -> Result<CalibratedTarget, PipelineError> {
+    let x = ts.x.select(Axis(0), rows).select(Axis(1), cols);
+    let y: Vec<f64> = rows.iter().map(|&r| ts.y[[r, t]]).collect();
+    let group: Vec<usize> = rows.iter().map(|&r| ts.group[r]).collect();
+    let xy: Vec<[f64; 2]> = rows.iter().map(|&r| ts.xy[r]).collect();
+    let step: Vec<usize> = rows.iter().map(|&r| ts.step[r]).collect();
+    let weight: Vec<f64> = rows.iter().map(|&r| ts.weight[r]).collect();
+    let ratio: Vec<f64> = shift.map_or_else(Vec::new, |s| {
+        rows.iter().map(|&r| s.well_ratio[r]).collect()
+    });
+    let spec = &project.targets[t];
+    let data = TargetData {
+        name: &spec.name,
+        x: x.view(),
+        y: &y,
+        group: &group,
+        xy: &xy,
+        step: &step,
+        weight: &weight,
+        bounds: (spec.min, spec.max),
+        thresholds: thresholds_for(project, t),
+        shift: shift.map(|s| RowShift {
+            ratio: &ratio,
+            test_ratio: s.node_mean_ratio,
+        }),
+    };
+    calibrate::calibrate_target(&data, settings).map_err(|source| PipelineError::Calibrate {
+        target: spec.name.clone(),
+        source,
+    })
+}
+
+/// Permutation importance per feature for each target (forest on the target's rows), each
+/// normalised to sum to one (all zero when no feature helps).
+pub fn importance(
+    ts: &TrainingSet,
+    settings: &CalibrationSettings,
+) -> Result<Vec<Vec<f64>>, PipelineError> {
+    let mut out = Vec::new();
+    for t in 0..ts.target_names.len() {
+        let rows = target_rows(ts, t);
+        if rows.len() < 4 {
+            out.push(vec![0.0; ts.x.ncols()]);
+            continue;
+        }
+        let x = ts.x.select(Axis(0), &rows);
+        let y = ts.y.select(Axis(0), &rows).select(Axis(1), &[t]);
+        let w: Vec<f64> = rows.iter().map(|&r| ts.weight[r]).collect();
+        let forest = settings.forest.fit(x.view(), y.view(), Some(&w))?;
+        let imp = forest.permutation_importance(x.view(), y.view(), 3, settings.seed ^ 0x5eed);
+        let clean: Vec<f64> = imp.iter().map(|v| v.max(0.0)).collect();
+        let total: f64 = clean.iter().sum();
+        out.push(if total > 0.0 {
+            clean.iter().map(|v| v / total).collect()
+        } else {
+            clean
+        });
+    }
+    Ok(out)
+}
+
+/// Fits everything on a loaded survey: calibrated targets, importance and the area of
+/// applicability. Returns the model and the per-target importance.
+pub fn fit_model(
+    survey: &Survey,
+    ts: &TrainingSet,
+    seed: u64,
+    stages: &mut Stages,
+) -> Result<(SavedModel, Vec<Vec<f64>>), PipelineError> {
+    let project = &survey.project;
+    let settings = calibration_settings(project, seed);
+    let all_cols: Vec<usize> = (0..ts.x.ncols()).collect();
+    // How typical of the nodes the wells are: always estimated and reported (summary.json);
+    // used to weight the band's calibration only when the manifest asks for it.
+    let nodes = sample::node_sample(survey, SHIFT_NODE_SAMPLE, seed ^ 0x5a1f);
+    let applied = project.calibration.covariate_shift;
+    let shift = match shift::estimate(
+        ts.x.view(),
+        &ts.group,
+        nodes.view(),
+        &ShiftSettings::default(),
+    ) {
+        Ok(s) => Some(s),
+        // Only a grid without any mapped node or fewer than two wells get here; the
+        // calibration below reports the latter in its own words.
+        Err(_) if !applied => None,
+        Err(source) => {
+            return Err(PipelineError::Calibrate {
+                target: "(covariate shift from the wells to the nodes)".into(),
+                source,
+            });
+        }
+    };
+    let wells_vs_nodes = shift.as_ref().map(|s| s.summary(&ts.group, applied));
+    let shift = shift.filter(|_| applied);
+    stages.done("wells against nodes");
+    let bar = stages.bar(project.targets.len() as u64, "calibrate targets");
+    let mut calibrated = Vec::new();
+    for t in 0..project.targets.len() {
+        let rows = target_rows(ts, t);
+        calibrated.push(calibrate_rows(
+            project,
+            ts,
+            t,
+            &rows,
+            &all_cols,
+            &settings,
+            shift.as_ref(),
+        )?);
+        bar.inc(1);
+    }
+    bar.finish_and_clear();
+    stages.done("fit and calibrate");
+
+    let imp = importance(ts, &settings)?;
+    let p = ts.x.ncols();
+    let mean_imp: Vec<f64> = (0..p)
+        .map(|c| imp.iter().map(|v| v[c]).sum::<f64>() / imp.len().max(1) as f64)
+        .collect();
+    let folds = calibrate::folds::assign(
+        &ts.group,
+        &ts.xy,
+        settings.fold_method,
+        settings.folds,
+        settings.seed,
+    );
+    // Every feature, the step index included, takes part in the range check: a step the wells
+    // never saw is an extrapolation in time.
+    let checked = vec![true; p];
+    let applicability =
+        Applicability::fit(&ts.feature_names, ts.x.view(), &mean_imp, &folds, &checked)?;
+    stages.done("importance, applicability");
+
+    let model = SavedModel {
+        format: super::model::MODEL_FORMAT,
+        version: env!("CARGO_PKG_VERSION").to_string(),
+        feature_names: ts.feature_names.clone(),
+        step_names: project.steps.iter().map(|s| s.name.clone()).collect(),
+        targets: project.targets.clone(),
+        thresholds: project.thresholds.clone(),
+        convention: project.convention,
+        level: project.calibration.level,
+        calibrated,
+        applicability,
+        wells: well_positions(survey),
+        wells_vs_nodes,
+    };
+    Ok((model, imp))
+}
+
+/// Distinct (well, x, y) positions of the survey's well records, in file order.
+pub fn well_positions(survey: &Survey) -> Vec<(String, f64, f64)> {
+    let mut out: Vec<(String, f64, f64)> = Vec::new();
+    for r in &survey.wells {
+        if !out
+            .iter()
+            .any(|(n, x, y)| n == &r.well && *x == r.x && *y == r.y)
+        {
+            out.push((r.well.clone(), r.x, r.y));
+        }
+    }
+    out
+}
