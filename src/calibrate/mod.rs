@@ -21,7 +21,9 @@
 pub mod conformal;
 pub mod exceedance;
 pub mod folds;
+pub mod hurdle;
 pub mod isotonic;
+pub mod profile;
 pub mod shift;
 pub mod target;
 
