@@ -8,7 +8,7 @@
 //! default level) and the upper edge a calibrated `1-a/2` quantile (P90).
 //!
 //! **Wells as units.** Rows of a well are not exchangeable with each other, wells are. Every row
-//! carries weight `1/(rows of its well)` (see [`super::well_unit_weights`]), so each well counts
+//! carries weight `1/(rows of its well)` (see [`super::units::well_unit_weights`]), so each well counts
 //! once; `n` is the total weight and the quantile is the smallest score whose cumulative weight
 //! reaches `(1-a/2)(n+1)`. This is the "pooled CDF" construction for hierarchical data (Dunn,
 //! Wasserman & Ramdas, JASA 2023); it reduces to the ordinary rule when every well has one row.
@@ -53,8 +53,11 @@
 //! **Too few wells.** When `ceil((n+1)(1-a/2)) > n` the data cannot back a finite edge at the
 //! requested level; the edge is then the target's physical bound and the band is flagged.
 
-use super::well_unit_weights;
+use super::units::pick;
 use serde::{Deserialize, Serialize};
+
+/// The calibration rows as units, defined in [`super::units`] and kept here under their old path.
+pub use super::units::Units;
 
 /// Which conformity scores make the band.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
@@ -153,75 +156,6 @@ pub fn min_wells_for_band(level: f64) -> usize {
         n += 1;
     }
     n
-}
-
-/// The calibration rows as exchangeable units: the well of each row, each row's weight and the
-/// weight of the new point's mass at `+inf`.
-///
-/// Without a covariate shift ([`Units::wells`]) every well weighs one, shared among its rows, and
-/// the new point weighs one well. Under a covariate shift ([`Units::shifted`]; Tibshirani et al.
-/// 2019, see [`super::shift`]) row `i` weighs `u_i r_i` and the new point `r_new`, where `r` is the
-/// ratio of the nodes' to the wells' attribute density; the weights are scaled so that they sum
-/// to the number of wells, which leaves every weighted quantile unchanged.
-#[derive(Clone, Debug, PartialEq)]
-pub struct Units {
-    /// Well id per row.
-    pub group: Vec<usize>,
-    /// Weight per row, finite and `>= 0`.
-    pub weight: Vec<f64>,
-    /// Weight of the new point.
-    pub test_weight: f64,
-}
-
-impl Units {
-    /// Wells as units: row weight `1/(rows of its well)`, new point one well.
-    pub fn wells(group: &[usize]) -> Self {
-        Self {
-            group: group.to_vec(),
-            weight: well_unit_weights(group),
-            test_weight: 1.0,
-        }
-    }
-
-    /// Wells weighted by their rows' covariate-shift ratios `ratio` (one per row), the new
-    /// point by `test_ratio`. Ratios that are not finite and positive count as one.
-    pub fn shifted(group: &[usize], ratio: &[f64], test_ratio: f64) -> Self {
-        let ok = |r: f64| if r.is_finite() && r > 0.0 { r } else { 1.0 };
-        let unit = well_unit_weights(group);
-        let raw: Vec<f64> = unit.iter().zip(ratio).map(|(u, &r)| u * ok(r)).collect();
-        let total: f64 = raw.iter().sum();
-        let scale = if total > 0.0 {
-            unit.iter().sum::<f64>() / total
-        } else {
-            1.0
-        };
-        Self {
-            group: group.to_vec(),
-            weight: raw.iter().map(|v| v * scale).collect(),
-            test_weight: ok(test_ratio) * scale,
-        }
-    }
-
-    /// The units of rows `idx` (weights kept as they are: a common scale does not move a
-    /// weighted quantile).
-    pub fn pick(&self, idx: &[usize]) -> Self {
-        Self {
-            group: pick(&self.group, idx),
-            weight: pick(&self.weight, idx),
-            test_weight: self.test_weight,
-        }
-    }
-
-    /// Kish's effective number of wells `(sum W_g)^2 / sum W_g^2` over the wells' total weights
-    /// `W_g` (equals the number of wells without a shift).
-    pub fn effective_wells(&self) -> f64 {
-        let mut per: std::collections::BTreeMap<usize, f64> = Default::default();
-        for (g, w) in self.group.iter().zip(&self.weight) {
-            *per.entry(*g).or_insert(0.0) += w;
-        }
-        let v: Vec<f64> = per.into_values().collect();
-        super::shift::effective_size(&v)
-    }
 }
 
 fn one() -> f64 {
@@ -708,11 +642,6 @@ fn cross_fit<C>(
         }
     }
     (lo, hi, few)
-}
-
-/// Elements of `v` at `idx`.
-pub(crate) fn pick<T: Copy>(v: &[T], idx: &[usize]) -> Vec<T> {
-    idx.iter().map(|&i| v[i]).collect()
 }
 
 #[cfg(test)]

@@ -17,10 +17,10 @@
 //! Probabilities respect the target's physical bounds: `P(Y <= t) = 0` below the lower bound and
 //! `1` at or above the upper bound.
 
-use super::CalibrateError;
 use super::conformal::MondrianBins;
-use super::conformal::Units;
+use super::error::CalibrateError;
 use super::isotonic::{IsotonicMap, IsotonicSettings};
+use super::units::Units;
 use serde::{Deserialize, Serialize};
 
 /// How the probability of one threshold is computed.

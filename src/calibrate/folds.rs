@@ -13,9 +13,47 @@
 //!
 //! The same fold vector drives every out-of-fold quantity of a target.
 
-use super::FoldMethod;
 use rand::seq::SliceRandom;
 use rand::{RngExt, SeedableRng, rngs::StdRng};
+use serde::{Deserialize, Serialize};
+
+/// How rows are split into folds. Every method keeps all rows of one well in one fold.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum FoldMethod {
+    /// k folds of whole wells, wells dealt to folds in a seeded random order (default).
+    #[default]
+    Wells,
+    /// k spatial blocks: wells clustered by location (k-means with a seeded k-means++ start).
+    Blocks,
+    /// Leave one well out: one fold per well (small projects).
+    OneWell,
+}
+
+/// Which fold holds each row out.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Folds {
+    /// Fold of every row, `0..count`; all rows of a well share one.
+    pub of_row: Vec<usize>,
+    /// Number of folds.
+    pub count: usize,
+}
+
+impl Folds {
+    /// Rows outside fold `f` (the rows its models and maps are fitted on), in increasing order.
+    pub fn train(&self, f: usize) -> Vec<usize> {
+        (0..self.of_row.len())
+            .filter(|&i| self.of_row[i] != f)
+            .collect()
+    }
+
+    /// Rows of fold `f` (held out by its models and maps), in increasing order.
+    pub fn test(&self, f: usize) -> Vec<usize> {
+        (0..self.of_row.len())
+            .filter(|&i| self.of_row[i] == f)
+            .collect()
+    }
+}
 
 /// Assign a fold to every row; all rows of one well get the same fold.
 ///

@@ -19,7 +19,7 @@
 //! Used twice: the end-bias correction (out-of-fold prediction -> truth) and the recalibration of
 //! predictive CDFs on PIT values (Kuleshov, Fenner & Ermon 2018).
 
-use super::CalibrateError;
+use super::error::CalibrateError;
 use serde::{Deserialize, Serialize};
 
 /// Settings of an isotonic fit.

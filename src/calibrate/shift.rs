@@ -36,7 +36,11 @@
 use ndarray::{Array2, ArrayView2, Axis};
 use serde::{Deserialize, Serialize};
 
-use super::CalibrateError;
+use super::error::CalibrateError;
+use super::units::{Units, count_wells};
+
+/// Kish's effective sample size, defined in [`super::units`] and kept here under its old path.
+pub use super::units::effective_size;
 
 /// Settings of the covariate-shift estimate.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
@@ -308,16 +312,9 @@ pub fn auc(neg: &[f64], pos: &[f64]) -> f64 {
     (rank_sum - n_pos * (n_pos + 1.0) / 2.0) / (n_pos * n_neg)
 }
 
-/// Kish's effective sample size `(sum v)^2 / sum v^2` of weights `v` (Kish 1965, sec. 11.7).
-pub fn effective_size(v: &[f64]) -> f64 {
-    let s: f64 = v.iter().sum();
-    let s2: f64 = v.iter().map(|x| x * x).sum();
-    if s2 > 0.0 { s * s / s2 } else { 0.0 }
-}
-
 /// Covariate-shift ratios of one target's calibration rows, as [`TargetData`] takes them.
 ///
-/// [`TargetData`]: super::TargetData
+/// [`TargetData`]: super::input::TargetData
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct RowShift<'a> {
     /// Ratio `p_node / p_well` at every row.
@@ -364,11 +361,11 @@ pub struct ShiftSummary {
 impl CovariateShift {
     /// The summary of this shift for wells `group` (one per well row, as given to [`estimate`]).
     pub fn summary(&self, group: &[usize], applied: bool) -> ShiftSummary {
-        let units = super::conformal::Units::shifted(group, &self.well_ratio, self.node_mean_ratio);
+        let units = Units::shifted(group, &self.well_ratio, self.node_mean_ratio);
         ShiftSummary {
             auc: self.auc,
             effective_wells: units.effective_wells(),
-            wells: super::count_wells(group),
+            wells: count_wells(group),
             node_weight: units.test_weight,
             node_rows: self.node_rows,
             clipped_share: self.clipped_share,
