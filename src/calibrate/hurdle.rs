@@ -153,12 +153,15 @@ pub struct ZeroRule {
     /// Whether the target is modelled with the atom.
     pub enabled: bool,
     /// Measured values with `|y| <= tolerance` count as "no change".
+    #[serde(deserialize_with = "crate::metrics::serde_nan::f64_or_nan")]
     pub tolerance: f64,
     /// How the tolerance was set: `"manifest"`, `"estimated"` or `"exact zeros"`.
     pub tolerance_source: String,
     /// Share of training rows within the tolerance.
+    #[serde(deserialize_with = "crate::metrics::serde_nan::f64_or_nan")]
     pub zero_share: f64,
     /// Estimated standard deviation of the measurement noise (NaN when not estimated).
+    #[serde(deserialize_with = "crate::metrics::serde_nan::f64_or_nan")]
     pub noise_sd: f64,
     /// The decision in words.
     pub reason: String,

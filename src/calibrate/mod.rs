@@ -32,7 +32,7 @@ pub mod folds;
 pub mod hurdle;
 pub mod input;
 pub mod isotonic;
-mod predict;
+pub mod predict;
 pub mod profile;
 pub mod shift;
 pub mod stages;

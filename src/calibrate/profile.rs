@@ -42,12 +42,16 @@ pub struct Profile {
     /// Scale at each knot (non-decreasing).
     pub scale: Vec<f64>,
     /// Largest DI of a held-out well row.
+    #[serde(deserialize_with = "crate::metrics::serde_nan::f64_or_nan")]
     pub di_max: f64,
     /// Held-out-well coverage of the plain band.
+    #[serde(deserialize_with = "crate::metrics::serde_nan::f64_or_nan")]
     pub coverage_plain: f64,
     /// Held-out-well coverage of the scaled band (equal to the plain one up to ties).
+    #[serde(deserialize_with = "crate::metrics::serde_nan::f64_or_nan")]
     pub coverage_scaled: f64,
     /// Spearman rank correlation of the needed scale with DI at held-out rows.
+    #[serde(deserialize_with = "crate::metrics::serde_nan::f64_or_nan")]
     pub spearman: f64,
 }
 
@@ -202,12 +206,16 @@ impl Profile {
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct Beyond {
     /// Largest DI of a held-out well row to its training fold.
+    #[serde(deserialize_with = "crate::metrics::serde_nan::f64_or_nan")]
     pub di_max: f64,
     /// Largest distance (map units) from a held-out well to the nearest well of its training folds.
+    #[serde(deserialize_with = "crate::metrics::serde_nan::f64_or_nan")]
     pub distance_max: f64,
     /// Lowest value measured at any well (after denoising).
+    #[serde(deserialize_with = "crate::metrics::serde_nan::f64_or_nan")]
     pub envelope_lo: f64,
     /// Highest value measured at any well.
+    #[serde(deserialize_with = "crate::metrics::serde_nan::f64_or_nan")]
     pub envelope_hi: f64,
 }
 

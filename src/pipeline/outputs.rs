@@ -195,6 +195,18 @@ pub fn write_step_maps(
             ),
             &spec.unit,
         )?;
+        if let Some(p) = &tm.p_change {
+            put(
+                w,
+                format!("{base}_p_change"),
+                p,
+                format!(
+                    "probability that {} changed at all (beyond the wells' noise tolerance)",
+                    spec.name
+                ),
+                "probability",
+            )?;
+        }
         for (th, prob) in model.thresholds_of(t).iter().zip(&tm.exceed) {
             let dir = match th.direction {
                 crate::project::Direction::Above => "above",
