@@ -178,6 +178,8 @@ fn main() {
             bounds: (-1.0, 1.0),
             thresholds: thresholds(),
             shift,
+            zero: Default::default(),
+            dissimilarity: None,
         };
         let cal = calibrate_target(&data, &settings).expect("calibrates");
         let json = serde_json::to_string(&cal).expect("serialises");

@@ -5,6 +5,7 @@
 //! naming the manifest key at fault. [`load_survey`] then reads every attribute map and the wells
 //! CSV into a [`Survey`]. The keys, their defaults and meanings are documented in `docs/manifest.md`.
 
+use crate::calibrate::hurdle::ZeroChange;
 use crate::grid::{Grid, GridError};
 use crate::io::wells::{TargetColumn, WellColumns, WellRecord};
 use crate::io::{self, IoError};
@@ -122,6 +123,13 @@ pub struct TargetSpec {
     pub min: f64,
     /// Physical upper bound (> min).
     pub max: f64,
+    /// Whether the target has a "no change" atom at zero (`zero_change`, default `auto`).
+    #[serde(default)]
+    pub zero_change: ZeroChange,
+    /// Measured values within this distance of zero count as "no change" (`zero_tolerance`;
+    /// absent: estimated from the wells).
+    #[serde(default)]
+    pub zero_tolerance: Option<f64>,
 }
 
 /// A decision threshold on a target.
@@ -498,6 +506,16 @@ struct RawTarget {
     unit: Option<String>,
     min: f64,
     max: f64,
+    zero_change: Option<RawZero>,
+    zero_tolerance: Option<f64>,
+}
+
+/// `zero_change = "auto" | true | false`.
+#[derive(Deserialize)]
+#[serde(untagged)]
+enum RawZero {
+    Flag(bool),
+    Word(String),
 }
 
 #[derive(Deserialize)]
@@ -971,12 +989,37 @@ fn check(raw: RawManifest, manifest_path: PathBuf) -> Result<Project, ManifestEr
                 max: t.max,
             });
         }
+        let zero_change = match t.zero_change {
+            None => ZeroChange::Auto,
+            Some(RawZero::Flag(true)) => ZeroChange::On,
+            Some(RawZero::Flag(false)) => ZeroChange::Off,
+            Some(RawZero::Word(w)) if w == "auto" => ZeroChange::Auto,
+            Some(RawZero::Word(w)) => {
+                return Err(ManifestError::Inconsistent {
+                    key: format!("target '{}'.zero_change", t.name),
+                    message: format!("expected \"auto\", true or false, got \"{w}\""),
+                });
+            }
+        };
+        if let Some(tol) = t.zero_tolerance
+            && !(tol.is_finite() && tol >= 0.0 && tol < t.max - t.min)
+        {
+            return Err(ManifestError::Inconsistent {
+                key: format!("target '{}'.zero_tolerance", t.name),
+                message: format!(
+                    "expected a value >= 0 and below the target's range {}, got {tol}",
+                    t.max - t.min
+                ),
+            });
+        }
         targets.push(TargetSpec {
             name: t.name,
             column,
             unit: t.unit.unwrap_or_default(),
             min: t.min,
             max: t.max,
+            zero_change,
+            zero_tolerance: t.zero_tolerance,
         });
     }
     let target_names: Vec<String> = targets.iter().map(|t| t.name.clone()).collect();

@@ -148,6 +148,39 @@ impl PredictiveSystem {
         (w_below + tau * (w_at + w)) / (total + w)
     }
 
+    /// Quantile of the system at predicted value `mid` with residual scale `scale`: the smallest
+    /// `t = mid + scale a_k` whose `Q(t)` (with `tau = 1/2`) reaches `v`, the upper bound when none
+    /// does (the new point's own weight sits at `+inf`), clipped to `bounds`.
+    pub fn quantile(&self, mid: f64, scale: f64, v: f64, bounds: (f64, f64)) -> f64 {
+        if !mid.is_finite() || scale.is_nan() || scale <= 0.0 || v.is_nan() {
+            return f64::NAN;
+        }
+        let b = self.bins.bin(mid).min(self.residuals.len() - 1);
+        let r = &self.residuals[b];
+        let cw = &self.cum_weight[b];
+        let total = cw.last().copied().unwrap_or(0.0);
+        let w = self.test_weight;
+        // Q at the k-th residual counts every residual equal to it as "at".
+        let q_at = |k: usize| -> f64 {
+            let first = r.partition_point(|&a| a < r[k]);
+            let last = r.partition_point(|&a| a <= r[k]);
+            let below = if first == 0 { 0.0 } else { cw[first - 1] };
+            let at = cw[last - 1] - below;
+            (below + 0.5 * (at + w)) / (total + w)
+        };
+        let (mut lo, mut hi) = (0usize, r.len());
+        while lo < hi {
+            let m = (lo + hi) / 2;
+            if q_at(m) < v { lo = m + 1 } else { hi = m }
+        }
+        let t = if lo == r.len() {
+            bounds.1
+        } else {
+            mid + scale * r[lo]
+        };
+        t.clamp(bounds.0, bounds.1)
+    }
+
     /// `P(Y <= t)` for a map: `Q(t)` with `tau = 1/2` and residual scale `scale` (1 when
     /// unscaled), forced to the physical bounds.
     pub fn prob_below(&self, mid: f64, scale: f64, t: f64, bounds: (f64, f64)) -> f64 {

@@ -4,6 +4,7 @@
 
 use super::error::CalibrateError;
 use super::folds::FoldMethod;
+use super::hurdle::ZeroChange;
 use super::shift::RowShift;
 use super::units::{Units, count_wells};
 use crate::ensemble::{BoostSettings, ForestSettings};
@@ -140,6 +141,72 @@ pub struct TargetData<'a> {
     /// Covariate-shift ratios from the wells to the mapped nodes ([`super::shift`]); `None`
     /// calibrates the band for the wells' own population.
     pub shift: Option<RowShift<'a>>,
+    /// Whether the target has a "no change" atom at zero ([`super::hurdle`]).
+    pub zero: ZeroSetting,
+    /// The rows in the space of the dissimilarity index (Meyer & Pebesma 2021), which lets the band
+    /// widen with dissimilarity ([`super::profile`]); `None` keeps one band rule everywhere.
+    pub dissimilarity: Option<Space<'a>>,
+}
+
+/// Rows as points of the dissimilarity index's space: standardised, importance-weighted features
+/// (row-major, `dim` per row) and the training points' mean pairwise distance.
+#[derive(Clone, Copy, Debug)]
+pub struct Space<'a> {
+    /// Points, one row of `dim` values per training row.
+    pub points: &'a [f64],
+    /// Values per point.
+    pub dim: usize,
+    /// Mean pairwise distance of the training points (the index's unit).
+    pub mean_distance: f64,
+}
+
+impl Space<'_> {
+    /// Dissimilarity index of every row to the rows of the other folds: the distance to the nearest
+    /// such row over the mean distance (Meyer & Pebesma 2021, cross-validation form).
+    pub fn fold_di(&self, folds: &[usize]) -> Vec<f64> {
+        let p = self.dim;
+        let n = folds.len();
+        let dist = |a: usize, b: usize| -> f64 {
+            let (ra, rb) = (
+                &self.points[a * p..(a + 1) * p],
+                &self.points[b * p..(b + 1) * p],
+            );
+            ra.iter()
+                .zip(rb)
+                .map(|(u, v)| (u - v) * (u - v))
+                .sum::<f64>()
+                .sqrt()
+        };
+        (0..n)
+            .map(|a| {
+                let d = (0..n)
+                    .filter(|&b| folds[b] != folds[a])
+                    .map(|b| dist(a, b))
+                    .fold(f64::INFINITY, f64::min);
+                d / self.mean_distance
+            })
+            .collect()
+    }
+}
+
+/// The manifest's say on a target's atom at zero.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
+pub struct ZeroSetting {
+    /// `auto`, on or off.
+    pub change: ZeroChange,
+    /// Measured values within this distance of zero count as "no change" (`None`: estimated from
+    /// the wells).
+    pub tolerance: Option<f64>,
+}
+
+impl Default for ZeroSetting {
+    /// Off: a continuous target (what a caller that says nothing gets).
+    fn default() -> Self {
+        Self {
+            change: ZeroChange::Off,
+            tolerance: None,
+        }
+    }
 }
 
 impl TargetData<'_> {
@@ -206,6 +273,9 @@ fn check_rows(d: &TargetData) -> Result<(), CalibrateError> {
     len("xy", d.xy.len())?;
     len("step", d.step.len())?;
     len("weight", d.weight.len())?;
+    if let Some(sp) = d.dissimilarity {
+        len("dissimilarity points", sp.points.len() / sp.dim.max(1))?;
+    }
     let bad = |what: &'static str, row: usize, value: f64, expected: &'static str| {
         CalibrateError::BadValue {
             target: d.name.to_string(),

@@ -7,14 +7,122 @@
 use super::conformal::{BandBase, BandMethod};
 use super::error::CalibrateError;
 use super::exceedance::{ExceedMethod, bounded_cdf, crossing_probability};
+use super::hurdle;
+use super::stages::hurdle::{self as stage, CpsAt, HurdleModel};
 use super::target::{CalibratedTarget, TargetPrediction};
 use ndarray::ArrayView2;
 use rayon::prelude::*;
 
+/// Where the predicted rows lie relative to the training wells.
+#[derive(Clone, Copy, Debug)]
+pub struct NodeContext<'a> {
+    /// Dissimilarity index of each row to the training rows (Meyer & Pebesma 2021).
+    pub dissimilarity: &'a [f64],
+    /// Distance of each row to the nearest training well, in map units.
+    pub distance: &'a [f64],
+}
+
 impl CalibratedTarget {
     /// Predict band, middle and threshold probabilities for every row of `x` (same feature
-    /// columns as the training rows). Errors when the column count differs.
+    /// columns as the training rows), with one band rule everywhere. Errors when the column count
+    /// differs.
     pub fn predict(&self, x: ArrayView2<f64>) -> Result<TargetPrediction, CalibrateError> {
+        self.predict_at(x, None)
+    }
+
+    /// As [`Self::predict`]; with a `context`, the band also widens with each row's
+    /// dissimilarity and beyond the ground cross-validation spanned (the target's spread rule).
+    pub fn predict_at(
+        &self,
+        x: ArrayView2<f64>,
+        context: Option<NodeContext>,
+    ) -> Result<TargetPrediction, CalibrateError> {
+        let (parts, scale) = self.continuous_parts(x)?;
+        let mut out = match &self.hurdle {
+            Some(h) => self.mixture(h, x, &parts, &scale),
+            None => parts,
+        };
+        if let (Some(sp), Some(c)) = (&self.spread, context) {
+            for i in 0..out.mid.len() {
+                let (lo, hi) = sp.apply(
+                    out.mid[i],
+                    out.lo[i],
+                    out.hi[i],
+                    c.dissimilarity.get(i).copied().unwrap_or(f64::NAN),
+                    c.distance.get(i).copied().unwrap_or(f64::NAN),
+                    self.bounds,
+                );
+                out.lo[i] = lo;
+                out.hi[i] = hi;
+            }
+        }
+        Ok(out)
+    }
+
+    /// The conditional part's middle and residual scale at every row of `x` (the continuous
+    /// model's own prediction).
+    pub fn conditional_at(
+        &self,
+        x: ArrayView2<f64>,
+    ) -> Result<(Vec<f64>, Vec<f64>), CalibrateError> {
+        let (p, scale) = self.continuous_parts(x)?;
+        Ok((p.mid, scale))
+    }
+
+    /// The hurdle mixture at every row from the conditional `parts` and their `scale`.
+    fn mixture(
+        &self,
+        h: &HurdleModel,
+        x: ArrayView2<f64>,
+        parts: &TargetPrediction,
+        scale: &[f64],
+    ) -> TargetPrediction {
+        let raw = h.forest.predict(x);
+        let n = parts.mid.len();
+        let p: Vec<f64> = (0..n).map(|i| h.map.predict(raw[[i, 0]])).collect();
+        let (u_lo, u_mid, u_hi) = h.levels;
+        let rows: Vec<(f64, f64, f64, Vec<f64>)> = (0..n)
+            .into_par_iter()
+            .map(|i| {
+                if parts.mid[i].is_nan() {
+                    return (
+                        f64::NAN,
+                        f64::NAN,
+                        f64::NAN,
+                        vec![f64::NAN; self.thresholds.len()],
+                    );
+                }
+                let g = CpsAt {
+                    cps: &self.cps,
+                    mid: parts.mid[i],
+                    scale: scale[i],
+                    bounds: self.bounds,
+                };
+                let q = |u: f64| hurdle::quantile(p[i], &g, u);
+                let e = self
+                    .thresholds
+                    .iter()
+                    .map(|th| stage::crossing(p[i], &g, th.value, th.above, Some(&h.recalibration)))
+                    .collect();
+                (q(u_lo), q(u_mid), q(u_hi), e)
+            })
+            .collect();
+        TargetPrediction {
+            lo: rows.iter().map(|r| r.0).collect(),
+            mid: rows.iter().map(|r| r.1).collect(),
+            hi: rows.iter().map(|r| r.2).collect(),
+            exceed: (0..self.thresholds.len())
+                .map(|t| rows.iter().map(|r| r.3[t]).collect())
+                .collect(),
+            p_change: Some(p),
+        }
+    }
+
+    /// The continuous model's prediction at every row, and each row's residual scale.
+    fn continuous_parts(
+        &self,
+        x: ArrayView2<f64>,
+    ) -> Result<(TargetPrediction, Vec<f64>), CalibrateError> {
         if x.ncols() != self.n_features {
             return Err(CalibrateError::Length {
                 target: self.name.clone(),
@@ -143,12 +251,14 @@ impl CalibratedTarget {
                     .collect()
             })
             .collect();
+        let scale: Vec<f64> = (0..n).map(scale_of).collect();
         let out = TargetPrediction {
             lo: edges.iter().map(|e| e.0).collect(),
             mid: mids,
             hi: edges.iter().map(|e| e.1).collect(),
             exceed,
+            p_change: None,
         };
-        Ok(out)
+        Ok((out, scale))
     }
 }

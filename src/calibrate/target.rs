@@ -29,18 +29,22 @@
 //! would remove at K times the cost.
 
 use super::conformal::BandCalibration;
+use super::conformal::min_wells_for_band;
 use super::error::CalibrateError;
 use super::exceedance::{ExceedMethod, PitRecalibration, PredictiveSystem};
 use super::folds::{FoldMethod, Folds};
+use super::hurdle::{ZeroChange, ZeroRule};
 use super::isotonic::IsotonicMap;
 use super::stages::band::{self, Band, BandInput};
 use super::stages::correction::{self, Correction};
 use super::stages::exceedance::{self, Exceedance, ProbabilityInput};
+use super::stages::hurdle::{self, ConditionalRows, HurdleDiagnostics, HurdleModel, Subset};
 use super::stages::learner::{self, ChosenLearner};
 use super::stages::metrics::{self, OofScores, ScoreInput};
 use super::stages::models::{self, FinalModels};
 use super::stages::oof;
-use super::units::count_wells;
+use super::stages::spread::{self, Spread, SpreadInput};
+use super::units::{count_wells, pick};
 use crate::ensemble::{Booster, Forest};
 use crate::metrics::{Metrics, serde_nan};
 use serde::{Deserialize, Serialize};
@@ -77,6 +81,9 @@ pub struct OofRow {
     /// PIT value of the recalibrated forest CDF (cross-fitted).
     #[serde(deserialize_with = "serde_nan::f64_or_nan")]
     pub pit_forest: f64,
+    /// Residual scale of the row's predictive system (1 unless the band's scores are normalised).
+    #[serde(default = "one")]
+    pub scale: f64,
     /// Fold of the row.
     pub fold: usize,
     /// Well id.
@@ -121,6 +128,23 @@ pub struct TargetDiagnostics {
     pub rows: Vec<OofRow>,
     /// Plain-language warnings.
     pub warnings: Vec<String>,
+    /// The "no change" atom: what the wells said, and the hurdle's scores when it was used.
+    #[serde(default)]
+    pub zero: Option<ZeroRule>,
+    /// The hurdle's diagnostics, when the target was modelled with an atom at zero.
+    #[serde(default)]
+    pub hurdle: Option<HurdleDiagnostics>,
+    /// Out-of-fold metrics of the conditional part (changed rows only) of a hurdle target.
+    #[serde(default)]
+    pub conditional: Option<Metrics>,
+    /// The band away from the wells: the dissimilarity profile and the rule beyond the ground
+    /// cross-validation spans.
+    #[serde(default)]
+    pub spread: Option<Spread>,
+}
+
+fn one() -> f64 {
+    1.0
 }
 
 /// A calibrated target: final models, correction, band and probability maps, and diagnostics.
@@ -158,6 +182,14 @@ pub struct CalibratedTarget {
     pub recalibration: PitRecalibration,
     /// Probability method per threshold.
     pub exceed_methods: Vec<ExceedMethod>,
+    /// The "no change" hurdle applied after the conditional part above (`None`: a continuous
+    /// target).
+    #[serde(default)]
+    pub hurdle: Option<HurdleModel>,
+    /// The band away from the wells, applied when the nodes' dissimilarity and distance to the
+    /// wells are known ([`CalibratedTarget::predict_at`]).
+    #[serde(default)]
+    pub spread: Option<Spread>,
 }
 
 /// Predictions of a calibrated target for many rows.
@@ -171,6 +203,8 @@ pub struct TargetPrediction {
     pub hi: Vec<f64>,
     /// Per threshold, per row: the probability of crossing in the threshold's direction.
     pub exceed: Vec<Vec<f64>>,
+    /// Probability that anything changed, per row (targets with a "no change" atom only).
+    pub p_change: Option<Vec<f64>>,
 }
 
 /// Calibrate one target on its training rows (see the module documentation for the steps).
@@ -179,6 +213,131 @@ pub struct TargetPrediction {
 /// model that cannot be fitted. Too few wells for a finite band is not an error: the band is
 /// widened to the physical bounds and flagged in the diagnostics.
 pub fn calibrate_target(
+    data: &TargetData,
+    settings: &CalibrationSettings,
+) -> Result<CalibratedTarget, CalibrateError> {
+    data.check(settings)?;
+    let rule = ZeroRule::decide(data.y, data.zero.change, data.zero.tolerance);
+    let mut target = if rule.enabled {
+        with_atom(data, settings, &rule)?
+    } else {
+        continuous(data, settings)?
+    };
+    target.diagnostics.zero = (data.zero.change != ZeroChange::Off).then_some(rule);
+    let d = &target.diagnostics;
+    let mid: Vec<f64> = d.rows.iter().map(|r| r.corrected).collect();
+    let lo: Vec<f64> = d.rows.iter().map(|r| r.lo).collect();
+    let hi: Vec<f64> = d.rows.iter().map(|r| r.hi).collect();
+    let truth: Vec<f64> = d.rows.iter().map(|r| r.truth).collect();
+    let fold: Vec<usize> = d.rows.iter().map(|r| r.fold).collect();
+    let di = data.dissimilarity.map(|sp| sp.fold_di(&fold));
+    let sp = spread::fit(&SpreadInput {
+        y: &truth,
+        mid: &mid,
+        lo: &lo,
+        hi: &hi,
+        dissimilarity: di.as_deref(),
+        xy: data.xy,
+        group: data.group,
+        folds: &fold,
+        level: settings.level,
+    });
+    target.diagnostics.spread = Some(sp.clone());
+    target.spread = Some(sp);
+    Ok(target)
+}
+
+/// A target with an atom at zero: the continuous stages on the changed rows, then the hurdle
+/// ([`super::stages::hurdle`]) on all rows. Falls back to [`continuous`] with a warning when too
+/// few wells changed to calibrate the conditional band.
+fn with_atom(
+    data: &TargetData,
+    settings: &CalibrationSettings,
+    rule: &ZeroRule,
+) -> Result<CalibratedTarget, CalibrateError> {
+    let n = data.y.len();
+    let changed: Vec<usize> = (0..n).filter(|&i| rule.changed(data.y[i])).collect();
+    let changed_wells = count_wells(&pick(data.group, &changed));
+    let need = min_wells_for_band(settings.level) + 1;
+    if changed_wells < need || changed.len() == n {
+        let mut t = continuous(data, settings)?;
+        t.diagnostics.warnings.push(format!(
+            "`{}`: {changed_wells} wells changed by more than {:.4}; the 'no change' atom needs \
+             at least {need} (and some unchanged rows), so the target is modelled as continuous",
+            data.name, rule.tolerance
+        ));
+        return Ok(t);
+    }
+    let sub = Subset::of(data, &changed);
+    let mut target = continuous(&sub.data(data, data.name), settings)?;
+    let mut warnings = Vec::new();
+    let folds = oof::split(data.group, data.xy, settings, &mut warnings);
+    let (mut mid, mut scale) = target.conditional_at(data.x)?;
+    for (k, &i) in changed.iter().enumerate() {
+        mid[i] = target.diagnostics.rows[k].corrected;
+        scale[i] = target.diagnostics.rows[k].scale;
+    }
+    let h = hurdle::calibrate(
+        data,
+        settings,
+        rule,
+        &folds,
+        &ConditionalRows {
+            cps: &target.cps,
+            mid: mid.clone(),
+            scale: scale.clone(),
+        },
+    )?;
+    let scores = metrics::score(&ScoreInput {
+        y: &h.truth,
+        mid: &h.mid,
+        lo: &h.lo,
+        hi: &h.hi,
+        level: settings.level,
+        prob: &h.prob,
+        thresholds: &data.thresholds,
+        pit: &h.pit,
+        pit_forest: &h.pit,
+        group: data.group,
+        step: data.step,
+    })?;
+    let d = &mut target.diagnostics;
+    d.conditional = Some(std::mem::replace(&mut d.metrics, scores.overall));
+    d.metrics_by_step = scores.by_step;
+    d.pit_histogram = scores.pit_histogram;
+    d.pit_histogram_forest = scores.pit_histogram_forest;
+    d.exceedance = data
+        .thresholds
+        .iter()
+        .zip(&h.prob)
+        .map(|(th, p)| exceedance::mixture_diagnostics(th, p, &h.truth))
+        .collect();
+    d.rows = (0..n)
+        .map(|i| OofRow {
+            truth: h.truth[i],
+            raw: mid[i],
+            corrected: h.mid[i],
+            lo: h.lo[i],
+            hi: h.hi[i],
+            pit: h.pit[i],
+            pit_forest: h.pit[i],
+            scale: scale[i],
+            fold: folds.of_row[i],
+            group: data.group[i],
+            step: data.step[i],
+        })
+        .collect();
+    d.n_rows = n;
+    d.n_wells = count_wells(data.group);
+    d.n_folds = folds.count;
+    d.warnings.extend(warnings);
+    d.hurdle = Some(h.diagnostics);
+    target.hurdle = Some(h.model);
+    Ok(target)
+}
+
+/// A continuous target: every stage on every row.
+fn continuous(
     data: &TargetData,
     settings: &CalibrationSettings,
 ) -> Result<CalibratedTarget, CalibrateError> {
@@ -280,6 +439,7 @@ impl StageOutputs {
             warnings,
         } = self;
         let scale_floor = band.diagnostics.scale_floor;
+        let residual_scale = band.residual_scale();
         let rows = (0..data.y.len())
             .map(|i| OofRow {
                 truth: data.y[i],
@@ -289,6 +449,7 @@ impl StageOutputs {
                 hi: band.oof.hi[i],
                 pit: exceed.pit[i],
                 pit_forest: exceed.pit_forest[i],
+                scale: residual_scale[i],
                 fold: folds.of_row[i],
                 group: data.group[i],
                 step: data.step[i],
@@ -311,6 +472,10 @@ impl StageOutputs {
             metrics_by_step: scores.by_step,
             rows,
             warnings,
+            zero: None,
+            hurdle: None,
+            conditional: None,
+            spread: None,
         };
         CalibratedTarget {
             diagnostics,
@@ -329,6 +494,8 @@ impl StageOutputs {
             cps: exceed.cps,
             recalibration: exceed.recalibration,
             exceed_methods: exceed.methods,
+            hurdle: None,
+            spread: None,
         }
     }
 }

@@ -12,6 +12,7 @@ use super::PipelineError;
 use super::model::SavedModel;
 use super::stages::Stages;
 use crate::applicability::Applicability;
+use crate::calibrate::input::{Space, ZeroSetting};
 use crate::calibrate::shift::{self, CovariateShift, RowShift, ShiftSettings};
 use crate::calibrate::{self, CalibratedTarget, CalibrationSettings, TargetData, Threshold};
 use crate::ensemble::{BoostSettings, ForestSettings};
@@ -93,8 +94,16 @@ pub fn calibrate_rows(
     cols: &[usize],
     settings: &CalibrationSettings,
     shift: Option<&CovariateShift>,
+    space: Option<&Applicability>,
 ) -> Result<CalibratedTarget, PipelineError> {
     let x = ts.x.select(Axis(0), rows).select(Axis(1), cols);
+    // The rows as points of the applicability model's space (all feature columns only).
+    let points: Option<Vec<f64>> = space.filter(|a| a.n_features() == cols.len()).map(|a| {
+        let p = a.n_features();
+        rows.iter()
+            .flat_map(|&r| a.train[r * p..(r + 1) * p].iter().copied())
+            .collect()
+    });
     let y: Vec<f64> = rows.iter().map(|&r| ts.y[[r, t]]).collect();
     let group: Vec<usize> = rows.iter().map(|&r| ts.group[r]).collect();
     let xy: Vec<[f64; 2]> = rows.iter().map(|&r| ts.xy[r]).collect();
@@ -118,6 +127,18 @@ pub fn calibrate_rows(
             ratio: &ratio,
             test_ratio: s.node_mean_ratio,
         }),
+        zero: ZeroSetting {
+            change: spec.zero_change,
+            tolerance: spec.zero_tolerance,
+        },
+        dissimilarity: match (&points, space) {
+            (Some(points), Some(a)) => Some(Space {
+                points,
+                dim: a.n_features(),
+                mean_distance: a.mean_distance,
+            }),
+            _ => None,
+        },
     };
     calibrate::calibrate_target(&data, settings).map_err(|source| PipelineError::Calibrate {
         target: spec.name.clone(),
@@ -189,24 +210,6 @@ pub fn fit_model(
     let wells_vs_nodes = shift.as_ref().map(|s| s.summary(&ts.group, applied));
     let shift = shift.filter(|_| applied);
     stages.done("wells against nodes");
-    let bar = stages.bar(project.targets.len() as u64, "calibrate targets");
-    let mut calibrated = Vec::new();
-    for t in 0..project.targets.len() {
-        let rows = target_rows(ts, t);
-        calibrated.push(calibrate_rows(
-            project,
-            ts,
-            t,
-            &rows,
-            &all_cols,
-            &settings,
-            shift.as_ref(),
-        )?);
-        bar.inc(1);
-    }
-    bar.finish_and_clear();
-    stages.done("fit and calibrate");
-
     let imp = importance(ts, &settings)?;
     let p = ts.x.ncols();
     let mean_imp: Vec<f64> = (0..p)
@@ -225,6 +228,25 @@ pub fn fit_model(
     let applicability =
         Applicability::fit(&ts.feature_names, ts.x.view(), &mean_imp, &folds, &checked)?;
     stages.done("importance, applicability");
+
+    let bar = stages.bar(project.targets.len() as u64, "calibrate targets");
+    let mut calibrated = Vec::new();
+    for t in 0..project.targets.len() {
+        let rows = target_rows(ts, t);
+        calibrated.push(calibrate_rows(
+            project,
+            ts,
+            t,
+            &rows,
+            &all_cols,
+            &settings,
+            shift.as_ref(),
+            Some(&applicability),
+        )?);
+        bar.inc(1);
+    }
+    bar.finish_and_clear();
+    stages.done("fit and calibrate");
 
     let model = SavedModel {
         format: super::model::MODEL_FORMAT,

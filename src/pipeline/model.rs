@@ -3,9 +3,11 @@
 use super::PipelineError;
 use crate::applicability::{Applicability, Assessment};
 use crate::calibrate::CalibratedTarget;
+use crate::calibrate::predict::NodeContext;
 use crate::calibrate::shift::ShiftSummary;
 use crate::project::{Convention, TargetSpec, ThresholdSpec};
 use ndarray::{Array2, ArrayView2, Axis};
+use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 use std::path::Path;
 
@@ -55,6 +57,12 @@ pub struct TargetMaps {
     pub hi: Vec<f64>,
     /// Probability of crossing each of the target's thresholds, in [`SavedModel::thresholds_of`] order.
     pub exceed: Vec<Vec<f64>>,
+    /// Probability that anything changed (targets with a "no change" atom only).
+    pub p_change: Option<Vec<f64>>,
+}
+
+fn pick_rows(v: &[f64], rows: &[usize]) -> Vec<f64> {
+    rows.iter().map(|&r| v[r]).collect()
 }
 
 /// Everything predicted on one step.
@@ -82,10 +90,17 @@ impl SavedModel {
         band_labels(self.convention, self.level)
     }
 
-    /// Predicts every row of `x` (rows with a missing attribute give `NaN` everywhere and are not
-    /// in the area of applicability).
-    pub fn predict(&self, x: ArrayView2<f64>) -> Result<StepMaps, PipelineError> {
+    /// Predicts every row of `x` located at `xy` (world coordinates, one per row; rows with a
+    /// missing attribute give `NaN` everywhere and are not in the area of applicability). Bands
+    /// widen with each row's dissimilarity to the training rows and with its distance to the
+    /// nearest well beyond what cross-validation spanned (each target's spread rule).
+    pub fn predict(
+        &self,
+        x: ArrayView2<f64>,
+        xy: &[(f64, f64)],
+    ) -> Result<StepMaps, PipelineError> {
         let n = x.nrows();
+        let applicability = self.applicability.assess(x);
         let n_attr = self.feature_names.len() - 1;
         let valid: Vec<usize> = (0..n)
             .filter(|&r| x.row(r).iter().take(n_attr).all(|v| v.is_finite()))
@@ -98,10 +113,25 @@ impl SavedModel {
             }
             out
         };
+        let di = pick_rows(&applicability.di, &valid);
+        let distance: Vec<f64> = valid
+            .par_iter()
+            .map(|&r| {
+                let (x0, y0) = xy.get(r).copied().unwrap_or((f64::NAN, f64::NAN));
+                self.wells
+                    .iter()
+                    .map(|w| ((w.1 - x0).powi(2) + (w.2 - y0).powi(2)).sqrt())
+                    .fold(f64::INFINITY, f64::min)
+            })
+            .collect();
+        let context = NodeContext {
+            dissimilarity: &di,
+            distance: &distance,
+        };
         let mut targets = Vec::new();
         for cal in &self.calibrated {
             let p = cal
-                .predict(compact.view())
+                .predict_at(compact.view(), Some(context))
                 .map_err(|source| PipelineError::Calibrate {
                     target: cal.name.clone(),
                     source,
@@ -111,9 +141,9 @@ impl SavedModel {
                 mid: scatter(&p.mid),
                 hi: scatter(&p.hi),
                 exceed: p.exceed.iter().map(|e| scatter(e)).collect(),
+                p_change: p.p_change.as_deref().map(scatter),
             });
         }
-        let applicability = self.applicability.assess(x);
         Ok(StepMaps {
             targets,
             applicability,

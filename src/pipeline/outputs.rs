@@ -195,6 +195,18 @@ pub fn write_step_maps(
             ),
             &spec.unit,
         )?;
+        if let Some(p) = &tm.p_change {
+            put(
+                w,
+                format!("{base}_p_change"),
+                p,
+                format!(
+                    "probability that {} changed at all (beyond the wells' noise tolerance)",
+                    spec.name
+                ),
+                "probability",
+            )?;
+        }
         for (th, prob) in model.thresholds_of(t).iter().zip(&tm.exceed) {
             let dir = match th.direction {
                 crate::project::Direction::Above => "above",
@@ -223,18 +235,7 @@ pub fn write_step_maps(
         ),
         "dimensionless",
     )?;
-    let inside: Vec<f64> = a
-        .inside
-        .iter()
-        .zip(&a.di)
-        .map(|(&i, d)| {
-            if d.is_nan() {
-                f64::NAN
-            } else {
-                f64::from(u8::from(i))
-            }
-        })
-        .collect();
+    let (inside, outside) = flag_maps(a);
     put(
         w,
         format!("maps/{step}/inside"),
@@ -242,12 +243,6 @@ pub fn write_step_maps(
         "1 inside the area of applicability, 0 outside".into(),
         "flag",
     )?;
-    let outside: Vec<f64> = a
-        .outside_range
-        .iter()
-        .zip(&a.di)
-        .map(|(&o, d)| if d.is_nan() { f64::NAN } else { f64::from(o) })
-        .collect();
     put(
         w,
         format!("maps/{step}/outside_range"),
@@ -265,4 +260,28 @@ pub fn write_step_maps(
         })
         .collect::<Result<Vec<()>, _>>()?;
     Ok(entries)
+}
+
+/// The area-of-applicability flag (1 inside, 0 outside) and the count of attributes outside the
+/// training range, as maps (`NaN` where the node has no dissimilarity).
+fn flag_maps(a: &crate::applicability::Assessment) -> (Vec<f64>, Vec<f64>) {
+    let inside = a
+        .inside
+        .iter()
+        .zip(&a.di)
+        .map(|(&i, d)| {
+            if d.is_nan() {
+                f64::NAN
+            } else {
+                f64::from(u8::from(i))
+            }
+        })
+        .collect();
+    let outside = a
+        .outside_range
+        .iter()
+        .zip(&a.di)
+        .map(|(&o, d)| if d.is_nan() { f64::NAN } else { f64::from(o) })
+        .collect();
+    (inside, outside)
 }

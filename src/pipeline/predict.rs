@@ -108,6 +108,7 @@ pub fn predict(
     };
     let (j0, j1) = tile.map_or((0, p.grid.ny), |t| t.rows(p.grid.ny));
     let n_feat = model.feature_names.len();
+    let xy = p.grid.node_coordinates();
     for (s, step) in p.steps.iter().enumerate() {
         let step_value = match model.step_names.iter().position(|n| n == &step.name) {
             Some(k) => k as f64,
@@ -125,7 +126,7 @@ pub fn predict(
             .slice(s![j0 * p.grid.nx..j1 * p.grid.nx, ..])
             .to_owned();
         x.column_mut(n_feat - 1).fill(step_value);
-        let maps = model.predict(x.view())?;
+        let maps = model.predict(x.view(), &xy[j0 * p.grid.nx..j1 * p.grid.nx])?;
         write_step_maps(&mut w, &model, &grid, &step.name, &maps)?;
     }
     let record = PredictRecord {

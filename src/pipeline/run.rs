@@ -180,9 +180,10 @@ fn predict_and_write(
     let mut metadata: Vec<MapEntry> = Vec::new();
     let mut kept: Vec<StepMaps> = Vec::new();
     let bar = stages.bar(project.steps.len() as u64, "predict and write maps");
+    let node_xy = project.grid.node_coordinates();
     for (s, step) in project.steps.iter().enumerate() {
         let x = sample::node_features(survey, s);
-        let maps = model.predict(x.view())?;
+        let maps = model.predict(x.view(), &node_xy)?;
         metadata.extend(write_step_maps(w, model, &project.grid, &step.name, &maps)?);
         kept.push(maps);
         bar.inc(1);

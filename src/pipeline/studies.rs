@@ -369,7 +369,8 @@ pub fn sensitivity(
                 };
                 for r in 0..repeats {
                     let rows = curve_rows(ts, t, n_wells, k, seed, si, r);
-                    let cal = calibrate_rows(project, ts, t, &rows, &all_cols, &settings, None);
+                    let cal =
+                        calibrate_rows(project, ts, t, &rows, &all_cols, &settings, None, None);
                     if let Ok(cal) = cal {
                         point.r2.push(cal.diagnostics.metrics.r2);
                         point.coverage.push(cal.diagnostics.metrics.coverage);
@@ -394,8 +395,8 @@ pub fn sensitivity(
         if !removed.is_empty() && keep.len() > 1 {
             for t in 0..project.targets.len() {
                 let rows = target_rows(ts, t);
-                let all = calibrate_rows(project, ts, t, &rows, &all_cols, &settings, None)?;
-                let without = calibrate_rows(project, ts, t, &rows, &keep, &settings, None)?;
+                let all = calibrate_rows(project, ts, t, &rows, &all_cols, &settings, None, None)?;
+                let without = calibrate_rows(project, ts, t, &rows, &keep, &settings, None, None)?;
                 out.ablation.push(Ablation {
                     target: project.targets[t].name.clone(),
                     removed: removed.clone(),

@@ -5,6 +5,7 @@ mod coverage;
 mod end_correction;
 mod folds;
 mod generated;
+mod hurdle;
 mod isotonic;
 mod local;
 mod metrics;

@@ -81,6 +81,8 @@ fn data<'a>(f: &'a Field) -> TargetData<'a> {
             },
         ],
         shift: None,
+        zero: Default::default(),
+        dissimilarity: None,
     }
 }
 

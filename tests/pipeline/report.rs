@@ -45,7 +45,7 @@ fn learning_curve_and_ablation_equal_a_direct_computation() {
     let t = 1;
     for (si, r) in [(0, 1), (sizes.len() - 1, 0)] {
         let rows = curve_rows(&ts, t, n_wells, sizes[si], seed, si, r);
-        let direct = calibrate_rows(p, &ts, t, &rows, &all, &settings, None).unwrap();
+        let direct = calibrate_rows(p, &ts, t, &rows, &all, &settings, None, None).unwrap();
         let point = studies
             .curve
             .iter()
@@ -70,8 +70,8 @@ fn learning_curve_and_ablation_equal_a_direct_computation() {
         .filter(|&c| !removed.contains(&ts.feature_names[c]))
         .collect();
     let rows = target_rows(&ts, t);
-    let without = calibrate_rows(p, &ts, t, &rows, &keep, &settings, None).unwrap();
-    let with_all = calibrate_rows(p, &ts, t, &rows, &all, &settings, None).unwrap();
+    let without = calibrate_rows(p, &ts, t, &rows, &keep, &settings, None, None).unwrap();
+    let with_all = calibrate_rows(p, &ts, t, &rows, &all, &settings, None, None).unwrap();
     let a = studies.ablation.iter().find(|a| a.target == "dSw").unwrap();
     assert_eq!(
         a.r2_without.to_bits(),

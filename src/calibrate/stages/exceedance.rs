@@ -184,3 +184,26 @@ pub fn calibrate(input: &ProbabilityInput) -> Result<Exceedance, CalibrateError>
         diagnostics,
     })
 }
+
+/// Diagnostics of threshold `th` for probabilities `p` of a hurdle target's mixture (conformal
+/// predictive system of the changed rows, mixed with the atom and recalibrated on its PIT values)
+/// against the denoised truth `y`; the forest column is not computed (NaN).
+pub fn mixture_diagnostics(th: &Threshold, p: &[f64], y: &[f64]) -> ExceedanceDiagnostics {
+    let outcome: Vec<bool> = y
+        .iter()
+        .map(|&v| if th.above { v > th.value } else { v < th.value })
+        .collect();
+    let n = outcome.len().max(1);
+    let rate = outcome.iter().filter(|&&o| o).count() as f64 / n as f64;
+    ExceedanceDiagnostics {
+        label: th.label.clone(),
+        value: th.value,
+        above: th.above,
+        method: ExceedMethod::Conformal,
+        brier_conformal: brier(p, &outcome),
+        brier_forest: f64::NAN,
+        brier_base_rate: brier(&vec![rate; outcome.len()], &outcome),
+        base_rate: rate,
+        reliability: reliability(p, &outcome, 10),
+    }
+}

@@ -34,10 +34,12 @@
 pub mod band;
 pub mod correction;
 pub mod exceedance;
+pub mod hurdle;
 pub mod learner;
 pub mod metrics;
 pub mod models;
 pub mod oof;
+pub mod spread;
 
 /// Seed stream of the fold assignment.
 const STREAM_FOLDS: u64 = 1;
