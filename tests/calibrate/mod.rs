@@ -10,5 +10,6 @@ mod local;
 mod metrics;
 mod pit;
 mod shift;
+mod stages;
 mod target;
 mod too_few;
