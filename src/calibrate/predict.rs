@@ -10,8 +10,21 @@ use super::exceedance::{ExceedMethod, bounded_cdf, crossing_probability};
 use super::hurdle;
 use super::stages::hurdle::{self as stage, CpsAt, HurdleModel};
 use super::target::{CalibratedTarget, TargetPrediction};
-use ndarray::ArrayView2;
+use ndarray::{Array2, ArrayView2};
 use rayon::prelude::*;
+
+/// What one pass of the ensemble gives for every row.
+struct EnsemblePass {
+    /// Forest mean (when the forest has weight in the point prediction).
+    forest_mean: Option<Vec<f64>>,
+    /// Forest quantiles at `(1-level)/2`, 0.5, `(1+level)/2` and CDF at each threshold (when the
+    /// band or a probability needs them).
+    dist: Option<(Array2<f64>, Array2<f64>)>,
+    /// Localised side quantiles `(Q_lo, Q_hi)` of the band (when the band is localised).
+    local_q: Option<Vec<(Option<f64>, Option<f64>)>>,
+    /// Booster prediction (when the booster has weight in the point prediction).
+    boost: Option<Vec<f64>>,
+}
 
 /// Where the predicted rows lie relative to the training wells.
 #[derive(Clone, Copy, Debug)]
@@ -81,16 +94,12 @@ impl CalibratedTarget {
         let n = parts.mid.len();
         let p: Vec<f64> = (0..n).map(|i| h.map.predict(raw[[i, 0]])).collect();
         let (u_lo, u_mid, u_hi) = h.levels;
+        let nt = self.thresholds.len();
         let rows: Vec<(f64, f64, f64, Vec<f64>)> = (0..n)
             .into_par_iter()
             .map(|i| {
                 if parts.mid[i].is_nan() {
-                    return (
-                        f64::NAN,
-                        f64::NAN,
-                        f64::NAN,
-                        vec![f64::NAN; self.thresholds.len()],
-                    );
+                    return (f64::NAN, f64::NAN, f64::NAN, vec![f64::NAN; nt]);
                 }
                 let g = CpsAt {
                     cps: &self.cps,
@@ -111,7 +120,7 @@ impl CalibratedTarget {
             lo: rows.iter().map(|r| r.0).collect(),
             mid: rows.iter().map(|r| r.1).collect(),
             hi: rows.iter().map(|r| r.2).collect(),
-            exceed: (0..self.thresholds.len())
+            exceed: (0..nt)
                 .map(|t| rows.iter().map(|r| r.3[t]).collect())
                 .collect(),
             p_change: Some(p),
@@ -132,6 +141,38 @@ impl CalibratedTarget {
             });
         }
         let n = x.nrows();
+        let pass = self.ensemble_pass(x);
+        let mids: Vec<f64> = (0..n)
+            .into_par_iter()
+            .map(|i| self.middle(&pass, i))
+            .collect();
+        let edges: Vec<(f64, f64)> = (0..n)
+            .into_par_iter()
+            .map(|i| self.edges(&pass, i, mids[i]))
+            .collect();
+        let exceed: Vec<Vec<f64>> = (0..self.thresholds.len())
+            .map(|t| {
+                (0..n)
+                    .into_par_iter()
+                    .map(|i| self.probability(&pass, t, i, mids[i]))
+                    .collect()
+            })
+            .collect();
+        let scale: Vec<f64> = (0..n).map(|i| self.scale(&pass, i)).collect();
+        let out = TargetPrediction {
+            lo: edges.iter().map(|e| e.0).collect(),
+            mid: mids,
+            hi: edges.iter().map(|e| e.1).collect(),
+            exceed,
+            p_change: None,
+        };
+        Ok((out, scale))
+    }
+
+    /// One walk of the forest gives the mean and the distribution together, and for a
+    /// localised band the proximity weights' side quantiles from the same leaves; the booster
+    /// predicts when it has weight.
+    fn ensemble_pass(&self, x: ArrayView2<f64>) -> EnsemblePass {
         let a = 1.0 - self.level;
         let w = self.forest_weight;
         let need_dist = self.band.method != BandMethod::CvResidual
@@ -140,8 +181,6 @@ impl CalibratedTarget {
                 .contains(&ExceedMethod::ForestRecalibrated);
         let t_values: Vec<f64> = self.thresholds.iter().map(|t| t.value).collect();
         let levels = [a / 2.0, 0.5, 1.0 - a / 2.0];
-        // One walk of the forest gives the mean and the distribution together, and for a
-        // localised band the proximity weights' side quantiles from the same leaves.
         let mut local_q: Option<Vec<(Option<f64>, Option<f64>)>> = None;
         let (forest_mean, dist) = match (w > 0.0, need_dist) {
             _ if self.band.local.is_some() => {
@@ -172,93 +211,83 @@ impl CalibratedTarget {
             (Some(b), true) => Some(b.predict(x)),
             _ => None,
         };
-        let nt = self.thresholds.len();
-        let mids: Vec<f64> = (0..n)
-            .into_par_iter()
-            .map(|i| {
-                let raw = match (&forest_mean, &boost) {
-                    (Some(f), Some(b)) => w * f[i] + (1.0 - w) * b[i],
-                    (Some(f), None) => f[i],
-                    (None, Some(b)) => b[i],
-                    (None, None) => f64::NAN,
-                };
-                let raw = raw.clamp(self.bounds.0, self.bounds.1);
-                let mid = self.correction.as_ref().map_or(raw, |m| {
-                    raw + self.correction_strength * (m.predict(raw) - raw)
-                });
-                mid.clamp(self.bounds.0, self.bounds.1)
-            })
-            .collect();
-        let scale_of = |i: usize| -> f64 {
-            match (&self.band.method, &dist) {
-                (BandMethod::Normalized, Some((q, _))) => {
-                    (0.5 * (q[[i, 2]] - q[[i, 0]])).max(self.scale_floor)
-                }
-                _ => 1.0,
+        EnsemblePass {
+            forest_mean,
+            dist,
+            local_q,
+            boost,
+        }
+    }
+
+    /// Corrected point prediction of row `i`: the blend, clipped, corrected, clipped.
+    fn middle(&self, pass: &EnsemblePass, i: usize) -> f64 {
+        let w = self.forest_weight;
+        let raw = match (&pass.forest_mean, &pass.boost) {
+            (Some(f), Some(b)) => w * f[i] + (1.0 - w) * b[i],
+            (Some(f), None) => f[i],
+            (None, Some(b)) => b[i],
+            (None, None) => f64::NAN,
+        };
+        let raw = raw.clamp(self.bounds.0, self.bounds.1);
+        let mid = self.correction.as_ref().map_or(raw, |m| {
+            raw + self.correction_strength * (m.predict(raw) - raw)
+        });
+        mid.clamp(self.bounds.0, self.bounds.1)
+    }
+
+    /// Scale of row `i`'s residuals: the floored forest spread for normalised scores, else 1.
+    fn scale(&self, pass: &EnsemblePass, i: usize) -> f64 {
+        match (&self.band.method, &pass.dist) {
+            (BandMethod::Normalized, Some((q, _))) => {
+                (0.5 * (q[[i, 2]] - q[[i, 0]])).max(self.scale_floor)
             }
-        };
-        let edges: Vec<(f64, f64)> = (0..n)
-            .into_par_iter()
-            .map(|i| {
-                let mid = mids[i];
-                if mid.is_nan() {
-                    return (f64::NAN, f64::NAN);
+            _ => 1.0,
+        }
+    }
+
+    /// Band edges `(lo, hi)` of row `i` around its middle `mid` (`NaN` where `mid` is).
+    fn edges(&self, pass: &EnsemblePass, i: usize, mid: f64) -> (f64, f64) {
+        if mid.is_nan() {
+            return (f64::NAN, f64::NAN);
+        }
+        let base = match (&self.band.method, &pass.dist) {
+            (BandMethod::Cqr, Some((q, _))) => {
+                let shift = mid - q[[i, 1]];
+                BandBase {
+                    mid,
+                    lo: q[[i, 0]] + shift,
+                    hi: q[[i, 2]] + shift,
+                    scale: 1.0,
                 }
-                let base = match (&self.band.method, &dist) {
-                    (BandMethod::Cqr, Some((q, _))) => {
-                        let shift = mid - q[[i, 1]];
-                        BandBase {
-                            mid,
-                            lo: q[[i, 0]] + shift,
-                            hi: q[[i, 2]] + shift,
-                            scale: 1.0,
-                        }
-                    }
-                    _ => BandBase {
-                        scale: scale_of(i),
-                        ..BandBase::centred(mid)
-                    },
-                };
-                let (lo, _, hi) = match &local_q {
-                    Some(lq) => self
-                        .band
-                        .apply_quantiles(base, self.bounds, lq[i].0, lq[i].1),
-                    None => self.band.apply(base, self.bounds),
-                };
-                (lo, hi)
-            })
-            .collect();
-        let exceed: Vec<Vec<f64>> = (0..nt)
-            .map(|t| {
-                let th = &self.thresholds[t];
-                (0..n)
-                    .into_par_iter()
-                    .map(|i| {
-                        let mid = mids[i];
-                        if mid.is_nan() {
-                            return f64::NAN;
-                        }
-                        let below = match (&self.exceed_methods[t], &dist) {
-                            (ExceedMethod::ForestRecalibrated, Some((_, c))) => bounded_cdf(
-                                self.recalibration.apply(c[[i, t]]),
-                                th.value,
-                                self.bounds,
-                            ),
-                            _ => self.cps.prob_below(mid, scale_of(i), th.value, self.bounds),
-                        };
-                        crossing_probability(below, th.above)
-                    })
-                    .collect()
-            })
-            .collect();
-        let scale: Vec<f64> = (0..n).map(scale_of).collect();
-        let out = TargetPrediction {
-            lo: edges.iter().map(|e| e.0).collect(),
-            mid: mids,
-            hi: edges.iter().map(|e| e.1).collect(),
-            exceed,
-            p_change: None,
+            }
+            _ => BandBase {
+                scale: self.scale(pass, i),
+                ..BandBase::centred(mid)
+            },
         };
-        Ok((out, scale))
+        let (lo, _, hi) = match &pass.local_q {
+            Some(lq) => self
+                .band
+                .apply_quantiles(base, self.bounds, lq[i].0, lq[i].1),
+            None => self.band.apply(base, self.bounds),
+        };
+        (lo, hi)
+    }
+
+    /// Probability that row `i` (middle `mid`) crosses threshold `t` in its direction.
+    fn probability(&self, pass: &EnsemblePass, t: usize, i: usize, mid: f64) -> f64 {
+        if mid.is_nan() {
+            return f64::NAN;
+        }
+        let th = &self.thresholds[t];
+        let below = match (&self.exceed_methods[t], &pass.dist) {
+            (ExceedMethod::ForestRecalibrated, Some((_, c))) => {
+                bounded_cdf(self.recalibration.apply(c[[i, t]]), th.value, self.bounds)
+            }
+            _ => self
+                .cps
+                .prob_below(mid, self.scale(pass, i), th.value, self.bounds),
+        };
+        crossing_probability(below, th.above)
     }
 }

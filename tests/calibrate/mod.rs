@@ -11,5 +11,6 @@ mod local;
 mod metrics;
 mod pit;
 mod shift;
+mod stages;
 mod target;
 mod too_few;

@@ -290,9 +290,9 @@ pub fn candidates(input: &BandInput) -> Vec<OofBand> {
     list
 }
 
-/// Stage 6: the index of the kept candidate, the one with the lowest out-of-fold score (the
-/// first of equals; a score that is not a number is never lower). Another choice rule replaces
-/// this function.
+/// Stage 6: the index of the kept candidate: the first one, unless a later one has a strictly
+/// lower out-of-fold score (so the first of equals wins, and a score that is not a number never
+/// displaces another). Another choice rule replaces this function.
 pub fn choose(candidates: &[OofBand]) -> usize {
     (0..candidates.len()).fold(0, |b, c| {
         if candidates[c].score < candidates[b].score {
