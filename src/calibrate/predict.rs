@@ -72,6 +72,12 @@ impl CalibratedTarget {
         Ok(out)
     }
 
+    /// The uncalibrated quantile forest on all the target's rows: the forest itself for a
+    /// continuous target, the hurdle's reference forest for a target with an atom at zero.
+    pub fn reference_forest(&self) -> &crate::ensemble::Forest {
+        self.hurdle.as_ref().map_or(&self.forest, |h| &h.reference)
+    }
+
     /// The conditional part's middle and residual scale at every row of `x` (the continuous
     /// model's own prediction).
     pub fn conditional_at(

@@ -52,6 +52,10 @@ pub struct Args {
     /// Leave out the sealing fault (one pressure compartment).
     #[arg(long)]
     pub no_fault: bool,
+    /// Add a second well-free region: a sealed culmination drained from beyond the survey, where
+    /// gas comes out of solution and gathers as a cap (masked as truth/masks/gas_cap.tif).
+    #[arg(long)]
+    pub gas_cap: bool,
     /// Write into a non-empty folder. Only files an earlier run of `tidemark synth` wrote there
     /// are replaced; any other file in the way stops the run.
     #[arg(long)]
@@ -115,6 +119,9 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
     if args.no_fault {
         s.fault = false;
     }
+    if args.gas_cap {
+        s.gas_cap = true;
+    }
     s.validate()?;
 
     let out = &args.out;
@@ -142,7 +149,7 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
     println!(
         "wrote {} (synthetic, seed {}) to {}: {} x {} nodes at {} m, {} steps, {} wells \
          ({} producers, {} injectors, {} observers), {} well observations, {} attributes per \
-         step, in {:.1} s",
+         step, well-free regions masked: {}, in {:.1} s",
         synth::project::FIELD_NAME,
         s.seed,
         out.display(),
@@ -156,6 +163,16 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
         count(WellKind::Observer),
         field.well_rows.len(),
         field.attribute_names.len(),
+        if field.masks.is_empty() {
+            "none".to_string()
+        } else {
+            field
+                .masks
+                .iter()
+                .map(|(n, _)| n.as_str())
+                .collect::<Vec<_>>()
+                .join(", ")
+        },
         start.elapsed().as_secs_f64()
     );
     Ok(0)

@@ -18,6 +18,16 @@
 //!   redissolves if the pressure recovers (no hysteresis). The dissolved gas-oil ratio of the
 //!   remaining oil falls in proportion to P/Pb (a linear simplification of Standing's correlation).
 //! - Compaction: uniaxial, dh/h = C_m dP.
+//! - The drained culmination (setting `gas_cap`, off by default): a small culmination sealed from
+//!   the rest of its compartment is drained from beyond the survey, so no well in the field sees
+//!   its history. Its pressure follows a closed-tank decline, dP_c(t) = -D (1 - exp(-t / tau))
+//!   (material balance of a bounded volume produced at a rate proportional to its pressure
+//!   excess, the exponential decline of Arps 1945 / Fetkovich 1971). A node of weight w in the
+//!   culmination takes (1 - w) times the wells' pressure change plus w dP_c. Once the pressure
+//!   falls below the bubble point, the released gas (the same law as everywhere) rises: a share
+//!   w of it gathers at the top of the oil leg as a cap at saturation 1 - Sw - Sor, the rest stays
+//!   dispersed. Gas is conserved, so the mean saturations (the truth) are the same as without
+//!   segregation; only the layering, and with it the seismic response, differs.
 
 use super::SynthSettings;
 use super::reservoir::Reservoir;
@@ -172,6 +182,9 @@ struct Compartment {
 pub struct Dynamics {
     comps: [Compartment; 2],
     r_min: f64,
+    /// Long-time pressure drop (MPa) and decline time constant (years) of the drained
+    /// culmination, when the field has one.
+    cap_decline: Option<(f64, f64)>,
 }
 
 impl Dynamics {
@@ -215,6 +228,19 @@ impl Dynamics {
         Dynamics {
             comps,
             r_min: 0.2 * res.spacing,
+            cap_decline: res
+                .gas_cap
+                .as_ref()
+                .map(|_| (s.gas_cap_depletion, s.gas_cap_decline_years)),
+        }
+    }
+
+    /// Pressure change (MPa) of the drained culmination at `t` years, `-D (1 - exp(-t / tau))`;
+    /// 0 when the field has no culmination.
+    pub fn cap_pressure(&self, t: f64) -> f64 {
+        match self.cap_decline {
+            Some((d, tau)) if t > 0.0 => -d * (1.0 - (-t / tau).exp()),
+            _ => 0.0,
         }
     }
 
@@ -260,10 +286,15 @@ impl Dynamics {
         cond: &Conditions,
         t: f64,
     ) -> Vec<f64> {
+        let cap = self.cap_pressure(t);
         (0..res.len())
             .map(|i| {
                 let (x, y) = res.node_local(i);
-                let dp = self.pressure_at(res, wells, x, y, res.compartment[i], t);
+                let mut dp = self.pressure_at(res, wells, x, y, res.compartment[i], t);
+                if let Some(c) = &res.gas_cap {
+                    let w = c.weight[i];
+                    dp = (1.0 - w) * dp + w * cap;
+                }
                 let p0 = cond.p0[i];
                 (p0 + dp).clamp(0.15 * p0, cond.sv[i] - 2.0) - p0
             })
@@ -405,6 +436,8 @@ pub fn node_state(
     let owc = res.owc[res.compartment[i]];
     let owc_t = owc - s.aquifer_rise * t;
     let squeeze = (1.0 + s.compaction_coefficient * dp).max(0.5);
+    // share of the released gas that rises into a cap (only in the drained culmination)
+    let segregated = res.gas_cap.as_ref().map_or(0.0, |c| c.weight[i]);
     let sands = res
         .sands
         .iter()
@@ -427,10 +460,36 @@ pub fn node_state(
             let mut parts = Vec::with_capacity(3);
             if h_oil > 1e-6 {
                 let sw = swi + (1.0 - s.sor - swi).max(0.0) * fronts[k];
-                parts.push(SubLayer {
-                    thickness: h_oil * squeeze,
-                    sat: with_gas(sw),
-                });
+                let dispersed = with_gas(sw);
+                let cap_sg = 1.0 - sw - s.sor;
+                if segregated > 0.0 && dispersed.sg > 0.0 && cap_sg > dispersed.sg {
+                    // gas volume per unit area, h_oil sg, split between a cap at cap_sg and the
+                    // oil below it
+                    let h_cap = segregated * h_oil * dispersed.sg / cap_sg;
+                    let h_rest = h_oil - h_cap;
+                    let sg_rest = (1.0 - segregated) * h_oil * dispersed.sg / h_rest;
+                    parts.push(SubLayer {
+                        thickness: h_cap * squeeze,
+                        sat: Saturation {
+                            sw,
+                            so: s.sor,
+                            sg: cap_sg,
+                        },
+                    });
+                    parts.push(SubLayer {
+                        thickness: h_rest * squeeze,
+                        sat: Saturation {
+                            sw,
+                            so: 1.0 - sw - sg_rest,
+                            sg: sg_rest,
+                        },
+                    });
+                } else {
+                    parts.push(SubLayer {
+                        thickness: h_oil * squeeze,
+                        sat: dispersed,
+                    });
+                }
             }
             if h_swept > 1e-6 {
                 parts.push(SubLayer {

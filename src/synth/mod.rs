@@ -8,6 +8,11 @@
 //! band-limited, spatially correlated noise at a requested signal-to-noise ratio ([`noise`]), and
 //! the monitor-minus-base attributes. The wells report the true changes plus small measurement noise.
 //!
+//! Two regions are kept free of wells so that a test bed has ground no well resembles: the porous
+//! lobe with its own aquifer, and, when `gas_cap` is set, a sealed culmination drained from beyond
+//! the survey whose released gas gathers as a cap. [`SynthField::masks`] marks both (written as
+//! `truth/masks/<region>.tif`).
+//!
 //! Every random choice derives from `SynthSettings::seed` through [`sub_seed`], one stream per
 //! component and item, so the same seed gives the same field whatever the thread count.
 
@@ -165,6 +170,20 @@ pub struct SynthSettings {
     pub lobe_relief: f64,
     /// Advance of the lobe's own aquifer front, m/year \[300\]; 0 leaves the lobe to the wells.
     pub lobe_aquifer_rate: f64,
+    /// Whether the field holds a second well-free region \[false\]: a sealed culmination drained
+    /// from beyond the survey, whose pressure falls on its own schedule until gas comes out of
+    /// solution and gathers as a cap under its crest (see [`dynamics`]).
+    pub gas_cap: bool,
+    /// Centre of the drained culmination, fractions of the grid width and height \[0.78, 0.22\].
+    pub gas_cap_position: [f64; 2],
+    /// Radius of the culmination as a fraction of the shorter grid side \[0.12\].
+    pub gas_cap_radius: f64,
+    /// Structural relief of the culmination, m \[25\].
+    pub gas_cap_relief: f64,
+    /// Pressure drop the drainage tends to at long times, MPa \[10\].
+    pub gas_cap_depletion: f64,
+    /// Time constant of the culmination's pressure decline, years \[3\].
+    pub gas_cap_decline_years: f64,
 
     /// Temperature at the datum, C \[6\].
     pub surface_temperature: f64,
@@ -305,6 +324,12 @@ impl Default for SynthSettings {
             lobe_porosity: 0.04,
             lobe_relief: 30.0,
             lobe_aquifer_rate: 300.0,
+            gas_cap: false,
+            gas_cap_position: [0.78, 0.22],
+            gas_cap_radius: 0.12,
+            gas_cap_relief: 25.0,
+            gas_cap_depletion: 10.0,
+            gas_cap_decline_years: 3.0,
             surface_temperature: 6.0,
             temperature_gradient: 0.032,
             brine_density: 1040.0,
@@ -489,6 +514,41 @@ impl SynthSettings {
         frac("lobe_porosity", self.lobe_porosity, 0.0, 0.1)?;
         nonneg("lobe_relief", self.lobe_relief)?;
         nonneg("lobe_aquifer_rate", self.lobe_aquifer_rate)?;
+        for v in self.gas_cap_position {
+            frac("gas_cap_position", v, 0.0, 1.0)?;
+        }
+        frac("gas_cap_radius", self.gas_cap_radius, 0.01, 0.4)?;
+        frac("gas_cap_relief", self.gas_cap_relief, 0.0, 200.0)?;
+        frac("gas_cap_depletion", self.gas_cap_depletion, 0.0, 40.0)?;
+        frac(
+            "gas_cap_decline_years",
+            self.gas_cap_decline_years,
+            0.05,
+            100.0,
+        )?;
+        if self.gas_cap && self.lobe_radius > 0.0 {
+            // the two regions and their well-free margins must not touch, so that each mask
+            // holds one kind of ground
+            let (w, h) = (
+                (self.nx - 1) as f64 * self.spacing,
+                (self.ny - 1) as f64 * self.spacing,
+            );
+            let short = w.min(h);
+            let gap = ((self.gas_cap_position[0] - self.lobe_position[0]) * w)
+                .hypot((self.gas_cap_position[1] - self.lobe_position[1]) * h);
+            let need =
+                reservoir::WELL_FREE_MARGIN * (self.gas_cap_radius + self.lobe_radius) * short;
+            if gap < need {
+                return Err(bad(
+                    "gas_cap_position",
+                    self.gas_cap_position,
+                    &format!(
+                        "the culmination's centre lies {gap:.0} m from the lobe's; with their \
+                         well-free margins they need {need:.0} m"
+                    ),
+                ));
+            }
+        }
         frac("surface_temperature", self.surface_temperature, -5.0, 60.0)?;
         frac("temperature_gradient", self.temperature_gradient, 0.0, 0.08)?;
         frac("brine_density", self.brine_density, 950.0, 1250.0)?;
@@ -660,6 +720,27 @@ impl SynthModel {
     pub fn build(settings: &SynthSettings) -> Result<SynthModel, SynthError> {
         settings.validate()?;
         let reservoir = Reservoir::build(settings);
+        if let Some(c) = &reservoir.gas_cap {
+            let inside: Vec<usize> = (0..reservoir.len())
+                .filter(|&i| c.weight[i] >= 0.5)
+                .collect();
+            let oil = inside
+                .iter()
+                .filter(|&&i| reservoir.oil_column(0, i) > 0.0)
+                .count();
+            if inside.is_empty() || 2 * oil < inside.len() {
+                return Err(SynthError::Setting {
+                    key: "gas_cap_position",
+                    value: format!("{:?}", settings.gas_cap_position),
+                    reason: format!(
+                        "the culmination must lie mostly in the oil leg so that it can release \
+                         gas; {oil} of its {} nodes hold oil (move it up the structure or raise \
+                         gas_cap_relief)",
+                        inside.len()
+                    ),
+                });
+            }
+        }
         let wells = wells::place(&reservoir, settings)?;
         // oil density for the oil-leg pressure gradient, at crest conditions
         let t = settings.surface_temperature + settings.temperature_gradient * settings.crest_depth;
@@ -704,6 +785,10 @@ impl SynthModel {
                 f.iter_mut()
                     .zip(&lobe)
                     .for_each(|(f, l)| *f = (*f + l).min(1.0));
+                // the culmination is sealed: injected water does not enter it
+                if let Some(c) = &self.reservoir.gas_cap {
+                    f.iter_mut().zip(&c.weight).for_each(|(f, w)| *f *= 1.0 - w);
+                }
                 f
             })
             .collect();
@@ -787,6 +872,9 @@ pub struct SynthField {
     pub well_rows: Vec<(String, f64, f64, String, Vec<f64>)>,
     /// Hydrocarbon pore volume per node at the base, m3.
     pub hcpv: Vec<f64>,
+    /// Masks of the well-free regions (`lobe`, and `gas_cap` when the field has it): name and
+    /// values, 1 inside and 0 outside, each nx*ny ([`reservoir::Reservoir::masks`]).
+    pub masks: Vec<(String, Vec<f64>)>,
 }
 
 /// Noise-free angle-stack traces of every node: `\[stack\]\[node * samples + k\]`.
@@ -1018,5 +1106,6 @@ pub fn generate(settings: &SynthSettings) -> Result<SynthField, SynthError> {
         wells: well_list,
         well_rows,
         hcpv,
+        masks: res.masks(),
     })
 }

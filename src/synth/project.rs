@@ -6,6 +6,7 @@
 //! maps/<step>/<attribute>.tif      attributes per step
 //! static/hcpv.tif                  hydrocarbon pore volume per node (m3)
 //! truth/<step>/<target>.tif        the true change at every node
+//! truth/masks/<region>.tif         1 inside a well-free region (lobe, gas_cap), 0 outside
 //! ```
 //!
 //! Every file goes through the atomic writer. The writer never replaces a file it did not write:
@@ -99,6 +100,9 @@ fn output_files(field: &SynthField) -> Vec<String> {
         for t in &field.target_names {
             files.push(format!("truth/{step}/{t}.tif"));
         }
+    }
+    for (name, _) in &field.masks {
+        files.push(format!("truth/masks/{name}.tif"));
     }
     files
 }
@@ -304,6 +308,13 @@ pub fn write_project(
                 ),
             )?;
         }
+    }
+    for (name, values) in &field.masks {
+        map(
+            format!("truth/masks/{name}.tif"),
+            values,
+            format!("{FIELD_NAME} synthetic: well-free region `{name}` (1 inside, 0 outside)"),
+        )?;
     }
     map(
         "static/hcpv.tif".into(),

@@ -9,7 +9,11 @@
 //! structure by its throw and separates two pressure compartments with their own oil-water contact.
 //! A thick, porous lobe in one corner of the oil leg is kept free of wells and has its own aquifer
 //! (see [`super::dynamics::lobe_sweep`]), so that predictions there are made away from the training
-//! data.
+//! data. Optionally a second well-free region, a small culmination elsewhere on the structure, is
+//! drained from beyond the survey ([`GasCap`]; its dynamics in [`super::dynamics`]).
+//!
+//! Both regions are written as masks beside the truth ([`Reservoir::masks`]): 1 where the region's
+//! weight is at least one half (within its radius), 0 elsewhere.
 
 use super::SynthSettings;
 use super::spectral::gaussian_field;
@@ -63,6 +67,26 @@ impl Fault {
     }
 }
 
+/// Wells keep out of a region's disc enlarged by this factor (the lobe and the culmination).
+pub const WELL_FREE_MARGIN: f64 = 1.35;
+
+/// Weight (0..1) of a round region with a smooth edge at normalised distance `d` (distance from
+/// the centre over the radius): one half on the rim.
+pub fn region_weight(d: f64) -> f64 {
+    1.0 / (1.0 + ((d - 1.0) / 0.12).exp())
+}
+
+/// The sealed culmination drained from beyond the survey (setting `gas_cap`).
+#[derive(Clone, Debug)]
+pub struct GasCap {
+    /// Weight (0..1) of the culmination at each node.
+    pub weight: Vec<f64>,
+    /// Centre, local m.
+    pub centre: (f64, f64),
+    /// Radius, m.
+    pub radius: f64,
+}
+
 /// The static model.
 #[derive(Clone, Debug)]
 pub struct Reservoir {
@@ -90,7 +114,9 @@ pub struct Reservoir {
     pub lobe_radius: f64,
     /// Crest of the dome, local m.
     pub crest: (f64, f64),
-    /// Nodes where no well may be placed (the lobe and a margin around it).
+    /// The drained culmination, when the field has one.
+    pub gas_cap: Option<GasCap>,
+    /// Nodes where no well may be placed (the lobe, the culmination and a margin around each).
     pub no_well: Vec<bool>,
     /// P-wave velocity of the cap shale above the reservoir, m/s.
     pub shale_vp: Vec<f64>,
@@ -155,6 +181,21 @@ impl Reservoir {
             .sum()
     }
 
+    /// Masks of the well-free regions, `(name, values)` with values 1 inside (weight at least one
+    /// half) and 0 outside, in node order: `lobe` (when `lobe_radius > 0`) and `gas_cap` (when
+    /// the field has the culmination).
+    pub fn masks(&self) -> Vec<(String, Vec<f64>)> {
+        let mask = |w: &[f64]| w.iter().map(|&v| f64::from(u8::from(v >= 0.5))).collect();
+        let mut out = Vec::new();
+        if self.lobe_radius > 0.0 {
+            out.push(("lobe".to_string(), mask(&self.lobe)));
+        }
+        if let Some(c) = &self.gas_cap {
+            out.push(("gas_cap".to_string(), mask(&c.weight)));
+        }
+        out
+    }
+
     /// Builds the static model from the settings (assumed checked).
     pub fn build(s: &SynthSettings) -> Reservoir {
         let (nx, ny, dx) = (s.nx, s.ny, s.spacing);
@@ -183,6 +224,12 @@ impl Reservoir {
         let (lx, ly) = (s.lobe_position[0] * width, s.lobe_position[1] * height);
         let lobe_radius = s.lobe_radius * width.min(height);
         let dip = s.dip_deg.to_radians().tan();
+        let (gx, gy) = (
+            s.gas_cap_position[0] * width,
+            s.gas_cap_position[1] * height,
+        );
+        let cap_radius = s.gas_cap_radius * width.min(height);
+        let mut cap_weight = vec![0.0; if s.gas_cap { n } else { 0 }];
 
         let mut structure = vec![0.0; n];
         let mut compartment = vec![0; n];
@@ -202,11 +249,17 @@ impl Reservoir {
                 }
             }
             let d = ((x - lx).powi(2) + (y - ly).powi(2)).sqrt() / lobe_radius.max(1e-9);
-            lobe[idx] = 1.0 / (1.0 + ((d - 1.0) / 0.12).exp());
+            lobe[idx] = region_weight(d);
             // a sand-rich lobe compacts less than the shales around it: a drape high over it
             z -= s.lobe_relief * lobe[idx];
+            no_well[idx] = d < WELL_FREE_MARGIN;
+            if s.gas_cap {
+                let dc = (x - gx).hypot(y - gy) / cap_radius;
+                cap_weight[idx] = region_weight(dc);
+                z -= s.gas_cap_relief * cap_weight[idx];
+                no_well[idx] |= dc < WELL_FREE_MARGIN;
+            }
             structure[idx] = z;
-            no_well[idx] = d < 1.35;
         }
 
         let mut sands = Vec::with_capacity(s.sands);
@@ -295,6 +348,11 @@ impl Reservoir {
             lobe_centre: (lx, ly),
             lobe_radius,
             crest: (xc, yc),
+            gas_cap: s.gas_cap.then_some(GasCap {
+                weight: cap_weight,
+                centre: (gx, gy),
+                radius: cap_radius,
+            }),
             no_well,
             shale_vp,
         }

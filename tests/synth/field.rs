@@ -488,6 +488,7 @@ fn synth_command_writes_a_project_and_refuses_a_non_empty_folder() {
         snr: Some(8.0),
         sands: Some(1),
         no_fault: true,
+        gas_cap: false,
         force,
     };
     let dir = tempfile::tempdir().unwrap();

@@ -5,3 +5,4 @@ mod dynamics;
 mod facts;
 mod field;
 mod physics;
+mod regions;

@@ -22,6 +22,7 @@
 //! conditional fit, so the final conditional model gives their `G`; it has seen other rows of the
 //! same wells (at other steps), a leak that nested folds would remove at several times the cost.
 
+use super::models::fit_models;
 use super::{STREAM_FOREST, derive_seed};
 use crate::calibrate::conformal::conformal_quantile;
 use crate::calibrate::error::CalibrateError;
@@ -80,6 +81,9 @@ pub struct HurdleModel {
     pub levels: (f64, f64, f64),
     /// Recalibration of the mixture's CDF for exceedance probabilities.
     pub recalibration: PitRecalibration,
+    /// A plain quantile forest on all rows (changed or not), kept as the uncalibrated reference
+    /// that scoring compares the mixture with; the maps never use it.
+    pub reference: Forest,
 }
 
 /// What the hurdle did, for `summary.json` and the report.
@@ -227,6 +231,8 @@ pub fn calibrate(
     };
     let p_change = cross_fit(&folds.of_row, &p_raw, &changed, data.weight, &prob_settings)?;
     let map = IsotonicMap::fit(&p_raw, &changed, Some(data.weight), &prob_settings)?;
+    let all: Vec<usize> = (0..n).collect();
+    let (reference, _) = fit_models(data, settings, &all, false, folds.count as u64)?;
     let g = |i: usize| CpsAt {
         cps: cond.cps,
         mid: cond.mid[i],
@@ -293,6 +299,7 @@ pub fn calibrate(
             map,
             levels,
             recalibration,
+            reference,
         },
         diagnostics,
         truth,

@@ -1,0 +1,459 @@
+//! Calibration bench: the uncertainty goals measured on generated fields with ground no well
+//! resembles, over several seeds.
+//!
+//! For each seed it generates a field with the well-free lobe and the drained culmination
+//! (`gas_cap`), runs the whole job through `tidemark::pipeline::run::run` (GeoTIFF maps only, no
+//! pictures or report), scores the maps against the truth (`tidemark::pipeline::score`) and
+//! prints, per target, the figures the goals are stated in: coverage of the band at nodes that
+//! changed, coverage and silent misses in each masked region, the mean P50 where nothing changed,
+//! the interval score and mean pinball loss of the calibrated band against the engine's own
+//! uncalibrated quantile forest (and the gain in %), and coverage in the bottom and top deciles of
+//! the truth. Each figure is shown as the mean over seeds with the smallest and largest value.
+//!
+//! With `--perturb EPS` every training attribute (the attributes sampled at the wells, not the
+//! step index) is multiplied by `1 + EPS u`, `u` uniform in [-1, 1] from a seeded generator, the
+//! model is fitted again on the perturbed rows and applied to the unperturbed nodes, and the bench
+//! reports how far node coverage and mean width moved.
+//!
+//! Run: `cargo run --release --example calib_bench -- [--seeds 1,2,3] [--nx 120] [--ny 100]
+//! [--wells 45] [--steps 4] [--snr 12] [--perturb 1e-6] [--json FILE] [--dir FOLDER]`.
+//! Fields and results are kept under FOLDER (default `target/calib_bench`), one folder per seed.
+
+use rand::{RngExt, SeedableRng, rngs::StdRng};
+use serde_json::{Value, json};
+use std::collections::BTreeMap;
+use std::path::{Path, PathBuf};
+use std::time::Instant;
+use tidemark::pipeline::fit;
+use tidemark::pipeline::outputs::{Formats, Writer, write_step_maps};
+use tidemark::pipeline::run::{self, RunOptions};
+use tidemark::pipeline::score::{BandFigures, SetFigures, TruthScore, score_with};
+use tidemark::pipeline::stages::Stages;
+use tidemark::sample;
+use tidemark::synth::{SynthSettings, generate, write_project};
+
+/// Command-line options.
+struct Options {
+    seeds: Vec<u64>,
+    nx: usize,
+    ny: usize,
+    wells: usize,
+    steps: usize,
+    snr: f64,
+    perturb: Option<f64>,
+    json: Option<PathBuf>,
+    dir: PathBuf,
+}
+
+fn usage() -> ! {
+    eprintln!(
+        "usage: calib_bench [--seeds 1,2,3] [--nx 120] [--ny 100] [--wells 45] [--steps 4] \
+         [--snr 12] [--perturb EPS] [--json FILE] [--dir FOLDER]"
+    );
+    std::process::exit(2)
+}
+
+fn parse() -> Options {
+    let mut o = Options {
+        seeds: vec![1, 2, 3],
+        nx: 120,
+        ny: 100,
+        wells: 45,
+        steps: 4,
+        snr: 12.0,
+        perturb: None,
+        json: None,
+        dir: PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("target/calib_bench"),
+    };
+    let mut args = std::env::args().skip(1);
+    while let Some(a) = args.next() {
+        let mut value = || args.next().unwrap_or_else(|| usage());
+        fn num<T: std::str::FromStr>(key: &str, v: String) -> T {
+            v.parse().unwrap_or_else(|_| {
+                eprintln!("{key}: cannot read `{v}`");
+                usage()
+            })
+        }
+        match a.as_str() {
+            "--seeds" => {
+                o.seeds = value()
+                    .split(',')
+                    .map(|s| num("--seeds", s.trim().to_string()))
+                    .collect()
+            }
+            "--nx" => o.nx = num("--nx", value()),
+            "--ny" => o.ny = num("--ny", value()),
+            "--wells" => o.wells = num("--wells", value()),
+            "--steps" => o.steps = num("--steps", value()),
+            "--snr" => o.snr = num("--snr", value()),
+            "--perturb" => o.perturb = Some(num("--perturb", value())),
+            "--json" => o.json = Some(PathBuf::from(value())),
+            "--dir" => o.dir = PathBuf::from(value()),
+            _ => usage(),
+        }
+    }
+    if o.seeds.is_empty() {
+        usage()
+    }
+    o
+}
+
+/// Fits the model on training attributes multiplied by `1 + eps u` (u uniform in [-1, 1], drawn
+/// in row and column order from `seed`), maps the unperturbed nodes into `out` and scores them.
+fn perturbed_run(
+    manifest: &Path,
+    field: &Path,
+    out: &Path,
+    eps: f64,
+    seed: u64,
+) -> Result<TruthScore, Box<dyn std::error::Error>> {
+    let survey = run::load(manifest)?;
+    let project = &survey.project;
+    let (mut ts, _) = sample::at_wells(&survey);
+    let n_attr = project.attribute_names.len();
+    let mut rng = StdRng::seed_from_u64(seed);
+    for r in 0..ts.x.nrows() {
+        for c in 0..n_attr {
+            let u: f64 = rng.random_range(-1.0..=1.0);
+            ts.x[[r, c]] *= 1.0 + eps * u;
+        }
+    }
+    let mut stages = Stages::new(true);
+    let (model, _) = fit::fit_model(&survey, &ts, project.model.seed, &mut stages)?;
+    if out.exists() {
+        std::fs::remove_dir_all(out)?;
+    }
+    let formats = Formats {
+        geotiff: true,
+        xyz: false,
+    };
+    let mut w = Writer::new(out, &project.input_paths(), formats)?;
+    let node_xy = project.grid.node_coordinates();
+    for (s, step) in project.steps.iter().enumerate() {
+        let x = sample::node_features(&survey, s);
+        let maps = model.predict(x.view(), &node_xy)?;
+        write_step_maps(&mut w, &model, &project.grid, &step.name, &maps)?;
+    }
+    model.save(&w.root.join("model.json"))?;
+    Ok(score_with(out, field, Some(manifest))?.0)
+}
+
+/// The goal figures of one target, by name, from its pooled band figures.
+fn figures(sets: &[SetFigures]) -> BTreeMap<String, f64> {
+    let mut f = BTreeMap::new();
+    let find = |name: &str| sets.iter().find(|s| s.name == name);
+    let cal = |s: Option<&SetFigures>, g: fn(&BandFigures) -> f64| {
+        s.and_then(|s| s.calibrated.as_ref()).map_or(f64::NAN, g)
+    };
+    let qrf = |s: Option<&SetFigures>, g: fn(&BandFigures) -> f64| {
+        s.and_then(|s| s.forest.as_ref()).map_or(f64::NAN, g)
+    };
+    let all = find("all");
+    f.insert("coverage all".into(), cal(all, |b| b.coverage));
+    f.insert("mean width all".into(), cal(all, |b| b.mean_width));
+    f.insert(
+        "coverage changed".into(),
+        cal(find("changed"), |b| b.coverage),
+    );
+    f.insert(
+        "forest coverage changed".into(),
+        qrf(find("changed"), |b| b.coverage),
+    );
+    for s in sets.iter().filter(|s| s.kind == "region") {
+        f.insert(format!("coverage {}", s.name), cal(Some(s), |b| b.coverage));
+        f.insert(
+            format!("silent misses {}", s.name),
+            cal(Some(s), |b| b.silent_misses),
+        );
+        f.insert(
+            format!("forest coverage {}", s.name),
+            qrf(Some(s), |b| b.coverage),
+        );
+    }
+    f.insert(
+        "mean P50 unchanged".into(),
+        cal(find("unchanged"), |b| b.mean_p50_unchanged),
+    );
+    f.insert(
+        "forest mean P50 unchanged".into(),
+        qrf(find("unchanged"), |b| b.mean_p50_unchanged),
+    );
+    f.insert("interval score".into(), cal(all, |b| b.interval_score));
+    f.insert(
+        "forest interval score".into(),
+        qrf(all, |b| b.interval_score),
+    );
+    f.insert(
+        "interval score gain %".into(),
+        all.and_then(|s| s.interval_score_gain_pct)
+            .unwrap_or(f64::NAN),
+    );
+    f.insert("pinball".into(), cal(all, |b| b.pinball_mean));
+    f.insert("forest pinball".into(), qrf(all, |b| b.pinball_mean));
+    f.insert(
+        "pinball gain %".into(),
+        all.and_then(|s| s.pinball_gain_pct).unwrap_or(f64::NAN),
+    );
+    f.insert("crps_3q".into(), cal(all, |b| b.crps_3q));
+    f.insert("forest crps_3q".into(), qrf(all, |b| b.crps_3q));
+    f.insert(
+        "coverage bottom decile".into(),
+        cal(find("bottom_decile"), |b| b.coverage),
+    );
+    f.insert(
+        "coverage top decile".into(),
+        cal(find("top_decile"), |b| b.coverage),
+    );
+    f
+}
+
+/// The order and goal of each printed figure (`None`: shown for reference).
+fn rows(regions: &[String]) -> Vec<(String, Option<&'static str>)> {
+    let mut r: Vec<(String, Option<&'static str>)> = vec![
+        ("coverage changed".into(), Some("0.80 +- 0.05")),
+        ("forest coverage changed".into(), None),
+    ];
+    for name in regions {
+        r.push((format!("coverage {name}"), None));
+        r.push((format!("forest coverage {name}"), None));
+        r.push((format!("silent misses {name}"), Some("<= 0.10")));
+    }
+    r.extend([
+        ("mean P50 unchanged".into(), Some("+-0.01 (dSw, dSg)")),
+        ("forest mean P50 unchanged".into(), None),
+        ("interval score".into(), None),
+        ("forest interval score".into(), None),
+        ("interval score gain %".into(), Some(">= 5")),
+        ("pinball".into(), None),
+        ("forest pinball".into(), None),
+        ("pinball gain %".into(), Some(">= 5")),
+        ("crps_3q".into(), None),
+        ("forest crps_3q".into(), None),
+        ("coverage bottom decile".into(), Some(">= 0.75")),
+        ("coverage top decile".into(), Some(">= 0.75")),
+        ("coverage all".into(), None),
+        ("mean width all".into(), None),
+    ]);
+    r
+}
+
+/// Mean, smallest and largest of the finite values (`NaN`s when none is finite).
+fn spread(v: &[f64]) -> (f64, f64, f64) {
+    let f: Vec<f64> = v.iter().copied().filter(|x| x.is_finite()).collect();
+    if f.is_empty() {
+        return (f64::NAN, f64::NAN, f64::NAN);
+    }
+    let mean = f.iter().sum::<f64>() / f.len() as f64;
+    let min = f.iter().copied().fold(f64::INFINITY, f64::min);
+    let max = f.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    (mean, min, max)
+}
+
+fn fmt(v: f64) -> String {
+    if !v.is_finite() {
+        "-".into()
+    } else if v != 0.0 && v.abs() < 1e-3 {
+        format!("{v:.1e}")
+    } else if v.abs() >= 100.0 {
+        format!("{v:.1}")
+    } else if v.abs() >= 1.0 {
+        format!("{v:.3}")
+    } else {
+        format!("{v:.4}")
+    }
+}
+
+fn json_num(v: f64) -> Value {
+    if v.is_finite() { json!(v) } else { Value::Null }
+}
+
+fn main() {
+    let o = parse();
+    std::fs::create_dir_all(&o.dir).expect("create the bench folder");
+    let mut per_seed: Vec<Value> = Vec::new();
+    // target -> figure -> one value per seed
+    let mut table: BTreeMap<String, BTreeMap<String, Vec<f64>>> = BTreeMap::new();
+    let mut regions: Vec<String> = Vec::new();
+    let mut target_order: Vec<String> = Vec::new();
+    for &seed in &o.seeds {
+        let settings = SynthSettings {
+            seed,
+            nx: o.nx,
+            ny: o.ny,
+            wells: o.wells,
+            steps: o.steps,
+            snr: o.snr,
+            gas_cap: true,
+            ..SynthSettings::default()
+        };
+        let root = o.dir.join(format!("seed-{seed}"));
+        let field_dir = root.join("field");
+        let results = root.join("results");
+        for d in [&field_dir, &results] {
+            if d.exists() {
+                std::fs::remove_dir_all(d).expect("clear an earlier run");
+            }
+        }
+        let t0 = Instant::now();
+        let field = generate(&settings).unwrap_or_else(|e| panic!("seed {seed}: {e}"));
+        write_project(&field, &settings, &field_dir).expect("write the field");
+        let t_synth = t0.elapsed().as_secs_f64();
+        let manifest = field_dir.join("project.toml");
+        let t1 = Instant::now();
+        let opts = RunOptions {
+            formats: Formats {
+                geotiff: true,
+                xyz: false,
+            },
+            pictures: false,
+            report: false,
+            ..RunOptions::new(&manifest, &results)
+        };
+        run::run(&opts).unwrap_or_else(|e| panic!("seed {seed}: run: {e}"));
+        let t_run = t1.elapsed().as_secs_f64();
+        let t2 = Instant::now();
+        let (score, _) = score_with(&results, &field_dir, Some(&manifest))
+            .unwrap_or_else(|e| panic!("seed {seed}: score: {e}"));
+        let t_score = t2.elapsed().as_secs_f64();
+        if let Some(note) = &score.forest_note {
+            eprintln!("seed {seed}: {note}");
+        }
+        regions = score.regions.iter().map(|r| r.name.clone()).collect();
+        let mut seed_targets = serde_json::Map::new();
+        let perturbed = o.perturb.map(|eps| {
+            let t3 = Instant::now();
+            let s = perturbed_run(
+                &manifest,
+                &field_dir,
+                &root.join("perturbed"),
+                eps,
+                seed ^ 0x9e37_79b9,
+            )
+            .unwrap_or_else(|e| panic!("seed {seed}: perturbed run: {e}"));
+            (s, t3.elapsed().as_secs_f64())
+        });
+        for t in &score.targets {
+            if !target_order.contains(&t.target) {
+                target_order.push(t.target.clone());
+            }
+            let mut f = figures(&t.pooled_figures);
+            if let Some((p, _)) = &perturbed {
+                let pt = p.targets.iter().find(|x| x.target == t.target).unwrap();
+                let pf = figures(&pt.pooled_figures);
+                let d_cov = pf["coverage all"] - f["coverage all"];
+                let d_width = 100.0 * (pf["mean width all"] / f["mean width all"] - 1.0);
+                let d_changed = pf["coverage changed"] - f["coverage changed"];
+                f.insert("perturbed: change of coverage all".into(), d_cov);
+                f.insert("perturbed: change of coverage changed".into(), d_changed);
+                f.insert("perturbed: change of mean width all %".into(), d_width);
+            }
+            let entry = table.entry(t.target.clone()).or_default();
+            for (k, v) in &f {
+                entry.entry(k.clone()).or_default().push(*v);
+            }
+            seed_targets.insert(
+                t.target.clone(),
+                Value::Object(f.iter().map(|(k, v)| (k.clone(), json_num(*v))).collect()),
+            );
+        }
+        eprintln!(
+            "seed {seed}: {} x {} nodes, {} steps, {} wells, {} well observations; synth {:.1} s, \
+             run {:.1} s, score {:.1} s{}",
+            o.nx,
+            o.ny,
+            o.steps,
+            field.wells.len(),
+            field.well_rows.len(),
+            t_synth,
+            t_run,
+            t_score,
+            perturbed
+                .as_ref()
+                .map_or(String::new(), |(_, s)| format!(", perturbed run {s:.1} s"))
+        );
+        per_seed.push(json!({
+            "seed": seed,
+            "wells": field.wells.len(),
+            "well_observations": field.well_rows.len(),
+            "seconds": {"synth": t_synth, "run": t_run, "score": t_score,
+                        "perturbed": perturbed.as_ref().map(|(_, s)| *s)},
+            "targets": seed_targets,
+        }));
+    }
+
+    println!(
+        "calibration bench: {} seeds ({}), {} x {} nodes, {} steps, {} wells, SNR {}, regions: {}{}",
+        o.seeds.len(),
+        o.seeds
+            .iter()
+            .map(|s| s.to_string())
+            .collect::<Vec<_>>()
+            .join(", "),
+        o.nx,
+        o.ny,
+        o.steps,
+        o.wells,
+        o.snr,
+        regions.join(", "),
+        o.perturb
+            .map_or(String::new(), |e| format!(", perturbation {e:e}"))
+    );
+    println!(
+        "all steps pooled; mean [min, max] over seeds; forest = the uncalibrated quantile forest"
+    );
+    let mut order = rows(&regions);
+    if o.perturb.is_some() {
+        order.push((
+            "perturbed: change of coverage all".into(),
+            Some("|.| <= 0.01"),
+        ));
+        order.push(("perturbed: change of coverage changed".into(), None));
+        order.push(("perturbed: change of mean width all %".into(), None));
+    }
+    let mut summary = serde_json::Map::new();
+    for target in &target_order {
+        let values = &table[target];
+        println!("\n{target}");
+        println!(
+            "  {:<40} {:>18} {:>9} {:>9} {:>9}   per seed",
+            "figure", "goal", "mean", "min", "max"
+        );
+        let mut tsum = serde_json::Map::new();
+        for (name, goal) in &order {
+            let Some(v) = values.get(name) else { continue };
+            let (mean, min, max) = spread(v);
+            println!(
+                "  {:<40} {:>18} {:>9} {:>9} {:>9}   {}",
+                name,
+                goal.unwrap_or(""),
+                fmt(mean),
+                fmt(min),
+                fmt(max),
+                v.iter().map(|x| fmt(*x)).collect::<Vec<_>>().join(" ")
+            );
+            tsum.insert(
+                name.clone(),
+                json!({"mean": json_num(mean), "min": json_num(min), "max": json_num(max),
+                       "goal": goal, "per_seed": v.iter().map(|x| json_num(*x)).collect::<Vec<_>>()}),
+            );
+        }
+        summary.insert(target.clone(), Value::Object(tsum));
+    }
+    if let Some(path) = &o.json {
+        let doc = json!({
+            "bench": "calib_bench",
+            "tidemark_version": env!("CARGO_PKG_VERSION"),
+            "settings": {"seeds": o.seeds, "nx": o.nx, "ny": o.ny, "wells": o.wells,
+                         "steps": o.steps, "snr": o.snr, "gas_cap": true, "perturb": o.perturb},
+            "regions": regions,
+            "summary": summary,
+            "per_seed": per_seed,
+        });
+        tidemark::io::atomic::write_bytes(
+            path,
+            serde_json::to_string_pretty(&doc).unwrap().as_bytes(),
+        )
+        .expect("write the JSON output");
+        println!("\nwritten {}", path.display());
+    }
+}
