@@ -93,7 +93,9 @@ impl std::fmt::Debug for CirculantField {
     }
 }
 
-/// Buffers reused from one simulation to the next (one per thread).
+/// Buffers reused from one simulation to the next (one per thread; one workspace can serve
+/// several simulators).
+#[derive(Default)]
 pub struct Workspace {
     torus: Vec<Complex<f64>>,
     rows: Vec<Complex<f64>>,
@@ -206,7 +208,10 @@ impl CirculantField {
         let max = lambda.iter().copied().fold(0.0, f64::max);
         let tol = 1e-9 * max;
         let negative_eigenvalues = lambda.iter().filter(|&&l| l < -tol).count();
-        let clipped: f64 = lambda.iter().filter(|&&l| l < 0.0).map(|l| -l).sum();
+        let clipped = lambda
+            .iter()
+            .filter(|&&l| l < 0.0)
+            .fold(0.0, |acc, l| acc - l);
         let covariance_error_bound = clipped / m;
         let message = (negative_eigenvalues > 0).then(|| {
             format!(
@@ -252,14 +257,26 @@ impl CirculantField {
 
     /// Fresh buffers for [`simulate_pair_into`](Self::simulate_pair_into).
     pub fn workspace(&self) -> Workspace {
+        let mut ws = Workspace::default();
+        self.fit_workspace(&mut ws);
+        ws
+    }
+
+    /// Grows `ws` to this simulator's sizes (never shrinks it), so one workspace can serve
+    /// several simulators.
+    fn fit_workspace(&self, ws: &mut Workspace) {
         let scratch = self
             .fft_y
             .get_inplace_scratch_len()
             .max(self.fft_x.get_inplace_scratch_len());
-        Workspace {
-            torus: vec![Complex::default(); self.mx * self.my],
-            rows: vec![Complex::default(); self.mx * self.lattice.ny],
-            scratch: vec![Complex::default(); scratch],
+        for (buf, len) in [
+            (&mut ws.torus, self.mx * self.my),
+            (&mut ws.rows, self.mx * self.lattice.ny),
+            (&mut ws.scratch, scratch),
+        ] {
+            if buf.len() < len {
+                buf.resize(len, Complex::default());
+            }
         }
     }
 
@@ -277,18 +294,22 @@ impl CirculantField {
     pub fn simulate_pair_into(&self, seed: u64, ws: &mut Workspace, a: &mut [f64], b: &mut [f64]) {
         let (nx, ny) = (self.lattice.nx, self.lattice.ny);
         assert!(a.len() == nx * ny && b.len() == nx * ny, "field buffers must hold nx * ny values");
+        self.fit_workspace(ws);
+        let m = self.mx * self.my;
+        let torus = &mut ws.torus[..m];
+        let rows = &mut ws.rows[..self.mx * ny];
         let mut rng = StdRng::seed_from_u64(seed);
-        for (t, &s) in ws.torus.iter_mut().zip(&self.scale) {
+        for (t, &s) in torus.iter_mut().zip(&self.scale) {
             let re: f64 = rng.sample(StandardNormal);
             let im: f64 = rng.sample(StandardNormal);
             *t = Complex::new(s * re, s * im);
         }
         // all columns along y, then only the rows that lie on the lattice along x
-        self.fft_y.process_with_scratch(&mut ws.torus, &mut ws.scratch);
-        transpose(&ws.torus, &mut ws.rows, self.mx, self.my, ny);
-        self.fft_x.process_with_scratch(&mut ws.rows, &mut ws.scratch);
+        self.fft_y.process_with_scratch(torus, &mut ws.scratch);
+        transpose(torus, rows, self.mx, self.my, ny);
+        self.fft_x.process_with_scratch(rows, &mut ws.scratch);
         for j in 0..ny {
-            let src = &ws.rows[j * self.mx..j * self.mx + nx];
+            let src = &rows[j * self.mx..j * self.mx + nx];
             for (i, v) in src.iter().enumerate() {
                 a[j * nx + i] = v.re;
                 b[j * nx + i] = v.im;

@@ -265,8 +265,21 @@ impl Conditioning {
             .map(|(&(i, j), d)| d - field[j * lat.nx + i])
             .collect();
         cholesky_solve(&self.chol, n, &mut r);
+        // four wells per pass over a row: one read-modify-write of the row per four wells
+        let nodes4 = self.nodes.chunks_exact(4);
+        let r4 = r.chunks_exact(4);
+        let (rest_nodes, rest_r) = (nodes4.remainder(), r4.remainder());
         for (j, row) in field.chunks_mut(lat.nx).enumerate() {
-            for (&(iw, jw), &rw) in self.nodes.iter().zip(&r) {
+            for (nd, rw) in self.nodes.chunks_exact(4).zip(r.chunks_exact(4)) {
+                let t0 = self.table.row(j, nd[0].0, nd[0].1);
+                let t1 = self.table.row(j, nd[1].0, nd[1].1);
+                let t2 = self.table.row(j, nd[2].0, nd[2].1);
+                let t3 = self.table.row(j, nd[3].0, nd[3].1);
+                for ((((v, a), b), c), d) in row.iter_mut().zip(t0).zip(t1).zip(t2).zip(t3) {
+                    *v += (rw[0] * a + rw[1] * b) + (rw[2] * c + rw[3] * d);
+                }
+            }
+            for (&(iw, jw), &rw) in rest_nodes.iter().zip(rest_r) {
                 for (v, c) in row.iter_mut().zip(self.table.row(j, iw, jw)) {
                     *v += rw * c;
                 }

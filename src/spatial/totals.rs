@@ -680,14 +680,7 @@ struct Engine<'a> {
 }
 
 impl<'a> Engine<'a> {
-    fn workspaces(&self) -> Vec<Option<Workspace>> {
-        self.sims
-            .iter()
-            .map(|s| s.as_ref().map(|s| s.workspace()))
-            .collect()
-    }
-
-    fn run_pair(&self, ws: &mut [Option<Workspace>], p: usize) -> PairResult {
+    fn run_pair(&self, ws: &mut Workspace, p: usize) -> PairResult {
         let r_total = self.settings.realizations;
         let reals: Vec<usize> = [2 * p, 2 * p + 1]
             .into_iter()
@@ -715,10 +708,9 @@ impl<'a> Engine<'a> {
         }
         for (f, sim) in self.sims.iter().enumerate() {
             let Some(sim) = sim else { continue };
-            let w = ws[f].as_mut().expect("a workspace per simulated field");
             sim.simulate_pair_into(
                 derive_seed(self.settings.seed, &[STREAM_FIELD, f as u64, p as u64]),
-                w,
+                ws,
                 &mut a,
                 &mut b,
             );
@@ -1033,7 +1025,7 @@ pub fn simulate(
         let end = (start + settings.chunk).min(pairs);
         let results: Vec<PairResult> = (start..end)
             .into_par_iter()
-            .map_init(|| engine.workspaces(), |ws, p| engine.run_pair(ws, p))
+            .map_init(Workspace::default, |ws, p| engine.run_pair(ws, p))
             .collect();
         for (k, res) in results.into_iter().enumerate() {
             let p = start + k;
