@@ -312,7 +312,9 @@ fn main() {
                 Convention::Percentile => "percentile",
                 Convention::Exceedance => "exceedance",
             };
-            println!("  totals at m4 ({label} convention): P10 / P50 / P90 | comonotone | independent");
+            println!(
+                "  totals at m4 ({label} convention): P10 / P50 / P90 | comonotone | independent"
+            );
             for q in out.quantities.iter().filter(|q| q.step == "m4") {
                 let i = q.independent.expect("independent rule on");
                 println!(

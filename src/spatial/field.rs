@@ -138,7 +138,13 @@ fn dft2(
 
 /// Copies rows `0..rows` of the row-major view of column-major `src` (`cols x height`, element
 /// `(col, row)` at `col * height + row`) into row-major `dst` (`row * cols + col`), in blocks.
-fn transpose(src: &[Complex<f64>], dst: &mut [Complex<f64>], cols: usize, height: usize, rows: usize) {
+fn transpose(
+    src: &[Complex<f64>],
+    dst: &mut [Complex<f64>],
+    cols: usize,
+    height: usize,
+    rows: usize,
+) {
     const B: usize = 16;
     for c0 in (0..cols).step_by(B) {
         let c1 = (c0 + B).min(cols);
@@ -293,7 +299,10 @@ impl CirculantField {
     /// The same seed gives the same fields whatever `ws` held before.
     pub fn simulate_pair_into(&self, seed: u64, ws: &mut Workspace, a: &mut [f64], b: &mut [f64]) {
         let (nx, ny) = (self.lattice.nx, self.lattice.ny);
-        assert!(a.len() == nx * ny && b.len() == nx * ny, "field buffers must hold nx * ny values");
+        assert!(
+            a.len() == nx * ny && b.len() == nx * ny,
+            "field buffers must hold nx * ny values"
+        );
         self.fit_workspace(ws);
         let m = self.mx * self.my;
         let torus = &mut ws.torus[..m];

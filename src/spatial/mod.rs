@@ -64,7 +64,9 @@ pub enum SpatialError {
     },
     /// The covariance matrix of the wells could not be factorised even with the largest
     /// regularisation tried.
-    #[error("the covariance matrix of the wells of {layer} is not positive definite (tried a diagonal regularisation up to {jitter})")]
+    #[error(
+        "the covariance matrix of the wells of {layer} is not positive definite (tried a diagonal regularisation up to {jitter})"
+    )]
     NotPositiveDefinite {
         /// The layer whose wells were being used.
         layer: String,

@@ -922,7 +922,11 @@ pub fn simulate(
     let used: Vec<bool> = (0..input.fields.len())
         .map(|f| input.layers.iter().any(|l| l.field == f))
         .collect();
-    let units: Vec<VariogramModel> = input.fields.iter().map(|f| f.model.unit_variance()).collect();
+    let units: Vec<VariogramModel> = input
+        .fields
+        .iter()
+        .map(|f| f.model.unit_variance())
+        .collect();
     let sims: Vec<Option<CirculantField>> = units
         .iter()
         .zip(&used)
@@ -1151,16 +1155,16 @@ fn comonotone_total(
             direction,
         } => {
             let count = (0..lattice.len())
-                .filter(|&i| {
-                    layer.active[i] && crosses(direction, dist.quantile(i, u), threshold)
-                })
+                .filter(|&i| layer.active[i] && crosses(direction, dist.quantile(i, u), threshold))
                 .count();
             count as f64 * lattice.cell_area() * scale
         }
-        Measure::Sum { weights } => (0..lattice.len())
-            .filter(|&i| layer.active[i] && weights[i].is_finite())
-            .map(|i| weights[i] * dist.quantile(i, u))
-            .sum::<f64>()
-            * scale,
+        Measure::Sum { weights } => {
+            (0..lattice.len())
+                .filter(|&i| layer.active[i] && weights[i].is_finite())
+                .map(|i| weights[i] * dist.quantile(i, u))
+                .sum::<f64>()
+                * scale
+        }
     }
 }

@@ -348,11 +348,9 @@ fn fit_kind(kind: ModelKind, lags: &[FitLag]) -> Option<Candidate> {
     let step_p = 1.0 / (NP - 1) as f64;
     let mut s_best = best.0;
     for _ in 0..4 {
-        let la_new = golden(
-            (la - step_a).max(la_lo),
-            (la + step_a).min(la_hi),
-            |x| eval(x, phi),
-        );
+        let la_new = golden((la - step_a).max(la_lo), (la + step_a).min(la_hi), |x| {
+            eval(x, phi)
+        });
         let s = eval(la_new, phi);
         if s <= s_best {
             la = la_new;
