@@ -16,7 +16,10 @@
 //! node from a table of the covariance by lag `(di, dj)` (on a lattice the covariance between a node
 //! and a well node depends only on their index offsets), so the kriging weights `C_ww^-1 k(x)` are
 //! never stored: memory stays `O(nodes)` instead of `O(nodes x wells)`, at the same
-//! `nodes x wells` multiply-adds per realization.
+//! `nodes x wells` multiply-adds per realization. Since the correction is linear,
+//! `z_c = [z_u - k' C^-1 z_u(w)] + k' C^-1 z_w`: the second term (the kriged data) is computed once
+//! per set of wells, and the first (the kriging residual of the realization) once per realization
+//! for all sets of wells on the same nodes, e.g. the steps of a target measured at the same wells.
 //!
 //! **Regularisation.** `1e-10` (a ten-billionth of the unit variance) is added to the diagonal of
 //! `C_ww` before factorising, and multiplied by ten up to `1e-4` while the factorisation fails (two
@@ -121,6 +124,8 @@ pub struct Conditioning {
     data: Vec<f64>,
     /// Lower Cholesky factor of `C_ww + jitter I`, row-major `n x n`.
     chol: Vec<f64>,
+    /// Simple-kriging estimate of the data at every node (empty without wells).
+    mean: Vec<f64>,
     report: ConditioningReport,
 }
 
@@ -231,13 +236,20 @@ impl Conditioning {
             jitter *= 10.0;
         };
         report.jitter = jitter;
-        Ok(Conditioning {
+        let mut cond = Conditioning {
             table,
             nodes,
             data,
             chol,
+            mean: Vec::new(),
             report,
-        })
+        };
+        if n > 0 {
+            let mut mean = vec![0.0; lat.len()];
+            cond.add_kriged(cond.data.clone(), &mut mean);
+            cond.mean = mean;
+        }
+        Ok(cond)
     }
 
     /// What happened to the wells.
@@ -253,17 +265,53 @@ impl Conditioning {
     /// Conditions `field` (an unconditioned realization, `j * nx + i`) to the wells in place.
     pub fn apply(&self, field: &mut [f64]) {
         let lat = self.table.lattice();
-        let n = self.nodes.len();
-        if n == 0 {
+        if self.nodes.is_empty() {
             return;
         }
         assert_eq!(field.len(), lat.len(), "field length must be nx * ny");
-        let mut r: Vec<f64> = self
+        let r: Vec<f64> = self
             .nodes
             .iter()
             .zip(&self.data)
             .map(|(&(i, j), d)| d - field[j * lat.nx + i])
             .collect();
+        self.add_kriged(r, field);
+    }
+
+    /// Replaces `field` by its simple-kriging residual `z_u(x) - k(x)' C_ww^-1 z_u(w)` (zero at
+    /// the well nodes). [`apply`](Self::apply) equals this plus
+    /// [`kriged_mean`](Self::kriged_mean), so sets of wells on the same nodes (the steps of a
+    /// target measured at the same wells) can share one residual per realization.
+    pub fn residual(&self, field: &mut [f64]) {
+        let lat = self.table.lattice();
+        if self.nodes.is_empty() {
+            return;
+        }
+        assert_eq!(field.len(), lat.len(), "field length must be nx * ny");
+        let r: Vec<f64> = self
+            .nodes
+            .iter()
+            .map(|&(i, j)| -field[j * lat.nx + i])
+            .collect();
+        self.add_kriged(r, field);
+    }
+
+    /// The simple-kriging estimate `k(x)' C_ww^-1 z_w` of the wells' scores at every node
+    /// (`None` without wells, where it is zero).
+    pub fn kriged_mean(&self) -> Option<&[f64]> {
+        (!self.nodes.is_empty()).then_some(&self.mean[..])
+    }
+
+    /// True when both use the same well nodes in the same order on the same lattice and
+    /// covariance table, so that their residuals are the same.
+    pub fn same_nodes(&self, other: &Conditioning) -> bool {
+        Arc::ptr_eq(&self.table, &other.table) && self.nodes == other.nodes
+    }
+
+    /// Adds `k(x)' C_ww^-1 r` to `field` at every node.
+    fn add_kriged(&self, mut r: Vec<f64>, field: &mut [f64]) {
+        let lat = self.table.lattice();
+        let n = self.nodes.len();
         cholesky_solve(&self.chol, n, &mut r);
         // four wells per pass over a row: one read-modify-write of the row per four wells
         let nodes4 = self.nodes.chunks_exact(4);

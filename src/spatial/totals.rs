@@ -4,7 +4,9 @@
 //! scores) pair `p` of realizations is one circulant-embedding simulation (real and imaginary
 //! parts: realizations `2p` and `2p + 1`) seeded by `(seed, field, p)`. Each layer (a target at a
 //! step, with its own wells and node distributions) conditions the field to its wells by simple
-//! kriging and maps every node through its predictive distribution: `y = Q_node(Phi(z))`. The
+//! kriging (the kriging residual of the realization is shared by layers whose wells sit on the
+//! same nodes; see [`super::krige`]) and maps every node through its predictive distribution:
+//! `y = Q_node(Phi(z))`. The
 //! steps of one target share the unconditioned field and differ by their conditioning data, so a
 //! realization is coherent over time; a total concerns one target at one step, so that sharing does
 //! not change any total's distribution. Fields are rescaled to unit variance, so `Phi(z)` is
@@ -714,13 +716,36 @@ impl<'a> Engine<'a> {
                 &mut a,
                 &mut b,
             );
-            for (li, layer) in self.layers.iter().enumerate() {
-                if layer.field != f {
-                    continue;
-                }
-                for (t, &r) in reals.iter().enumerate() {
-                    z.copy_from_slice(if t == 0 { &a } else { &b });
-                    layer.conditioning.apply(&mut z);
+            for (t, &r) in reals.iter().enumerate() {
+                let base = if t == 0 { &a } else { &b };
+                // kriging residuals of this realization, one per distinct set of well nodes
+                let mut residuals: Vec<(usize, Vec<f64>)> = Vec::new();
+                for (li, layer) in self.layers.iter().enumerate() {
+                    if layer.field != f {
+                        continue;
+                    }
+                    let cond = &layer.conditioning;
+                    let k = match residuals
+                        .iter()
+                        .position(|(o, _)| self.layers[*o].conditioning.same_nodes(cond))
+                    {
+                        Some(k) => k,
+                        None => {
+                            let mut res = base.clone();
+                            cond.residual(&mut res);
+                            residuals.push((li, res));
+                            residuals.len() - 1
+                        }
+                    };
+                    let res = &residuals[k].1;
+                    match cond.kriged_mean() {
+                        Some(mean) => {
+                            for ((zi, ri), mi) in z.iter_mut().zip(res).zip(mean) {
+                                *zi = ri + mi;
+                            }
+                        }
+                        None => z.copy_from_slice(res),
+                    }
                     self.evaluate(li, layer, &z, r, t, area_offsets[li], &mut out);
                 }
             }

@@ -167,3 +167,41 @@ fn conditioned_realizations_have_the_simple_kriging_distribution() {
         );
     }
 }
+
+#[test]
+fn conditioning_is_the_kriging_residual_plus_the_kriged_data() {
+    // z_c = z_u + k' C^-1 (z_w - z_u(w)) = [z_u - k' C^-1 z_u(w)] + k' C^-1 z_w (linearity)
+    let lat = Lattice::new(30, 25, 20.0, 20.0);
+    let model = VariogramModel {
+        kind: ModelKind::Matern32,
+        nugget: 0.05,
+        sill: 1.0,
+        range: 200.0,
+    };
+    let table = Arc::new(LagTable::new(lat, &model).unwrap());
+    let step1 = vec![well("A", 100.0, 100.0, 1.0), well("B", 400.0, 300.0, -0.5)];
+    let step2 = vec![well("A", 100.0, 100.0, -0.2), well("B", 400.0, 300.0, 0.9)];
+    let c1 = Conditioning::new("m1", table.clone(), &step1).unwrap();
+    let c2 = Conditioning::new("m2", table.clone(), &step2).unwrap();
+    assert!(c1.same_nodes(&c2));
+    let other = Arc::new(LagTable::new(lat, &model).unwrap());
+    assert!(!c1.same_nodes(&Conditioning::new("m1", other, &step1).unwrap()));
+    let sim = CirculantField::new(lat, model, EmbeddingSettings::default()).unwrap();
+    let (z, _) = sim.simulate_pair(8);
+    let mut res = z.clone();
+    c1.residual(&mut res);
+    for c in [&c1, &c2] {
+        let mut direct = z.clone();
+        c.apply(&mut direct);
+        let mean = c.kriged_mean().unwrap();
+        for ((d, r), m) in direct.iter().zip(&res).zip(mean) {
+            assert!((d - (r + m)).abs() < 1e-12);
+        }
+        for ((i, j), s) in c.data() {
+            assert!(res[j * lat.nx + i].abs() < 1e-8);
+            assert!((mean[j * lat.nx + i] - s).abs() < 1e-8);
+        }
+    }
+    let none = Conditioning::new("m3", table, &[]).unwrap();
+    assert!(none.kriged_mean().is_none());
+}
