@@ -12,6 +12,7 @@
 //! - [`applicability`]: dissimilarity index and area of applicability, training-range checks.
 //! - [`decide`]: risked infill-target ranking.
 //! - [`synth`]: the physics-based synthetic time-lapse field generator.
+//! - [`spatial`]: error variograms from the wells, correlated realizations and field totals.
 //! - [`report`]: PNG pictures and the self-contained HTML review page.
 //! - [`pipeline`]: the main job, end to end (`run`, `predict`, `score`).
 //! - [`cli`]: one module per subcommand; `main.rs` only dispatches.
@@ -29,4 +30,5 @@ pub mod pipeline;
 pub mod project;
 pub mod report;
 pub mod sample;
+pub mod spatial;
 pub mod synth;

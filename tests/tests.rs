@@ -6,4 +6,5 @@ mod ensemble;
 mod foundation;
 mod pipeline;
 mod report;
+mod spatial;
 mod synth;
