@@ -5,4 +5,5 @@ mod ensemble;
 mod foundation;
 mod pipeline;
 mod report;
+mod skill;
 mod synth;
