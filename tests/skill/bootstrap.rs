@@ -13,6 +13,9 @@ const ROWS: [(usize, f64, f64, f64, f64); 6] = [
     (2, 11.0, 10.0, 0.9, 1.2),
 ];
 
+/// Truth, prediction, model CRPS, climatology CRPS, well and weight columns.
+type Columns = (Vec<f64>, Vec<f64>, Vec<f64>, Vec<f64>, Vec<usize>, Vec<f64>);
+
 /// Scores of the rows of the wells listed (with repeats), computed by expanding the rows.
 fn scores_of(wells: &[usize]) -> (f64, f64) {
     let rows: Vec<_> = wells
@@ -34,9 +37,7 @@ fn quantile_of_atoms(atoms: &[f64], q: f64) -> f64 {
     v[k - 1]
 }
 
-fn input_of<'a>(
-    cols: &'a (Vec<f64>, Vec<f64>, Vec<f64>, Vec<f64>, Vec<usize>, Vec<f64>),
-) -> SkillInput<'a> {
+fn input_of<'a>(cols: &'a Columns) -> SkillInput<'a> {
     SkillInput {
         truth: &cols.0,
         prediction: &cols.1,
@@ -47,7 +48,7 @@ fn input_of<'a>(
     }
 }
 
-fn columns() -> (Vec<f64>, Vec<f64>, Vec<f64>, Vec<f64>, Vec<usize>, Vec<f64>) {
+fn columns() -> Columns {
     (
         ROWS.iter().map(|r| r.1).collect(),
         ROWS.iter().map(|r| r.2).collect(),
