@@ -1,5 +1,6 @@
 //! Integration tests, compiled as one binary. Each area keeps its tests in its own folder.
 
+mod applicability;
 mod calibrate;
 mod ensemble;
 mod foundation;
