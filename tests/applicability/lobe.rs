@@ -41,14 +41,13 @@ fn ground_check_finds_the_lobe() {
         .collect();
     let a = ground.assess(&nodes, node_histories(&field.attributes, grid.len()).view());
     let (mut tp, mut flagged, mut in_lobe, mut near, mut near_inside) = (0, 0, 0, 0, 0);
-    for i in 0..grid.len() {
-        let f = a.unlike[i];
+    for ((&f, &l), &d) in a.unlike.iter().zip(&lobe).zip(&a.distance) {
         flagged += usize::from(f);
-        if lobe[i] {
+        if l {
             in_lobe += 1;
             tp += usize::from(f);
         }
-        if a.distance[i] <= 1.0 {
+        if d <= 1.0 {
             near += 1;
             near_inside += usize::from(!f);
         }
