@@ -14,7 +14,38 @@
 //!
 //! A per-attribute training-range check complements the index: a node whose attribute lies outside
 //! the range seen at the wells is flagged even when its DI is small.
+//!
+//! # Ground the wells do not sample ([`Ground`])
+//!
+//! The index above compares one row (one node at one step) with the training rows. On generated
+//! fields a well-free region with its own history (the synthetic lobe) falls mostly inside that
+//! area: at any one step its attributes lie within what the wells show. [`Ground`] adds a check of
+//! the location as a whole, from two distances:
+//!
+//! - `g`, the distance from the node to the nearest well in units of the well spacing (the median
+//!   distance from a well to its nearest neighbour), the geographic distance that nearest-neighbour
+//!   distance matching compares with the distances seen in cross-validation (Milà, Mateu, Pebesma &
+//!   Meyer 2022, "Nearest neighbour distance matching Leave-One-Out Cross-Validation for map
+//!   validation", Methods in Ecology and Evolution 13:1304-1316);
+//! - `h`, the dissimilarity index of Meyer & Pebesma (2021) computed on the location's attribute
+//!   history: every attribute at every step, each standardised with the wells' mean and standard
+//!   deviation at that step, nearest well divided by the mean distance between wells.
+//!
+//! The score is `g h^2`: a location is unlike the ground the wells sample when it is both far from
+//! them and unlike their histories; `h` enters squared because on the generated fields attribute
+//! dissimilarity separated the lobe from the rest of the well-free ground better than distance
+//! alone did (see DEVELOPERS.md for the measurements). As in Meyer & Pebesma (2021), the threshold
+//! is the upper whisker of the scores the wells get in cross-validation: each well against the
+//! wells outside its fold.
+//!
+//! # Why a node is flagged ([`Applicability::reasons`])
+//!
+//! Each node gets one code: [`REASON_INSIDE`] (0) inside the area; [`REASON_UNLIKE`] (1) unlike
+//! every well (the row's DI above the threshold, or the location flagged by [`Ground`]);
+//! [`REASON_RANGE`] (2) some attribute outside the training range; [`REASON_BOTH`] (3) both;
+//! [`REASON_NO_DATA`] (255) an attribute is missing, so nothing is predicted there.
 
+use crate::grid::Grid;
 use ndarray::{Array2, ArrayView2, Axis};
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
@@ -274,6 +305,301 @@ impl Applicability {
             di,
             outside_range,
             inside,
+        }
+    }
+}
+
+/// Reason code: inside the area of applicability.
+pub const REASON_INSIDE: u8 = 0;
+/// Reason code: unlike every well (dissimilarity index above the threshold, or ground the wells do
+/// not sample).
+pub const REASON_UNLIKE: u8 = 1;
+/// Reason code: at least one checked attribute outside the range seen at the wells.
+pub const REASON_RANGE: u8 = 2;
+/// Reason code: both unlike every well and outside the training range.
+pub const REASON_BOTH: u8 = 3;
+/// Reason code: an attribute is missing at the node (no prediction is made there).
+pub const REASON_NO_DATA: u8 = 255;
+
+/// Combines the two reasons into one code (see the module documentation).
+pub fn reason_code(unlike: bool, outside_range: bool) -> u8 {
+    u8::from(unlike) | (u8::from(outside_range) << 1)
+}
+
+impl Applicability {
+    /// Why each row of `a` is flagged: one reason code per row ([`REASON_INSIDE`],
+    /// [`REASON_UNLIKE`], [`REASON_RANGE`], [`REASON_BOTH`], or [`REASON_NO_DATA`] where the DI is
+    /// undefined). `ground`, when given, holds one flag per row from [`Ground::assess`] (rows in
+    /// the same node order) and counts as "unlike every well". A row is inside exactly when its
+    /// code is [`REASON_INSIDE`]; without `ground` that agrees with [`Assessment::inside`].
+    ///
+    /// # Panics
+    /// If `ground` is given with a length other than the number of rows.
+    pub fn reasons(&self, a: &Assessment, ground: Option<&[bool]>) -> Vec<u8> {
+        if let Some(g) = ground {
+            assert_eq!(g.len(), a.di.len(), "one ground flag per row");
+        }
+        a.di.iter()
+            .zip(&a.outside_range)
+            .enumerate()
+            .map(|(r, (&di, &out))| {
+                if !di.is_finite() {
+                    return REASON_NO_DATA;
+                }
+                let unlike = di > self.threshold || ground.is_some_and(|g| g[r]);
+                reason_code(unlike, out > 0)
+            })
+            .collect()
+    }
+}
+
+/// The attribute history of every node: one row per node (index order), the columns step by step,
+/// each step's attributes in order (`maps[step][attribute][node]`). Missing values stay `NaN`.
+pub fn node_histories(maps: &[Vec<Vec<f64>>], n_nodes: usize) -> Array2<f64> {
+    let cols: Vec<&Vec<f64>> = maps.iter().flatten().collect();
+    let mut x = Array2::from_elem((n_nodes, cols.len()), f64::NAN);
+    for (c, map) in cols.iter().enumerate() {
+        for (r, &v) in map.iter().enumerate().take(n_nodes) {
+            x[[r, c]] = v;
+        }
+    }
+    x
+}
+
+/// The attribute history at a point: every map of [`node_histories`]'s columns interpolated
+/// bilinearly at `(x, y)` ([`Grid::bilinear`]); `NaN` outside the grid or next to a null node.
+pub fn history_at(maps: &[Vec<Vec<f64>>], grid: &Grid, x: f64, y: f64) -> Vec<f64> {
+    maps.iter()
+        .flatten()
+        .map(|m| grid.bilinear(m, x, y).unwrap_or(f64::NAN))
+        .collect()
+}
+
+/// The well spacing: the median distance from a well to its nearest neighbour (upper median for
+/// an even count). `NaN` with fewer than two distinct positions.
+pub fn well_spacing(xy: &[[f64; 2]]) -> f64 {
+    let nn: Vec<f64> = (0..xy.len())
+        .map(|a| {
+            (0..xy.len())
+                .filter(|&b| b != a)
+                .map(|b| planar(xy[a], xy[b]))
+                .fold(f64::INFINITY, f64::min)
+        })
+        .filter(|d| d.is_finite() && *d > 0.0)
+        .collect();
+    if nn.is_empty() {
+        return f64::NAN;
+    }
+    let mut s = nn;
+    s.sort_by(f64::total_cmp);
+    s[s.len() / 2]
+}
+
+fn planar(a: [f64; 2], b: [f64; 2]) -> f64 {
+    ((a[0] - b[0]).powi(2) + (a[1] - b[1]).powi(2)).sqrt()
+}
+
+/// Ground the wells do not sample: distance to the wells in well spacings combined with the
+/// dissimilarity of the location's attribute history (module documentation). Serialisable.
+#[derive(Clone, Debug, Serialize, Deserialize)]
+pub struct Ground {
+    /// Well spacing (median nearest-neighbour distance between wells), map units.
+    pub spacing: f64,
+    /// Well positions.
+    pub wells_xy: Vec<[f64; 2]>,
+    /// Mean of each history column over the wells.
+    pub mean: Vec<f64>,
+    /// Standard deviation of each history column over the wells (1 where constant).
+    pub scale: Vec<f64>,
+    /// Standardised well histories, wells x columns, row-major.
+    pub wells: Vec<f64>,
+    /// Mean distance between well histories.
+    pub mean_distance: f64,
+    /// Power of the history dissimilarity in the score `g h^exponent`.
+    pub exponent: f64,
+    /// Cross-validated score of each well (against wells outside its fold).
+    pub train_score: Vec<f64>,
+    /// Threshold: upper whisker of `train_score`.
+    pub threshold: f64,
+}
+
+/// What [`Ground`] says about each node.
+#[derive(Clone, Debug, Default)]
+pub struct GroundAssessment {
+    /// Distance to the nearest well, in well spacings.
+    pub distance: Vec<f64>,
+    /// Dissimilarity index of the attribute history (`NaN` where a value is missing).
+    pub dissimilarity: Vec<f64>,
+    /// Score `distance * dissimilarity^exponent`.
+    pub score: Vec<f64>,
+    /// True where the score exceeds the threshold (never where it is undefined).
+    pub unlike: Vec<bool>,
+}
+
+impl Ground {
+    /// Default power of the history dissimilarity in the score.
+    pub const EXPONENT: f64 = 2.0;
+
+    /// Fits the model on the wells: one position, one attribute history ([`history_at`]) and one
+    /// cross-validation fold per well. Wells with a missing history value are left out of the
+    /// history part but still count for distances. Needs at least two wells with a full history
+    /// at distinct positions.
+    pub fn fit(
+        wells_xy: &[[f64; 2]],
+        histories: ArrayView2<f64>,
+        fold: &[usize],
+    ) -> Result<Self, ApplicabilityError> {
+        Self::fit_with_exponent(wells_xy, histories, fold, Self::EXPONENT)
+    }
+
+    /// [`Ground::fit`] with another power of the history dissimilarity in the score (0 gives
+    /// distance alone).
+    pub fn fit_with_exponent(
+        wells_xy: &[[f64; 2]],
+        histories: ArrayView2<f64>,
+        fold: &[usize],
+        exponent: f64,
+    ) -> Result<Self, ApplicabilityError> {
+        let n = wells_xy.len();
+        for (what, got) in [
+            ("well histories", histories.nrows()),
+            ("fold per well", fold.len()),
+        ] {
+            if got != n {
+                return Err(ApplicabilityError::Shape {
+                    what,
+                    expected: n,
+                    got,
+                });
+            }
+        }
+        let full: Vec<usize> = (0..n)
+            .filter(|&w| histories.row(w).iter().all(|v| v.is_finite()))
+            .collect();
+        if full.len() < 2 {
+            return Err(ApplicabilityError::TooFewRows(full.len()));
+        }
+        let spacing = well_spacing(wells_xy);
+        if !spacing.is_finite() {
+            return Err(ApplicabilityError::Degenerate);
+        }
+        let q = histories.ncols();
+        let m = full.len() as f64;
+        let mean: Vec<f64> = (0..q)
+            .map(|c| full.iter().map(|&w| histories[[w, c]]).sum::<f64>() / m)
+            .collect();
+        let scale: Vec<f64> = (0..q)
+            .map(|c| {
+                let v = full
+                    .iter()
+                    .map(|&w| (histories[[w, c]] - mean[c]).powi(2))
+                    .sum::<f64>()
+                    / (m - 1.0);
+                let sd = v.sqrt();
+                if sd.is_finite() && sd > 0.0 { sd } else { 1.0 }
+            })
+            .collect();
+        let mut wells = vec![f64::NAN; n * q];
+        for &w in &full {
+            for c in 0..q {
+                wells[w * q + c] = (histories[[w, c]] - mean[c]) / scale[c];
+            }
+        }
+        let hist = |a: usize, b: usize| -> f64 {
+            (0..q)
+                .map(|c| (wells[a * q + c] - wells[b * q + c]).powi(2))
+                .sum::<f64>()
+                .sqrt()
+        };
+        let mut sum = 0.0;
+        let mut pairs = 0usize;
+        for (k, &a) in full.iter().enumerate() {
+            for &b in &full[k + 1..] {
+                sum += hist(a, b);
+                pairs += 1;
+            }
+        }
+        let mean_distance = sum / pairs as f64;
+        if !(mean_distance > 0.0 && mean_distance.is_finite()) {
+            return Err(ApplicabilityError::Degenerate);
+        }
+        let train_score: Vec<f64> = full
+            .iter()
+            .map(|&a| {
+                let others = full.iter().copied().filter(|&b| fold[b] != fold[a]);
+                let g = (0..n)
+                    .filter(|&b| fold[b] != fold[a])
+                    .map(|b| planar(wells_xy[a], wells_xy[b]))
+                    .fold(f64::INFINITY, f64::min)
+                    / spacing;
+                let h = others.map(|b| hist(a, b)).fold(f64::INFINITY, f64::min) / mean_distance;
+                g * h.powf(exponent)
+            })
+            .collect();
+        let threshold = upper_whisker(&train_score);
+        Ok(Self {
+            spacing,
+            wells_xy: wells_xy.to_vec(),
+            mean,
+            scale,
+            wells,
+            mean_distance,
+            exponent,
+            train_score,
+            threshold,
+        })
+    }
+
+    /// Assesses nodes: positions and attribute histories ([`node_histories`]), one row per node.
+    /// Nodes are independent, so the result does not depend on the thread count.
+    ///
+    /// # Panics
+    /// If `xy` and `histories` differ in length or the history has the wrong number of columns.
+    pub fn assess(&self, xy: &[[f64; 2]], histories: ArrayView2<f64>) -> GroundAssessment {
+        let q = self.mean.len();
+        assert_eq!(xy.len(), histories.nrows(), "one history per node");
+        assert_eq!(histories.ncols(), q, "history columns");
+        let full: Vec<usize> = (0..self.wells_xy.len())
+            .filter(|&w| self.wells[w * q].is_finite())
+            .collect();
+        let rows: Vec<(f64, f64)> = (0..xy.len())
+            .into_par_iter()
+            .map(|r| {
+                let g = self
+                    .wells_xy
+                    .iter()
+                    .map(|&w| planar(xy[r], w))
+                    .fold(f64::INFINITY, f64::min)
+                    / self.spacing;
+                let row = histories.row(r);
+                if row.iter().any(|v| !v.is_finite()) {
+                    return (g, f64::NAN);
+                }
+                let z: Vec<f64> = (0..q)
+                    .map(|c| (row[c] - self.mean[c]) / self.scale[c])
+                    .collect();
+                let best = full
+                    .iter()
+                    .map(|&w| {
+                        let t = &self.wells[w * q..(w + 1) * q];
+                        z.iter().zip(t).map(|(a, b)| (a - b) * (a - b)).sum::<f64>()
+                    })
+                    .fold(f64::INFINITY, f64::min);
+                (g, best.sqrt() / self.mean_distance)
+            })
+            .collect();
+        let distance: Vec<f64> = rows.iter().map(|r| r.0).collect();
+        let dissimilarity: Vec<f64> = rows.iter().map(|r| r.1).collect();
+        let score: Vec<f64> = rows
+            .iter()
+            .map(|&(g, h)| g * h.powf(self.exponent))
+            .collect();
+        let unlike = score.iter().map(|&s| s > self.threshold).collect();
+        GroundAssessment {
+            distance,
+            dissimilarity,
+            score,
+            unlike,
         }
     }
 }

@@ -9,7 +9,9 @@
 //! - [`ensemble`]: binned regression trees, bagged (quantile) forests and gradient boosting.
 //! - [`calibrate`]: leave-wells-out folds, isotonic end-bias correction, conformal bands, exceedance.
 //! - [`metrics`]: R2, RMSE, coverage, interval score, pinball loss, CRPS, Brier score, PIT.
-//! - [`applicability`]: dissimilarity index and area of applicability, training-range checks.
+//! - [`applicability`]: dissimilarity index and area of applicability, training-range checks,
+//!   ground the wells do not sample, reason codes.
+//! - [`skill`]: skill at held-out wells against climatology, well-bootstrap intervals, verdicts.
 //! - [`decide`]: risked infill-target ranking.
 //! - [`synth`]: the physics-based synthetic time-lapse field generator.
 //! - [`spatial`]: error variograms from the wells, correlated realizations and field totals.
@@ -30,5 +32,6 @@ pub mod pipeline;
 pub mod project;
 pub mod report;
 pub mod sample;
+pub mod skill;
 pub mod spatial;
 pub mod synth;
