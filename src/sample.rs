@@ -10,6 +10,7 @@
 use crate::grid::Grid;
 use crate::project::{Extract, Survey};
 use ndarray::Array2;
+use std::collections::{HashMap, HashSet};
 use std::fmt;
 
 /// Name of the step feature, the last feature column.
@@ -122,6 +123,8 @@ pub fn at_wells(survey: &Survey) -> (TrainingSet, Vec<SampleWarning>) {
     let mut feats: Vec<f64> = Vec::new();
     let mut targs: Vec<f64> = Vec::new();
     let mut well_names: Vec<String> = Vec::new();
+    // Well name -> index into `well_names` (a hash map keeps grouping linear in the rows).
+    let mut well_index: HashMap<&str, usize> = HashMap::new();
     let (mut group, mut step, mut xy, mut weight) =
         (Vec::new(), Vec::new(), Vec::new(), Vec::new());
     for rec in &survey.wells {
@@ -147,13 +150,10 @@ pub fn at_wells(survey: &Survey) -> (TrainingSet, Vec<SampleWarning>) {
         match extract_point(&p.grid, &p.extract, maps, &p.attribute_names, rec.x, rec.y) {
             Err(reason) => warnings.push(warn(reason)),
             Ok(values) => {
-                let g = match well_names.iter().position(|w| *w == rec.well) {
-                    Some(g) => g,
-                    None => {
-                        well_names.push(rec.well.clone());
-                        well_names.len() - 1
-                    }
-                };
+                let g = *well_index.entry(rec.well.as_str()).or_insert_with(|| {
+                    well_names.push(rec.well.clone());
+                    well_names.len() - 1
+                });
                 feats.extend(values);
                 feats.push(s as f64);
                 targs.extend((0..nt).map(|t| rec.targets.get(t).copied().unwrap_or(f64::NAN)));
@@ -182,6 +182,25 @@ pub fn at_wells(survey: &Survey) -> (TrainingSet, Vec<SampleWarning>) {
         weight,
     };
     (set, warnings)
+}
+
+/// Distinct (well, x, y) positions of the survey's well records, in file order (linear time: a
+/// well that keeps its position across steps is listed once).
+pub fn well_positions(survey: &Survey) -> Vec<(String, f64, f64)> {
+    let mut seen: HashSet<(&str, u64, u64)> = HashSet::new();
+    let mut out = Vec::new();
+    for r in &survey.wells {
+        // Positions compare as in `==` on the numbers (-0 and 0 alike; NaN never occurs).
+        let key = (
+            r.well.as_str(),
+            (r.x + 0.0).to_bits(),
+            (r.y + 0.0).to_bits(),
+        );
+        if seen.insert(key) {
+            out.push((r.well.clone(), r.x, r.y));
+        }
+    }
+    out
 }
 
 /// Feature table of every node of one step: one row per node in index order, the attributes in

@@ -2,11 +2,23 @@
 //! reservoir penetration point `x, y` of that step, the measured changes (one column per target,
 //! empty cell = not measured) and an optional weight.
 //!
-//! Every error names the file, the line (the header is line 1) and, for a cell, the column.
+//! Every error names the file, the line (the header is line 1) and, for a cell, the column, and
+//! quotes at most [`super::EXCERPT_CHARS`] characters of a bad cell. The file is read through
+//! [`text::Guarded`]: a byte-order mark is skipped, CRLF and CR line ends count as one line end (so
+//! line numbers are right whatever wrote the file), and the file may hold at most
+//! [`MAX_FILE_BYTES`] bytes, a line at most [`MAX_LINE_BYTES`].
 
-use super::IoError;
+use super::{IoError, excerpt, text};
 use std::collections::HashMap;
+use std::io::Read;
 use std::path::Path;
+
+/// Largest wells CSV read, in bytes (512 MiB: some seven million rows).
+pub const MAX_FILE_BYTES: u64 = 512 << 20;
+/// Longest line of the wells CSV, in bytes.
+pub const MAX_LINE_BYTES: usize = 1 << 20;
+/// Why [`MAX_FILE_BYTES`], for the message.
+const WHY: &str = "the limit for a wells file";
 
 /// One row of the wells CSV.
 #[derive(Clone, Debug, PartialEq, serde::Serialize, serde::Deserialize)]
@@ -65,8 +77,12 @@ pub fn read(
     columns: &WellColumns,
     steps: &[String],
 ) -> Result<Vec<WellRecord>, IoError> {
-    let bytes = std::fs::read(path).map_err(|e| IoError::os(path, e))?;
-    parse(path, &bytes, columns, steps)
+    let (records, mut errors) = read_all(path, columns, steps)?;
+    if errors.is_empty() {
+        Ok(records)
+    } else {
+        Err(errors.swap_remove(0))
+    }
 }
 
 /// Parses wells CSV bytes already in memory; `path` labels errors. Returns the first error.
@@ -91,14 +107,36 @@ pub fn read_all(
     columns: &WellColumns,
     steps: &[String],
 ) -> Result<(Vec<WellRecord>, Vec<IoError>), IoError> {
-    let bytes = std::fs::read(path).map_err(|e| IoError::os(path, e))?;
-    parse_all(path, &bytes, columns, steps)
+    let reader = text::open(path, MAX_FILE_BYTES, WHY, MAX_LINE_BYTES).map_err(|e| {
+        match text::Limit::from_io(&e) {
+            Some(limit) => IoError::format(path, limit.to_string()),
+            None => IoError::os(path, e),
+        }
+    })?;
+    parse_reader(path, reader, columns, steps)
 }
 
 /// Parses wells CSV bytes, keeping going after a bad row (see [`read_all`]).
 pub fn parse_all(
     path: &Path,
     bytes: &[u8],
+    columns: &WellColumns,
+    steps: &[String],
+) -> Result<(Vec<WellRecord>, Vec<IoError>), IoError> {
+    let reader = text::Guarded::new(
+        bytes,
+        MAX_FILE_BYTES.max(bytes.len() as u64),
+        WHY,
+        MAX_LINE_BYTES,
+    );
+    parse_reader(path, reader, columns, steps)
+}
+
+/// Parses a wells CSV from any reader, keeping going after a bad row (see [`read_all`]); wrap
+/// the reader in [`text::Guarded`] for the byte-order mark, line ends and limits.
+pub fn parse_reader<R: Read>(
+    path: &Path,
+    reader: R,
     columns: &WellColumns,
     steps: &[String],
 ) -> Result<(Vec<WellRecord>, Vec<IoError>), IoError> {
@@ -109,6 +147,17 @@ pub fn parse_all(
                 expected_len, len, ..
             } => format!("expected {expected_len} fields like the header, found {len}"),
             csv::ErrorKind::Utf8 { .. } => "not UTF-8 text".to_string(),
+            csv::ErrorKind::Io(io) => match text::Limit::from_io(io) {
+                Some(text::Limit::Line { line, .. }) => {
+                    return IoError::Line {
+                        path: path.to_path_buf(),
+                        line: *line,
+                        message: io.to_string(),
+                    };
+                }
+                Some(limit) => return IoError::format(path, limit.to_string()),
+                None => return IoError::os(path, std::io::Error::new(io.kind(), io.to_string())),
+            },
             _ => e.to_string(),
         };
         IoError::Line {
@@ -121,7 +170,7 @@ pub fn parse_all(
         .has_headers(true)
         .trim(csv::Trim::All)
         .comment(Some(b'#'))
-        .from_reader(bytes);
+        .from_reader(reader);
     let header = rdr.headers().map_err(csv_err)?.clone();
     if header.is_empty() || header.iter().all(|h| h.is_empty()) {
         return Err(IoError::format(path, "empty file: no header line"));
@@ -133,17 +182,17 @@ pub fn parse_all(
             return Err(IoError::Cell {
                 path: path.to_path_buf(),
                 line: header_line,
-                column: name.to_string(),
+                column: excerpt(name),
                 message: "column name appears twice in the header".into(),
             });
         }
     }
-    let have: Vec<&str> = header.iter().collect();
+    let have: Vec<String> = header.iter().map(excerpt).collect();
     let find = |name: &str| -> Result<usize, IoError> {
         index.get(name).copied().ok_or_else(|| IoError::Cell {
             path: path.to_path_buf(),
             line: header_line,
-            column: name.to_string(),
+            column: excerpt(name),
             message: format!("missing column (the header has: {})", have.join(", ")),
         })
     };
@@ -182,7 +231,10 @@ pub fn parse_all(
             }
             match s.parse::<f64>() {
                 Ok(v) if v.is_finite() => Ok(v),
-                _ => Err(cell_err(col, format!("'{s}' is not a finite number"))),
+                _ => Err(cell_err(
+                    col,
+                    format!("'{}' is not a finite number", excerpt(s)),
+                )),
             }
         };
         let well = get(c_well).to_string();
@@ -196,7 +248,8 @@ pub fn parse_all(
             return Err(cell_err(
                 &columns.step,
                 format!(
-                    "step '{step}' is not in the manifest (steps: {})",
+                    "step '{}' is not in the manifest (steps: {})",
+                    excerpt(&step),
                     steps.join(", ")
                 ),
             ));
@@ -227,7 +280,8 @@ pub fn parse_all(
                     return Err(cell_err(
                         &t.column,
                         format!(
-                            "'{s}' is not a finite number (leave the cell empty if not measured)"
+                            "'{}' is not a finite number (leave the cell empty if not measured)",
+                            excerpt(s)
                         ),
                     ));
                 }
@@ -247,7 +301,10 @@ pub fn parse_all(
             return Err(IoError::Line {
                 path: path.to_path_buf(),
                 line,
-                message: format!("well '{well}' step '{step}' already given on line {first}"),
+                message: format!(
+                    "well '{}' step '{step}' already given on line {first}",
+                    excerpt(&well)
+                ),
             });
         }
         Ok(WellRecord {

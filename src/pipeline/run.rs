@@ -399,16 +399,7 @@ pub fn fit_model(
 
 /// Distinct (well, x, y) positions of the survey's well records, in file order.
 pub fn well_positions(survey: &Survey) -> Vec<(String, f64, f64)> {
-    let mut out: Vec<(String, f64, f64)> = Vec::new();
-    for r in &survey.wells {
-        if !out
-            .iter()
-            .any(|(n, x, y)| n == &r.well && *x == r.x && *y == r.y)
-        {
-            out.push((r.well.clone(), r.x, r.y));
-        }
-    }
-    out
+    sample::well_positions(survey)
 }
 
 /// The current time, UTC, as `YYYY-MM-DD HH:MM:SS UTC` (civil-from-days, Hinnant's algorithm).
