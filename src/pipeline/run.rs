@@ -562,15 +562,10 @@ pub fn run(opts: &RunOptions) -> Result<RunOutcome, PipelineError> {
         let infill_section = match &infill {
             Some(i) => Some(crate::report::input::InfillSection {
                 criterion: i.criterion.clone(),
-                volume_unit: if project
+                volume_unit: project
                     .infill
                     .as_ref()
-                    .is_some_and(|s| s.volume_map.is_some())
-                {
-                    "m3".into()
-                } else {
-                    "nodes".into()
-                },
+                    .map_or_else(|| "nodes".into(), |s| s.risked_volume_unit()),
                 picture: Some(super::pictures::infill_picture(
                     &mut w,
                     &model,
