@@ -231,7 +231,13 @@ fn pixel_limits(nx: usize, ny: usize) -> Limits {
 
 fn decode_checked(path: &Path, bytes: &[u8], expect: Option<&Grid>) -> Result<Raster, IoError> {
     let bad = |m: String| IoError::format(path, m);
-    let tiff_err = |what: &str, e: tiff::TiffError| bad(format!("{what}: {e}"));
+    let tiff_err = |what: &str, e: tiff::TiffError| match e {
+        tiff::TiffError::LimitsExceeded => bad(format!(
+            "{what}: declares more data than this map can hold (tag values are limited to \
+             {MAX_TAG_BYTES} bytes, pixels to 8 bytes per grid node)"
+        )),
+        e => bad(format!("{what}: {e}")),
+    };
     let mut dec = Decoder::new(Cursor::new(bytes))
         .map_err(|e| tiff_err("not a readable TIFF", e))?
         .with_limits(tag_limits());

@@ -491,9 +491,12 @@ pub fn run(opts: &RunOptions) -> Result<RunOutcome, PipelineError> {
     let survey = load(&opts.project)?;
     let project = &survey.project;
     let inputs = project.input_paths();
+    let (ts, sample_warnings) = sample::at_wells(&survey);
+    // The verdict `check` gives, before anything is written.
+    crate::check::ensure_runnable(&survey, &ts)
+        .map_err(|e| PipelineError::Invalid(e.to_string()))?;
     let mut w = Writer::new(&opts.out, &inputs, opts.formats)?;
     let seed = opts.seed.unwrap_or(project.model.seed);
-    let (ts, sample_warnings) = sample::at_wells(&survey);
     let mut warnings: Vec<String> = sample_warnings.iter().map(|w| w.to_string()).collect();
     stages.done("load and extract");
 
@@ -647,10 +650,7 @@ pub fn run(opts: &RunOptions) -> Result<RunOutcome, PipelineError> {
         cautions: super::CAUTIONS.iter().map(|s| s.to_string()).collect(),
         files: w.written.clone(),
     };
-    w.json("run.json", &record)?;
-    Ok(RunOutcome {
-        out: w.root.clone(),
-        model,
-        record,
-    })
+    let out = w.root.clone();
+    w.finish(&record)?;
+    Ok(RunOutcome { out, model, record })
 }
