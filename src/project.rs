@@ -47,6 +47,8 @@ pub mod limits {
     pub const MAX_DRAINAGE_NODES: f64 = 1_000.0;
     /// The extraction radius in node spacings along either grid axis (`extract.radius`).
     pub const MAX_EXTRACT_NODES: f64 = 100.0;
+    /// Bytes of the manifest itself.
+    pub const MAX_MANIFEST_BYTES: u64 = 16 << 20;
     /// Plain counts without a limit of their own (`min_samples_leaf`, `min_wells_per_bin`, the
     /// depth limits).
     pub const MAX_COUNT: i64 = 1_000_000_000;
@@ -758,9 +760,28 @@ fn line_column(text: &str, offset: usize) -> (usize, usize) {
 impl Project {
     /// Reads and checks a manifest. Paths in it are resolved against its folder.
     pub fn load(path: &Path) -> Result<Project, ProjectError> {
-        let text = std::fs::read_to_string(path).map_err(|e| ProjectError::Read {
+        let read_err = |source| ProjectError::Read {
             path: path.to_path_buf(),
-            source: e,
+            source,
+        };
+        let bytes = crate::io::text::read_capped(
+            path,
+            limits::MAX_MANIFEST_BYTES,
+            "the limit for a manifest",
+        )
+        .map_err(read_err)?;
+        let text = String::from_utf8(bytes).map_err(|e| {
+            read_err(std::io::Error::new(
+                std::io::ErrorKind::InvalidData,
+                format!(
+                    "not UTF-8 text (line {})",
+                    e.as_bytes()[..e.utf8_error().valid_up_to()]
+                        .iter()
+                        .filter(|&&b| b == b'\n')
+                        .count()
+                        + 1
+                ),
+            ))
         })?;
         Project::from_toml_str(path, &text)
     }
@@ -768,6 +789,8 @@ impl Project {
     /// Parses and checks manifest text; `path` is where it lives (for resolving relative paths and
     /// naming errors).
     pub fn from_toml_str(path: &Path, text: &str) -> Result<Project, ProjectError> {
+        // A UTF-8 byte-order mark (some editors write one) is not part of the TOML.
+        let text = text.strip_prefix('\u{feff}').unwrap_or(text);
         let raw: RawManifest = toml::from_str(text).map_err(|e| {
             let (line, column) = e
                 .span()

@@ -20,7 +20,7 @@
 //!    of earlier runs and then, line by line, every file this run writes.
 //! 3. Every file is written atomically (temporary file, `fsync`, rename, `fsync` of the folder).
 //! 4. [`Writer::finish`] removes the files of earlier runs that this run did not write again,
-//!    writes the record (`run.json`) last, removes the marker and releases the lock.
+//!    removes the marker, writes the record (`run.json`) last and releases the lock.
 //!
 //! So a folder with a `run.json` holds exactly the files it lists (beside any files of the user's
 //! own), and a folder with `RUNNING` is a run in progress or an interrupted one.
@@ -179,9 +179,9 @@ impl Writer {
         })
     }
 
-    /// Ends the run: removes the files of earlier runs that this run did not write again, writes
-    /// `record` as the run's record (`run.json` for [`Writer::new`]) last, removes the `RUNNING`
-    /// marker and releases the folder's lock.
+    /// Ends the run: removes the files of earlier runs that this run did not write again, removes
+    /// the `RUNNING` marker, writes `record` as the run's record (`run.json` for [`Writer::new`])
+    /// last and releases the folder's lock.
     pub fn finish<T: Serialize>(mut self, record: &T) -> Result<(), PipelineError> {
         let written: BTreeSet<&str> = self.written.iter().map(String::as_str).collect();
         for stale in self
@@ -199,14 +199,14 @@ impl Writer {
                 })?;
             }
         }
-        let name = self.record.clone();
-        self.json(&name, record)?;
+        // The marker goes just before the record, so that no moment shows both.
         self.journal = None;
         let marker = self.root.join(RUNNING_FILE);
         std::fs::remove_file(&marker).map_err(|e| {
             PipelineError::Invalid(format!("{}: cannot remove: {e}", marker.display()))
         })?;
-        io::atomic::sync_dir(&self.root)?;
+        let name = self.record.clone();
+        self.json(&name, record)?;
         // Remove the lock file while still holding the lock; a run that opened it meanwhile
         // sees that it is no longer the folder's lock file and opens a new one.
         let _ = std::fs::remove_file(self.root.join(LOCK_FILE));
