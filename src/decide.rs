@@ -429,3 +429,74 @@ pub fn to_csv(targets: &[Target], table: &TargetsTable) -> String {
     let bytes = w.into_inner().unwrap_or_default();
     String::from_utf8(bytes).unwrap_or_default()
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// The drainage sums by running row sums equal the plain sum over the disc's nodes.
+    #[test]
+    fn running_sums_match_the_plain_disc_sum() {
+        let grid = Grid {
+            origin_x: 0.0,
+            origin_y: 0.0,
+            dx: 7.0,
+            dy: 11.0,
+            nx: 23,
+            ny: 17,
+            rotation: 0.0,
+            epsg: None,
+            null_value: -999.25,
+        };
+        let n = grid.len();
+        let chance: Vec<f64> = (0..n)
+            .map(|k| if k % 13 == 0 { f64::NAN } else { (k % 7) as f64 / 7.0 })
+            .collect();
+        let volume: Vec<f64> = (0..n).map(|k| 1.0 + (k % 5) as f64).collect();
+        let inside: Vec<bool> = (0..n).map(|k| k % 3 != 0).collect();
+        for radius in [5.0, 11.0, 30.0, 77.0, 1e4] {
+            let t = rank_targets(
+                &RankInputs {
+                    grid: &grid,
+                    chance: &chance,
+                    volume: Some(&volume),
+                    inside: &inside,
+                    wells: &[],
+                },
+                &InfillSettings {
+                    drainage_radius: radius,
+                    min_well_spacing: 0.0,
+                    min_target_spacing: 0.0,
+                    count: 50,
+                },
+            )
+            .unwrap();
+            assert!(!t.is_empty());
+            for target in &t {
+                let (fi, fj) = grid.fractional_ij(target.x, target.y);
+                let (i, j) = (fi.round() as usize, fj.round() as usize);
+                let (mut sum, mut ins, mut cnt) = (0.0, 0, 0);
+                for b in 0..grid.ny {
+                    for a in 0..grid.nx {
+                        let ex = (a as f64 - i as f64) * grid.dx;
+                        let ey = (b as f64 - j as f64) * grid.dy;
+                        if ex * ex + ey * ey <= radius * radius {
+                            let k = grid.index(a, b);
+                            if chance[k].is_finite() {
+                                sum += chance[k] * volume[k];
+                            }
+                            ins += usize::from(inside[k]);
+                            cnt += 1;
+                        }
+                    }
+                }
+                assert!(
+                    (target.risked_volume - sum).abs() <= 1e-9 * sum.max(1.0),
+                    "radius {radius}: {} against {sum}",
+                    target.risked_volume
+                );
+                assert_eq!(target.drainage_inside_fraction, ins as f64 / cnt as f64);
+            }
+        }
+    }
+}

@@ -245,22 +245,12 @@ fn decode_checked(path: &Path, bytes: &[u8], expect: Option<&Grid>) -> Result<Ra
         .dimensions()
         .map_err(|e| tiff_err("reading image size", e))?;
     let pixels = u64::from(width) * u64::from(height);
-    match expect {
-        Some(g) if (width as usize, height as usize) != (g.nx, g.ny) => {
-            return Err(IoError::GridMismatch {
-                path: path.to_path_buf(),
-                differences: vec![format!(
-                    "size {width} x {height} nodes, expected {} x {}",
-                    g.nx, g.ny
-                )],
-            });
-        }
-        None if pixels > MAX_PIXELS => {
-            return Err(bad(format!(
-                "image of {width} x {height} pixels is larger than the limit of {MAX_PIXELS} pixels"
-            )));
-        }
-        _ => {}
+    // With a grid to match, a header of another size is refused below, with every difference,
+    // before any pixel is decoded; without one, the size is capped here.
+    if expect.is_none() && pixels > MAX_PIXELS {
+        return Err(bad(format!(
+            "image of {width} x {height} pixels is larger than the limit of {MAX_PIXELS} pixels"
+        )));
     }
     let color = dec
         .colortype()

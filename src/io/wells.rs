@@ -6,7 +6,8 @@
 //! quotes at most [`super::EXCERPT_CHARS`] characters of a bad cell. The file is read through
 //! [`text::Guarded`]: a byte-order mark is skipped, CRLF and CR line ends count as one line end (so
 //! line numbers are right whatever wrote the file), and the file may hold at most
-//! [`MAX_FILE_BYTES`] bytes, a line at most [`MAX_LINE_BYTES`].
+//! [`MAX_FILE_BYTES`] bytes, a line at most [`MAX_LINE_BYTES`]. Line numbers are counted from the
+//! text itself (blank and `#` comment lines included), not taken from the CSV parser.
 
 use super::{IoError, excerpt, text};
 use std::collections::HashMap;
@@ -132,32 +133,82 @@ pub fn parse_all(
     parse_reader(path, reader, columns, steps)
 }
 
+/// Line numbers of CSV records from their byte offsets in the (normalised) text. The CSV parser's
+/// own line count misses blank and comment lines just before a record, so lines are counted here:
+/// from a record's starting offset, blank and `#` lines are skipped, then the line is the number
+/// of line ends before it plus one. Offsets come in file order, so the count moves forward only.
+struct Lines<'a> {
+    text: &'a [u8],
+    /// Offset up to which line ends are counted.
+    at: usize,
+    /// 1-based line at `at`.
+    line: u64,
+}
+
+impl Lines<'_> {
+    fn of(&mut self, start: u64) -> u64 {
+        let start = usize::try_from(start).unwrap_or(usize::MAX).min(self.text.len());
+        if start >= self.at {
+            self.line += memchr_count(&self.text[self.at..start]);
+            self.at = start;
+        } else {
+            // Never expected; count afresh rather than trust a stale cursor.
+            self.line = 1 + memchr_count(&self.text[..start]);
+            self.at = start;
+        }
+        // Skip blank and comment lines: the record starts on the first other line.
+        let (mut k, mut line) = (self.at, self.line);
+        while k < self.text.len() && (self.text[k] == b'\n' || self.text[k] == b'#') {
+            match self.text[k..].iter().position(|&b| b == b'\n') {
+                Some(end) => {
+                    k += end + 1;
+                    line += 1;
+                }
+                None => break,
+            }
+        }
+        line
+    }
+}
+
+/// Line ends in `bytes`.
+fn memchr_count(bytes: &[u8]) -> u64 {
+    bytes.iter().filter(|&&b| b == b'\n').count() as u64
+}
+
 /// Parses a wells CSV from any reader, keeping going after a bad row (see [`read_all`]); wrap
 /// the reader in [`text::Guarded`] for the byte-order mark, line ends and limits.
 pub fn parse_reader<R: Read>(
     path: &Path,
-    reader: R,
+    mut reader: R,
     columns: &WellColumns,
     steps: &[String],
 ) -> Result<(Vec<WellRecord>, Vec<IoError>), IoError> {
+    let mut text = Vec::new();
+    if let Err(io) = reader.read_to_end(&mut text) {
+        return Err(match text::Limit::from_io(&io) {
+            Some(text::Limit::Line { line, .. }) => IoError::Line {
+                path: path.to_path_buf(),
+                line: *line,
+                message: io.to_string(),
+            },
+            Some(limit) => IoError::format(path, limit.to_string()),
+            None => IoError::os(path, io),
+        });
+    }
+    let lines = std::cell::RefCell::new(Lines {
+        text: &text,
+        at: 0,
+        line: 1,
+    });
+    let line_of = |p: Option<&csv::Position>| p.map_or(1, |p| lines.borrow_mut().of(p.byte()));
     let csv_err = |e: csv::Error| {
-        let line = e.position().map(|p| p.line()).unwrap_or(1);
+        let line = line_of(e.position());
         let message = match e.kind() {
             csv::ErrorKind::UnequalLengths {
                 expected_len, len, ..
             } => format!("expected {expected_len} fields like the header, found {len}"),
             csv::ErrorKind::Utf8 { .. } => "not UTF-8 text".to_string(),
-            csv::ErrorKind::Io(io) => match text::Limit::from_io(io) {
-                Some(text::Limit::Line { line, .. }) => {
-                    return IoError::Line {
-                        path: path.to_path_buf(),
-                        line: *line,
-                        message: io.to_string(),
-                    };
-                }
-                Some(limit) => return IoError::format(path, limit.to_string()),
-                None => return IoError::os(path, std::io::Error::new(io.kind(), io.to_string())),
-            },
             _ => e.to_string(),
         };
         IoError::Line {
@@ -170,12 +221,12 @@ pub fn parse_reader<R: Read>(
         .has_headers(true)
         .trim(csv::Trim::All)
         .comment(Some(b'#'))
-        .from_reader(reader);
+        .from_reader(text.as_slice());
     let header = rdr.headers().map_err(csv_err)?.clone();
     if header.is_empty() || header.iter().all(|h| h.is_empty()) {
         return Err(IoError::format(path, "empty file: no header line"));
     }
-    let header_line = header.position().map_or(1, |p| p.line()).max(1);
+    let header_line = line_of(header.position()).max(1);
     let mut index: HashMap<&str, usize> = HashMap::new();
     for (k, name) in header.iter().enumerate() {
         if index.insert(name, k).is_some() {
@@ -216,7 +267,7 @@ pub fn parse_reader<R: Read>(
     let mut errors = Vec::new();
     let mut row = |rec: Result<csv::StringRecord, csv::Error>| -> Result<WellRecord, IoError> {
         let rec = rec.map_err(csv_err)?;
-        let line = rec.position().map(|p| p.line()).unwrap_or(0);
+        let line = line_of(rec.position());
         let cell_err = |col: &str, message: String| IoError::Cell {
             path: path.to_path_buf(),
             line,
