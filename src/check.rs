@@ -459,17 +459,21 @@ pub fn lone_outliers(values: &[f64]) -> Vec<usize> {
         return Vec::new();
     };
     let dev: Vec<f64> = z.iter().map(|z| z.abs()).collect();
-    (0..values.len())
-        .filter(|&k| {
-            let others = dev
-                .iter()
-                .enumerate()
-                .filter(|&(j, _)| j != k)
-                .map(|(_, d)| *d)
-                .fold(0.0, f64::max);
-            dev[k] > MODIFIED_Z_CUT && dev[k] > OUTLIER_GAP * others
-        })
-        .collect()
+    // Only the farthest value can be farther than twice every other: compare it with the second.
+    let (mut first, mut second) = (0usize, f64::NEG_INFINITY);
+    for k in 1..dev.len() {
+        if dev[k] > dev[first] {
+            second = dev[first];
+            first = k;
+        } else if dev[k] > second {
+            second = dev[k];
+        }
+    }
+    if dev[first] > MODIFIED_Z_CUT && dev[first] > OUTLIER_GAP * second {
+        vec![first]
+    } else {
+        Vec::new()
+    }
 }
 
 /// Warnings for measured values far outside the other wells' values of the same target and step.

@@ -450,7 +450,13 @@ mod tests {
         };
         let n = grid.len();
         let chance: Vec<f64> = (0..n)
-            .map(|k| if k % 13 == 0 { f64::NAN } else { (k % 7) as f64 / 7.0 })
+            .map(|k| {
+                if k % 13 == 0 {
+                    f64::NAN
+                } else {
+                    (k % 7) as f64 / 7.0
+                }
+            })
             .collect();
         let volume: Vec<f64> = (0..n).map(|k| 1.0 + (k % 5) as f64).collect();
         let inside: Vec<bool> = (0..n).map(|k| k % 3 != 0).collect();

@@ -800,7 +800,8 @@ impl Project {
                 path: path.to_path_buf(),
                 line,
                 column,
-                message: e.message().trim().to_string(),
+                // The parser may quote a key or value; quote no more than a short piece of it.
+                message: crate::io::excerpt_long(e.message().trim()),
             }
         })?;
         let manifest_path = std::path::absolute(path).map_err(|e| ProjectError::Read {

@@ -133,6 +133,14 @@ pub fn excerpt(text: &str) -> String {
     }
 }
 
+/// A message from another library, cut to a few excerpts' length (it may quote a whole token).
+pub fn excerpt_long(text: &str) -> String {
+    match text.char_indices().nth(4 * EXCERPT_CHARS) {
+        None => text.to_string(),
+        Some((end, _)) => format!("{}... ({} bytes)", &text[..end], text.len()),
+    }
+}
+
 /// True when `path` names a GeoTIFF by its extension (`.tif` or `.tiff`, any case).
 pub fn is_geotiff(path: &Path) -> bool {
     path.extension()

@@ -147,7 +147,9 @@ struct Lines<'a> {
 
 impl Lines<'_> {
     fn of(&mut self, start: u64) -> u64 {
-        let start = usize::try_from(start).unwrap_or(usize::MAX).min(self.text.len());
+        let start = usize::try_from(start)
+            .unwrap_or(usize::MAX)
+            .min(self.text.len());
         if start >= self.at {
             self.line += memchr_count(&self.text[self.at..start]);
             self.at = start;
