@@ -130,7 +130,7 @@ impl Finding {
     }
 }
 
-/// Groups findings with the same `what` and a subject: up to [`GROUP_MIN`] - 1 of them are
+/// Groups findings with the same `what` and a subject: up to two of them are
 /// listed one by one, more become one problem with the count and the first few subjects.
 /// Groups keep the order of their first finding.
 pub fn group(findings: Vec<Finding>, severity: Severity) -> Vec<Problem> {
