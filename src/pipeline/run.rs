@@ -495,6 +495,7 @@ pub fn run(opts: &RunOptions) -> Result<RunOutcome, PipelineError> {
     // The verdict `check` gives, before anything is written.
     crate::check::ensure_runnable(&survey, &ts)
         .map_err(|e| PipelineError::Invalid(e.to_string()))?;
+    project.read_volume_map()?;
     let mut w = Writer::new(&opts.out, &inputs, opts.formats)?;
     let seed = opts.seed.unwrap_or(project.model.seed);
     let mut warnings: Vec<String> = sample_warnings.iter().map(|w| w.to_string()).collect();
