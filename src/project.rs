@@ -21,6 +21,40 @@ pub const DEFAULT_SNAP_TOLERANCE: f64 = 0.01;
 /// Substrings that mark an attribute as angle-dependent when `report.angle_attributes` is absent.
 pub const ANGLE_MARKERS: [&str; 5] = ["near", "mid", "far", "intercept", "gradient"];
 
+/// Limits on every manifest value that sizes an allocation or a loop. They are checked when the
+/// manifest is loaded, so `check` and `run` refuse the same projects, and each message names the
+/// key and the limit. All are far above what a field study needs (docs/manifest.md lists them).
+pub mod limits {
+    /// Grid nodes (`grid.nx * grid.ny`): 50 million, 400 MB per map in memory.
+    pub const MAX_GRID_NODES: u64 = 50_000_000;
+    /// Map values held at once (`steps * attributes * nodes`): 250 million, 2 GB in memory.
+    pub const MAX_MAP_VALUES: u64 = 250_000_000;
+    /// Bytes of a step, attribute, target or threshold name (they become file names, which
+    /// most file systems cap at 255 bytes).
+    pub const MAX_NAME_BYTES: usize = 64;
+    /// Trees of the forest (`model.trees`).
+    pub const MAX_TREES: i64 = 10_000;
+    /// Boosting rounds (`model.boost_rounds`).
+    pub const MAX_BOOST_ROUNDS: i64 = 10_000;
+    /// Folds (`calibration.folds`).
+    pub const MAX_FOLDS: i64 = 1_000;
+    /// Mondrian bins (`calibration.max_bins`).
+    pub const MAX_BINS: i64 = 100;
+    /// Repeats per learning-curve point (`report.learning_curve_repeats`).
+    pub const MAX_REPEATS: i64 = 100;
+    /// Targets listed by the infill ranking (`infill.count`).
+    pub const MAX_INFILL_COUNT: i64 = 10_000;
+    /// The drainage radius in node spacings along either grid axis (`infill.drainage_radius`).
+    pub const MAX_DRAINAGE_NODES: f64 = 1_000.0;
+    /// The extraction radius in node spacings along either grid axis (`extract.radius`).
+    pub const MAX_EXTRACT_NODES: f64 = 100.0;
+    /// Bytes of the manifest itself.
+    pub const MAX_MANIFEST_BYTES: u64 = 16 << 20;
+    /// Plain counts without a limit of their own (`min_samples_leaf`, `min_wells_per_bin`, the
+    /// depth limits).
+    pub const MAX_COUNT: i64 = 1_000_000_000;
+}
+
 /// Which percentile label names the low end of a band.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
@@ -225,6 +259,8 @@ pub struct InfillSection {
     pub threshold: String,
     /// Absolute path of a map of in-place volume per node; `None` means 1 per node.
     pub volume_map: Option<PathBuf>,
+    /// Unit of the volume map's values (free text, e.g. `m3`); `None` when not given.
+    pub volume_unit: Option<String>,
     /// Step to rank on; after loading always `Some` (the manifest's default is the last step).
     pub step: Option<String>,
     /// Drainage radius, world units (> 0, default 300).
@@ -235,6 +271,18 @@ pub struct InfillSection {
     pub min_target_spacing: f64,
     /// Targets to list (>= 1, default 10).
     pub count: usize,
+}
+
+impl InfillSection {
+    /// The unit of the risked volume: the volume map's unit, `"nodes"` without a volume map
+    /// (every node counts 1), or `"unit of the volume map, not given"`.
+    pub fn risked_volume_unit(&self) -> String {
+        match (&self.volume_map, &self.volume_unit) {
+            (None, _) => "nodes".into(),
+            (Some(_), Some(u)) => u.clone(),
+            (Some(_), None) => "unit of the volume map, not given".into(),
+        }
+    }
 }
 
 /// Report settings (`[report]`).
@@ -303,6 +351,30 @@ pub enum ManifestError {
         expected: &'static str,
         /// The value given.
         value: String,
+    },
+    /// A value above the limit that keeps memory and time bounded.
+    #[error("{key} = {value} is above the limit: {limit}")]
+    Limit {
+        /// Manifest key.
+        key: String,
+        /// The limit, in words.
+        limit: String,
+        /// The value given.
+        value: String,
+    },
+    /// A name longer than [`limits::MAX_NAME_BYTES`].
+    #[error(
+        "{key} = '{name}' is {len} bytes long; names are at most {max} bytes (they become file names)"
+    )]
+    LongName {
+        /// Manifest key.
+        key: String,
+        /// The start of the name given.
+        name: String,
+        /// Its length in bytes.
+        len: usize,
+        /// The limit.
+        max: usize,
     },
     /// A name with characters other than letters, digits, `_` and `-`.
     #[error("{key} = '{name}': names may only use letters, digits, '_' and '-'")]
@@ -572,6 +644,7 @@ struct RawCalibration {
 struct RawInfill {
     threshold: String,
     volume_map: Option<String>,
+    volume_unit: Option<String>,
     step: Option<String>,
     drainage_radius: Option<f64>,
     min_well_spacing: Option<f64>,
@@ -600,12 +673,19 @@ pub fn is_valid_name(name: &str) -> bool {
 }
 
 fn check_name(key: String, name: &str) -> Result<(), ManifestError> {
-    if is_valid_name(name) {
+    if name.len() > limits::MAX_NAME_BYTES {
+        Err(ManifestError::LongName {
+            key,
+            name: crate::io::excerpt(name),
+            len: name.len(),
+            max: limits::MAX_NAME_BYTES,
+        })
+    } else if is_valid_name(name) {
         Ok(())
     } else {
         Err(ManifestError::BadName {
             key,
-            name: name.to_string(),
+            name: crate::io::excerpt(name),
         })
     }
 }
@@ -618,11 +698,28 @@ fn out_of_range(key: &str, expected: &'static str, value: impl ToString) -> Mani
     }
 }
 
-/// An integer count that must be at least `min`.
-fn count(key: &str, value: Option<i64>, default: usize, min: i64) -> Result<usize, ManifestError> {
+/// An integer count that must lie in `min..=max`.
+fn count(
+    key: &str,
+    value: Option<i64>,
+    default: usize,
+    min: i64,
+    max: i64,
+) -> Result<usize, ManifestError> {
     match value {
         None => Ok(default),
-        Some(v) if v >= min => usize::try_from(v).map_err(|_| out_of_range(key, "a count", v)),
+        Some(v) if (min..=max).contains(&v) => {
+            usize::try_from(v).map_err(|_| ManifestError::Limit {
+                key: key.to_string(),
+                limit: format!("at most {max}"),
+                value: v.to_string(),
+            })
+        }
+        Some(v) if v > max => Err(ManifestError::Limit {
+            key: key.to_string(),
+            limit: format!("at most {max}"),
+            value: v.to_string(),
+        }),
         Some(v) => Err(out_of_range(
             key,
             if min == 0 {
@@ -653,6 +750,22 @@ fn number(
     }
 }
 
+/// A radius (world units) that must span at most `max_nodes` node spacings along either axis.
+fn radius(key: &str, r: f64, grid: &Grid, max_nodes: f64) -> Result<f64, ManifestError> {
+    let spacings = r / grid.dx.min(grid.dy);
+    if spacings > max_nodes {
+        return Err(ManifestError::Limit {
+            key: key.to_string(),
+            limit: format!(
+                "at most {max_nodes} node spacings ({} world units on this grid)",
+                max_nodes * grid.dx.min(grid.dy)
+            ),
+            value: format!("{r:?}"),
+        });
+    }
+    Ok(r)
+}
+
 /// 1-based line and column of a byte offset in `text`.
 fn line_column(text: &str, offset: usize) -> (usize, usize) {
     let offset = offset.min(text.len());
@@ -665,9 +778,28 @@ fn line_column(text: &str, offset: usize) -> (usize, usize) {
 impl Project {
     /// Reads and checks a manifest. Paths in it are resolved against its folder.
     pub fn load(path: &Path) -> Result<Project, ProjectError> {
-        let text = std::fs::read_to_string(path).map_err(|e| ProjectError::Read {
+        let read_err = |source| ProjectError::Read {
             path: path.to_path_buf(),
-            source: e,
+            source,
+        };
+        let bytes = crate::io::text::read_capped(
+            path,
+            limits::MAX_MANIFEST_BYTES,
+            "the limit for a manifest",
+        )
+        .map_err(read_err)?;
+        let text = String::from_utf8(bytes).map_err(|e| {
+            read_err(std::io::Error::new(
+                std::io::ErrorKind::InvalidData,
+                format!(
+                    "not UTF-8 text (line {})",
+                    e.as_bytes()[..e.utf8_error().valid_up_to()]
+                        .iter()
+                        .filter(|&&b| b == b'\n')
+                        .count()
+                        + 1
+                ),
+            ))
         })?;
         Project::from_toml_str(path, &text)
     }
@@ -675,6 +807,8 @@ impl Project {
     /// Parses and checks manifest text; `path` is where it lives (for resolving relative paths and
     /// naming errors).
     pub fn from_toml_str(path: &Path, text: &str) -> Result<Project, ProjectError> {
+        // A UTF-8 byte-order mark (some editors write one) is not part of the TOML.
+        let text = text.strip_prefix('\u{feff}').unwrap_or(text);
         let raw: RawManifest = toml::from_str(text).map_err(|e| {
             let (line, column) = e
                 .span()
@@ -684,7 +818,8 @@ impl Project {
                 path: path.to_path_buf(),
                 line,
                 column,
-                message: e.message().trim().to_string(),
+                // The parser may quote a key or value; quote no more than a short piece of it.
+                message: crate::io::excerpt_long(e.message().trim()),
             }
         })?;
         let manifest_path = std::path::absolute(path).map_err(|e| ProjectError::Read {
@@ -826,6 +961,14 @@ fn check(raw: RawManifest, manifest_path: PathBuf) -> Result<Project, ManifestEr
         null_value: g.null_value.unwrap_or(DEFAULT_NULL_VALUE),
     };
     grid.validate().map_err(ManifestError::Grid)?;
+    let nodes = u128::from(nx as u64) * u128::from(ny as u64);
+    if nodes > u128::from(limits::MAX_GRID_NODES) {
+        return Err(ManifestError::Limit {
+            key: "grid.nx * grid.ny".into(),
+            limit: format!("at most {} nodes", limits::MAX_GRID_NODES),
+            value: format!("{nx} * {ny} = {nodes}"),
+        });
+    }
     let snap_tolerance = number(
         "grid.snap_tolerance",
         g.snap_tolerance,
@@ -910,6 +1053,21 @@ fn check(raw: RawManifest, manifest_path: PathBuf) -> Result<Project, ManifestEr
         });
     }
     let step_names: Vec<String> = steps.iter().map(|s| s.name.clone()).collect();
+    let values = nodes * steps.len() as u128 * attribute_names.len() as u128;
+    if values > u128::from(limits::MAX_MAP_VALUES) {
+        return Err(ManifestError::Limit {
+            key: "[[step]] attribute maps".into(),
+            limit: format!(
+                "at most {} map values (steps x attributes x grid nodes) held in memory",
+                limits::MAX_MAP_VALUES
+            ),
+            value: format!(
+                "{} x {} x {nodes} = {values}",
+                steps.len(),
+                attribute_names.len()
+            ),
+        });
+    }
 
     // [wells]
     let w = raw.wells;
@@ -1077,7 +1235,12 @@ fn check(raw: RawManifest, manifest_path: PathBuf) -> Result<Project, ManifestEr
                 });
             }
             (RawExtractMethod::Mean, Some(r)) => Extract::Mean {
-                radius: number("extract.radius", Some(r), 0.0, "> 0", |v| v > 0.0)?,
+                radius: radius(
+                    "extract.radius",
+                    number("extract.radius", Some(r), 0.0, "> 0", |v| v > 0.0)?,
+                    &grid,
+                    limits::MAX_EXTRACT_NODES,
+                )?,
             },
         },
     };
@@ -1089,12 +1252,13 @@ fn check(raw: RawManifest, manifest_path: PathBuf) -> Result<Project, ManifestEr
         Some(m) => ModelSection {
             seed: m.seed.unwrap_or(d.seed),
             learner: m.learner.unwrap_or(d.learner),
-            trees: count("model.trees", m.trees, d.trees, 1)?,
+            trees: count("model.trees", m.trees, d.trees, 1, limits::MAX_TREES)?,
             min_samples_leaf: count(
                 "model.min_samples_leaf",
                 m.min_samples_leaf,
                 d.min_samples_leaf,
                 1,
+                limits::MAX_COUNT,
             )?,
             max_features: number(
                 "model.max_features",
@@ -1103,8 +1267,20 @@ fn check(raw: RawManifest, manifest_path: PathBuf) -> Result<Project, ManifestEr
                 "in (0, 1]",
                 |v| v > 0.0 && v <= 1.0,
             )?,
-            max_depth: count("model.max_depth", m.max_depth, d.max_depth, 0)?,
-            boost_rounds: count("model.boost_rounds", m.boost_rounds, d.boost_rounds, 1)?,
+            max_depth: count(
+                "model.max_depth",
+                m.max_depth,
+                d.max_depth,
+                0,
+                limits::MAX_COUNT,
+            )?,
+            boost_rounds: count(
+                "model.boost_rounds",
+                m.boost_rounds,
+                d.boost_rounds,
+                1,
+                limits::MAX_BOOST_ROUNDS,
+            )?,
             learning_rate: number(
                 "model.learning_rate",
                 m.learning_rate,
@@ -1117,6 +1293,7 @@ fn check(raw: RawManifest, manifest_path: PathBuf) -> Result<Project, ManifestEr
                 m.boost_max_depth,
                 d.boost_max_depth,
                 1,
+                limits::MAX_COUNT,
             )?,
         },
     };
@@ -1130,14 +1307,21 @@ fn check(raw: RawManifest, manifest_path: PathBuf) -> Result<Project, ManifestEr
                 v > 0.0 && v < 1.0
             })?,
             fold_method: c.fold_method.unwrap_or(d.fold_method),
-            folds: count("calibration.folds", c.folds, d.folds, 2)?,
+            folds: count("calibration.folds", c.folds, d.folds, 2, limits::MAX_FOLDS)?,
             end_correction: c.end_correction.unwrap_or(d.end_correction),
-            max_bins: count("calibration.max_bins", c.max_bins, d.max_bins, 1)?,
+            max_bins: count(
+                "calibration.max_bins",
+                c.max_bins,
+                d.max_bins,
+                1,
+                limits::MAX_BINS,
+            )?,
             min_wells_per_bin: count(
                 "calibration.min_wells_per_bin",
                 c.min_wells_per_bin,
                 d.min_wells_per_bin,
                 1,
+                limits::MAX_COUNT,
             )?,
             covariate_shift: c.covariate_shift.unwrap_or(d.covariate_shift),
         },
@@ -1174,13 +1358,27 @@ fn check(raw: RawManifest, manifest_path: PathBuf) -> Result<Project, ManifestEr
             Some(InfillSection {
                 threshold: i.threshold,
                 volume_map: i.volume_map.as_deref().map(resolve),
+                volume_unit: match (&i.volume_map, i.volume_unit) {
+                    (None, Some(_)) => {
+                        return Err(ManifestError::Inconsistent {
+                            key: "infill.volume_unit".into(),
+                            message: "applies to infill.volume_map, which is not given".into(),
+                        });
+                    }
+                    (_, u) => u.filter(|u| !u.trim().is_empty()),
+                },
                 step: Some(step),
-                drainage_radius: number(
+                drainage_radius: radius(
                     "infill.drainage_radius",
-                    i.drainage_radius,
-                    300.0,
-                    "> 0",
-                    |v| v > 0.0,
+                    number(
+                        "infill.drainage_radius",
+                        i.drainage_radius,
+                        300.0,
+                        "> 0",
+                        |v| v > 0.0,
+                    )?,
+                    &grid,
+                    limits::MAX_DRAINAGE_NODES,
                 )?,
                 min_well_spacing: number(
                     "infill.min_well_spacing",
@@ -1196,7 +1394,7 @@ fn check(raw: RawManifest, manifest_path: PathBuf) -> Result<Project, ManifestEr
                     ">= 0",
                     |v| v >= 0.0,
                 )?,
-                count: count("infill.count", i.count, 10, 1)?,
+                count: count("infill.count", i.count, 10, 1, limits::MAX_INFILL_COUNT)?,
             })
         }
     };
@@ -1243,6 +1441,7 @@ fn check(raw: RawManifest, manifest_path: PathBuf) -> Result<Project, ManifestEr
                     r.learning_curve_repeats,
                     5,
                     1,
+                    limits::MAX_REPEATS,
                 )?,
                 ablation: r.ablation.unwrap_or(true),
                 angle_attributes,

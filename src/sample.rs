@@ -10,6 +10,7 @@
 use crate::grid::Grid;
 use crate::project::{Extract, Survey};
 use ndarray::Array2;
+use std::collections::{HashMap, HashSet};
 use std::fmt;
 
 /// Name of the step feature, the last feature column.
@@ -66,6 +67,10 @@ pub struct SampleWarning {
     pub step: String,
     /// Why the row was left out.
     pub reason: String,
+    /// The kind of reason, the same for every row left out for the same cause (the reason
+    /// without the row's own numbers), so that many rows can be reported as one.
+    #[serde(default)]
+    pub kind: String,
 }
 
 impl fmt::Display for SampleWarning {
@@ -78,8 +83,22 @@ impl fmt::Display for SampleWarning {
     }
 }
 
+/// Why a point cannot be used: its reason in words and the kind of reason (the same for every
+/// point left out for the same cause).
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct Unusable {
+    /// The reason, with the point's numbers.
+    pub reason: String,
+    /// The kind of reason, without them.
+    pub kind: String,
+}
+
+/// The kind of reason of a point outside the grid whose x and y, swapped, lie inside.
+pub const SWAPPED_XY: &str = "point outside the grid (inside with x and y swapped)";
+
 /// Reads every map of a step at `(x, y)`. `Err` carries the reason the point cannot be used: the
-/// point lies outside the hull of the grid nodes, or the named attribute meets a null node.
+/// point lies outside the hull of the grid nodes (with a hint when swapping x and y would put it
+/// inside), or the named attribute meets a null node.
 pub fn extract_point(
     grid: &Grid,
     extract: &Extract,
@@ -88,19 +107,51 @@ pub fn extract_point(
     x: f64,
     y: f64,
 ) -> Result<Vec<f64>, String> {
+    extract_checked(grid, extract, maps, attribute_names, x, y).map_err(|u| u.reason)
+}
+
+/// As [`extract_point`], with the kind of reason.
+pub fn extract_checked(
+    grid: &Grid,
+    extract: &Extract,
+    maps: &[Vec<f64>],
+    attribute_names: &[String],
+    x: f64,
+    y: f64,
+) -> Result<Vec<f64>, Unusable> {
     if !grid.contains(x, y) {
-        return Err(format!("point ({x}, {y}) lies outside the grid"));
+        return Err(if grid.contains(y, x) {
+            Unusable {
+                reason: format!(
+                    "point ({x}, {y}) lies outside the grid, but ({y}, {x}) would lie inside: \
+                     are x and y swapped?"
+                ),
+                kind: SWAPPED_XY.into(),
+            }
+        } else {
+            Unusable {
+                reason: format!("point ({x}, {y}) lies outside the grid"),
+                kind: "point outside the grid".into(),
+            }
+        });
     }
     let mut out = Vec::with_capacity(maps.len());
     for (k, map) in maps.iter().enumerate() {
         let name = attribute_names.get(k).map_or("?", String::as_str);
         let v = match *extract {
-            Extract::Bilinear => grid
-                .bilinear(map, x, y)
-                .ok_or_else(|| format!("attribute '{name}' has a null node next to ({x}, {y})"))?,
-            Extract::Mean { radius } => grid.window_mean(map, x, y, radius).ok_or_else(|| {
-                format!("attribute '{name}' has no non-null node within {radius} of ({x}, {y})")
+            Extract::Bilinear => grid.bilinear(map, x, y).ok_or_else(|| Unusable {
+                reason: format!("attribute '{name}' has a null node next to ({x}, {y})"),
+                kind: format!("attribute '{name}' has a null node next to the point"),
             })?,
+            Extract::Mean { radius } => {
+                grid.window_mean(map, x, y, radius)
+                    .ok_or_else(|| Unusable {
+                        reason: format!(
+                            "attribute '{name}' has no non-null node within {radius} of ({x}, {y})"
+                        ),
+                        kind: format!("attribute '{name}' has no non-null node within {radius}"),
+                    })?
+            }
         };
         out.push(v);
     }
@@ -122,38 +173,42 @@ pub fn at_wells(survey: &Survey) -> (TrainingSet, Vec<SampleWarning>) {
     let mut feats: Vec<f64> = Vec::new();
     let mut targs: Vec<f64> = Vec::new();
     let mut well_names: Vec<String> = Vec::new();
+    // Well name -> index into `well_names` (a hash map keeps grouping linear in the rows).
+    let mut well_index: HashMap<&str, usize> = HashMap::new();
     let (mut group, mut step, mut xy, mut weight) =
         (Vec::new(), Vec::new(), Vec::new(), Vec::new());
     for rec in &survey.wells {
-        let warn = |reason: String| SampleWarning {
+        let warn = |u: Unusable| SampleWarning {
             well: rec.well.clone(),
             step: rec.step.clone(),
-            reason: format!("{reason} ({file} line {})", rec.line),
+            reason: format!("{} ({file} line {})", u.reason, rec.line),
+            kind: u.kind,
+        };
+        let plain = |reason: &str| Unusable {
+            reason: reason.to_string(),
+            kind: reason.to_string(),
         };
         let Some(s) = p.step_index(&rec.step) else {
-            warnings.push(warn("step not in the manifest".into()));
+            warnings.push(warn(plain("step not in the manifest")));
             continue;
         };
         if rec.targets.iter().all(|v| v.is_nan()) {
-            warnings.push(warn("no target value measured".into()));
+            warnings.push(warn(plain("no target value measured")));
             continue;
         }
         let Some(maps) = survey.maps.get(s).filter(|m| m.len() == na) else {
-            warnings.push(warn(format!(
+            warnings.push(warn(plain(&format!(
                 "the survey does not hold {na} maps for this step"
-            )));
+            ))));
             continue;
         };
-        match extract_point(&p.grid, &p.extract, maps, &p.attribute_names, rec.x, rec.y) {
-            Err(reason) => warnings.push(warn(reason)),
+        match extract_checked(&p.grid, &p.extract, maps, &p.attribute_names, rec.x, rec.y) {
+            Err(u) => warnings.push(warn(u)),
             Ok(values) => {
-                let g = match well_names.iter().position(|w| *w == rec.well) {
-                    Some(g) => g,
-                    None => {
-                        well_names.push(rec.well.clone());
-                        well_names.len() - 1
-                    }
-                };
+                let g = *well_index.entry(rec.well.as_str()).or_insert_with(|| {
+                    well_names.push(rec.well.clone());
+                    well_names.len() - 1
+                });
                 feats.extend(values);
                 feats.push(s as f64);
                 targs.extend((0..nt).map(|t| rec.targets.get(t).copied().unwrap_or(f64::NAN)));
@@ -182,6 +237,25 @@ pub fn at_wells(survey: &Survey) -> (TrainingSet, Vec<SampleWarning>) {
         weight,
     };
     (set, warnings)
+}
+
+/// Distinct (well, x, y) positions of the survey's well records, in file order (linear time: a
+/// well that keeps its position across steps is listed once).
+pub fn well_positions(survey: &Survey) -> Vec<(String, f64, f64)> {
+    let mut seen: HashSet<(&str, u64, u64)> = HashSet::new();
+    let mut out = Vec::new();
+    for r in &survey.wells {
+        // Positions compare as in `==` on the numbers (-0 and 0 alike; NaN never occurs).
+        let key = (
+            r.well.as_str(),
+            (r.x + 0.0).to_bits(),
+            (r.y + 0.0).to_bits(),
+        );
+        if seen.insert(key) {
+            out.push((r.well.clone(), r.x, r.y));
+        }
+    }
+    out
 }
 
 /// Feature table of every node of one step: one row per node in index order, the attributes in

@@ -1,5 +1,7 @@
-//! Atomic file output: write to a temporary file in the destination folder, then rename it over the
-//! destination. A reader never sees a half-written file, and a failed write leaves nothing behind.
+//! Atomic file output: write to a temporary file in the destination folder, flush it to disk
+//! (`fsync`), rename it over the destination, then flush the folder so the rename itself is on
+//! disk. A reader never sees a half-written file, a failed write leaves nothing behind, and after
+//! a crash or power loss a file is either the old one or the whole new one.
 //!
 //! Also the guard that refuses to write over one of the project's inputs.
 
@@ -11,6 +13,55 @@ use std::sync::atomic::{AtomicU64, Ordering};
 
 static COUNTER: AtomicU64 = AtomicU64::new(0);
 
+/// Infix of every temporary file name: `.<name>.tmp-<pid>-<counter>`.
+const TEMP_INFIX: &str = ".tmp-";
+
+/// True when `name` is the name of a temporary file this module writes (`.<name>.tmp-<pid>-<n>`),
+/// e.g. one left behind by a killed process.
+pub fn is_temp_name(name: &str) -> bool {
+    let Some(rest) = name.strip_prefix('.') else {
+        return false;
+    };
+    let Some(at) = rest.rfind(TEMP_INFIX) else {
+        return false;
+    };
+    let tail = &rest[at + TEMP_INFIX.len()..];
+    let mut parts = tail.split('-');
+    at > 0
+        && matches!(
+            (parts.next(), parts.next(), parts.next()),
+            (Some(pid), Some(n), None)
+                if !pid.is_empty()
+                    && !n.is_empty()
+                    && pid.bytes().all(|b| b.is_ascii_digit())
+                    && n.bytes().all(|b| b.is_ascii_digit())
+        )
+}
+
+/// Flushes a folder's entries to disk (makes a rename or removal in it durable). File systems
+/// that cannot flush a folder are not an error.
+pub fn sync_dir(dir: &Path) -> Result<(), IoError> {
+    let dir = if dir.as_os_str().is_empty() {
+        Path::new(".")
+    } else {
+        dir
+    };
+    match fs::File::open(dir).and_then(|d| d.sync_all()) {
+        Ok(()) => Ok(()),
+        Err(e)
+            if matches!(
+                e.kind(),
+                std::io::ErrorKind::InvalidInput
+                    | std::io::ErrorKind::Unsupported
+                    | std::io::ErrorKind::PermissionDenied
+            ) =>
+        {
+            Ok(())
+        }
+        Err(e) => Err(IoError::os(dir, e)),
+    }
+}
+
 /// A temporary path beside `path`, unique within this process and across processes.
 fn temp_path(path: &Path) -> PathBuf {
     let name = path
@@ -18,7 +69,7 @@ fn temp_path(path: &Path) -> PathBuf {
         .map(|n| n.to_string_lossy().into_owned())
         .unwrap_or_else(|| "output".into());
     let n = COUNTER.fetch_add(1, Ordering::Relaxed);
-    let tmp = format!(".{name}.tmp-{}-{n}", std::process::id());
+    let tmp = format!(".{name}{TEMP_INFIX}{}-{n}", std::process::id());
     match path.parent() {
         Some(dir) if !dir.as_os_str().is_empty() => dir.join(tmp),
         _ => PathBuf::from(tmp),
@@ -43,8 +94,9 @@ pub fn write_bytes(path: &Path, bytes: &[u8]) -> Result<(), IoError> {
 }
 
 /// Writes `path` atomically with `f`, which receives a buffered writer on a temporary file in the
-/// same folder. On success the temporary file is renamed over `path`; on any failure it is removed
-/// and `path` is left untouched. Creates the parent folder if needed.
+/// same folder. On success the temporary file is flushed to disk and renamed over `path`, and the
+/// folder is flushed; on any failure the temporary file is removed and `path` is left untouched.
+/// Creates the parent folder if needed.
 pub fn write_with<F: FnOnce(&mut dyn Write) -> std::io::Result<()>>(
     path: &Path,
     f: F,
@@ -57,6 +109,7 @@ pub fn write_with<F: FnOnce(&mut dyn Write) -> std::io::Result<()>>(
         f(&mut w)?;
         w.flush()?;
         let file = w.into_inner().map_err(|e| e.into_error())?;
+        file.sync_all()?;
         drop(file);
         Ok(())
     })();
@@ -68,7 +121,7 @@ pub fn write_with<F: FnOnce(&mut dyn Write) -> std::io::Result<()>>(
         let _ = fs::remove_file(&tmp);
         return Err(IoError::os(path, e));
     }
-    Ok(())
+    sync_dir(path.parent().unwrap_or(Path::new("")))
 }
 
 /// The canonical form of `path` if it exists, else its absolute form with the parent canonicalised
@@ -124,6 +177,23 @@ mod tests {
         write_bytes(&path, b"two").unwrap();
         assert_eq!(fs::read(&path).unwrap(), b"two");
         assert_eq!(fs::read_dir(path.parent().unwrap()).unwrap().count(), 1);
+    }
+
+    #[test]
+    fn temp_names_are_recognised() {
+        let p = temp_path(Path::new("dir/a.tif"));
+        let name = p.file_name().unwrap().to_str().unwrap();
+        assert!(is_temp_name(name), "{name}");
+        for other in [
+            "a.tif",
+            ".a.tif",
+            ".tmp-1-2",
+            ".a.tmp-1",
+            ".a.tmp-x-2",
+            ".a.tmp-1-2-3",
+        ] {
+            assert!(!is_temp_name(other), "{other}");
+        }
     }
 
     #[test]

@@ -8,6 +8,10 @@
 //!
 //! Reading accepts float32/float64 and 8/16/32/64-bit integer samples, any compression the `tiff`
 //! crate decodes, strips or tiles, pixel-is-area or pixel-is-point, and top-down or bottom-up rows.
+//! It never trusts the header with memory: the file is read up to a size its grid can need, each
+//! tag value is capped at [`MAX_TAG_BYTES`], and a file whose header disagrees with the manifest's
+//! grid is refused before its pixels are decoded, which then happens within a buffer limit of the
+//! grid's size.
 
 use super::{IoError, atomic, check_len};
 use crate::grid::Grid;
@@ -158,22 +162,96 @@ pub fn write(
     atomic::write_bytes(path, &bytes)
 }
 
-/// Reads a single-band GeoTIFF with its georeferencing.
+/// Largest tag value read (georeferencing, GeoKeys, nodata and description are far smaller).
+pub const MAX_TAG_BYTES: usize = 1 << 20;
+
+/// Pixels of a GeoTIFF read without a grid to compare it with (as many as a manifest's grid may
+/// have nodes).
+pub const MAX_PIXELS: u64 = crate::project::limits::MAX_GRID_NODES;
+
+/// The most bytes a GeoTIFF of `nx x ny` pixels may hold: 8 bytes per pixel (float64, the largest
+/// sample read) twice over, for tile padding and poor compression, plus 16 MiB for tags.
+pub fn max_bytes_for(nx: u64, ny: u64) -> u64 {
+    nx.saturating_mul(ny)
+        .saturating_mul(16)
+        .saturating_add(16 << 20)
+}
+
+/// The most bytes a GeoTIFF on `grid` may hold (see [`max_bytes_for`]).
+pub fn max_bytes(grid: &Grid) -> u64 {
+    max_bytes_for(grid.nx as u64, grid.ny as u64)
+}
+
+/// Reads at most `max` bytes of `path`.
+fn read_file(path: &Path, max: u64, why: &str) -> Result<Vec<u8>, IoError> {
+    super::text::read_capped(path, max, why).map_err(|e| match super::text::Limit::from_io(&e) {
+        Some(limit) => IoError::format(path, limit.to_string()),
+        None => IoError::os(path, e),
+    })
+}
+
+/// Reads a single-band GeoTIFF with its georeferencing (at most [`MAX_PIXELS`] pixels).
 pub fn read(path: &Path) -> Result<Raster, IoError> {
-    let bytes = std::fs::read(path).map_err(|e| IoError::os(path, e))?;
+    let max = max_bytes_for(MAX_PIXELS, 1);
+    let bytes = read_file(path, max, "the limit for a GeoTIFF map")?;
     decode(path, &bytes)
 }
 
-/// Decodes GeoTIFF bytes; `path` only labels errors.
+/// Decodes GeoTIFF bytes (at most [`MAX_PIXELS`] pixels); `path` only labels errors.
 pub fn decode(path: &Path, bytes: &[u8]) -> Result<Raster, IoError> {
+    decode_checked(path, bytes, None)
+}
+
+/// Decodes GeoTIFF bytes that must lie on `grid`; `path` only labels errors. The header and tags
+/// are read first (each tag value at most [`MAX_TAG_BYTES`]) and compared with `grid`: a file
+/// whose size or georeferencing differs is refused before any pixel is decoded, and pixels are
+/// decoded with a buffer limit of the grid's size.
+pub fn decode_on_grid(path: &Path, bytes: &[u8], grid: &Grid) -> Result<Vec<f64>, IoError> {
+    decode_checked(path, bytes, Some(grid)).map(|r| r.values)
+}
+
+/// Limits for reading tags: no value larger than [`MAX_TAG_BYTES`].
+fn tag_limits() -> Limits {
+    let mut l = Limits::default();
+    l.decoding_buffer_size = MAX_TAG_BYTES;
+    l.ifd_value_size = MAX_TAG_BYTES;
+    l.intermediate_buffer_size = MAX_TAG_BYTES;
+    l
+}
+
+/// Limits for decoding the pixels of a `nx x ny` image: 8 bytes per pixel at most.
+fn pixel_limits(nx: usize, ny: usize) -> Limits {
+    let bytes = nx.saturating_mul(ny).saturating_mul(8).saturating_add(1024);
+    let mut l = Limits::default();
+    l.decoding_buffer_size = bytes;
+    l.ifd_value_size = MAX_TAG_BYTES;
+    l.intermediate_buffer_size = bytes.max(MAX_TAG_BYTES);
+    l
+}
+
+fn decode_checked(path: &Path, bytes: &[u8], expect: Option<&Grid>) -> Result<Raster, IoError> {
     let bad = |m: String| IoError::format(path, m);
-    let tiff_err = |what: &str, e: tiff::TiffError| bad(format!("{what}: {e}"));
+    let tiff_err = |what: &str, e: tiff::TiffError| match e {
+        tiff::TiffError::LimitsExceeded => bad(format!(
+            "{what}: declares more data than this map can hold (tag values are limited to \
+             {MAX_TAG_BYTES} bytes, pixels to 8 bytes per grid node)"
+        )),
+        e => bad(format!("{what}: {e}")),
+    };
     let mut dec = Decoder::new(Cursor::new(bytes))
         .map_err(|e| tiff_err("not a readable TIFF", e))?
-        .with_limits(Limits::unlimited());
+        .with_limits(tag_limits());
     let (width, height) = dec
         .dimensions()
         .map_err(|e| tiff_err("reading image size", e))?;
+    let pixels = u64::from(width) * u64::from(height);
+    // With a grid to match, a header of another size is refused below, with every difference,
+    // before any pixel is decoded; without one, the size is capped here.
+    if expect.is_none() && pixels > MAX_PIXELS {
+        return Err(bad(format!(
+            "image of {width} x {height} pixels is larger than the limit of {MAX_PIXELS} pixels"
+        )));
+    }
     let color = dec
         .colortype()
         .map_err(|e| tiff_err("reading sample layout", e))?;
@@ -318,6 +396,16 @@ pub fn decode(path: &Path, bytes: &[u8]) -> Result<Raster, IoError> {
         null_value,
     };
 
+    if let Some(g) = expect {
+        let differences = g.differences(&grid);
+        if !differences.is_empty() {
+            return Err(IoError::GridMismatch {
+                path: path.to_path_buf(),
+                differences,
+            });
+        }
+    }
+    let mut dec = dec.with_limits(pixel_limits(nx, ny));
     let image = dec
         .read_image()
         .map_err(|e| tiff_err("decoding the image data", e))?;
@@ -360,17 +448,16 @@ pub fn decode(path: &Path, bytes: &[u8]) -> Result<Raster, IoError> {
     })
 }
 
-/// Reads a GeoTIFF that must lie on `grid`; the error lists how the file's grid differs.
+/// Reads a GeoTIFF that must lie on `grid`; the error lists how the file's grid differs. The
+/// file may hold at most [`max_bytes`] bytes, and its pixels are decoded only once its header
+/// matches the grid (see [`decode_on_grid`]).
 pub fn read_on_grid(path: &Path, grid: &Grid) -> Result<Vec<f64>, IoError> {
-    let raster = read(path)?;
-    let differences = grid.differences(&raster.grid);
-    if !differences.is_empty() {
-        return Err(IoError::GridMismatch {
-            path: path.to_path_buf(),
-            differences,
-        });
-    }
-    Ok(raster.values)
+    let why = format!(
+        "a GeoTIFF map of {} x {} nodes needs far less",
+        grid.nx, grid.ny
+    );
+    let bytes = read_file(path, max_bytes(grid), &why)?;
+    decode_on_grid(path, &bytes, grid)
 }
 
 #[cfg(test)]

@@ -1,11 +1,18 @@
 //! Reading and writing field data: XYZ text grids, GeoTIFF rasters, the wells CSV, and the atomic
 //! writer every output goes through.
 //!
-//! Every error names the file and, where there is one, the line, record or column at fault. In
-//! memory a null node is `NaN`; the grid's null value only exists in files.
+//! Every error names the file and, where there is one, the line, record or column at fault, and
+//! quotes at most [`EXCERPT_CHARS`] characters of an offending token. In memory a null node is
+//! `NaN`; the grid's null value only exists in files.
+//!
+//! Text readers go through [`text::Guarded`]: a UTF-8 byte-order mark is skipped, CRLF and CR line
+//! ends count as one line end, and a file or a line larger than its limit stops the read with an
+//! error instead of filling memory. Maps are capped by what their grid can need
+//! ([`xyz::max_bytes`], [`geotiff::max_bytes`]).
 
 pub mod atomic;
 pub mod geotiff;
+pub mod text;
 pub mod wells;
 pub mod xyz;
 
@@ -111,6 +118,26 @@ impl IoError {
             path: path.to_path_buf(),
             message: message.into(),
         }
+    }
+}
+
+/// The longest piece of an offending token quoted in a message, in characters.
+pub const EXCERPT_CHARS: usize = 80;
+
+/// `text` as quoted in a message: whole when it has at most [`EXCERPT_CHARS`] characters, else
+/// its first [`EXCERPT_CHARS`] characters followed by `...` and its length in bytes.
+pub fn excerpt(text: &str) -> String {
+    match text.char_indices().nth(EXCERPT_CHARS) {
+        None => text.to_string(),
+        Some((end, _)) => format!("{}... ({} bytes)", &text[..end], text.len()),
+    }
+}
+
+/// A message from another library, cut to a few excerpts' length (it may quote a whole token).
+pub fn excerpt_long(text: &str) -> String {
+    match text.char_indices().nth(4 * EXCERPT_CHARS) {
+        None => text.to_string(),
+        Some((end, _)) => format!("{}... ({} bytes)", &text[..end], text.len()),
     }
 }
 

@@ -2,11 +2,24 @@
 //! reservoir penetration point `x, y` of that step, the measured changes (one column per target,
 //! empty cell = not measured) and an optional weight.
 //!
-//! Every error names the file, the line (the header is line 1) and, for a cell, the column.
+//! Every error names the file, the line (the header is line 1) and, for a cell, the column, and
+//! quotes at most [`super::EXCERPT_CHARS`] characters of a bad cell. The file is read through
+//! [`text::Guarded`]: a byte-order mark is skipped, CRLF and CR line ends count as one line end (so
+//! line numbers are right whatever wrote the file), and the file may hold at most
+//! [`MAX_FILE_BYTES`] bytes, a line at most [`MAX_LINE_BYTES`]. Line numbers are counted from the
+//! text itself (blank and `#` comment lines included), not taken from the CSV parser.
 
-use super::IoError;
+use super::{IoError, excerpt, text};
 use std::collections::HashMap;
+use std::io::Read;
 use std::path::Path;
+
+/// Largest wells CSV read, in bytes (512 MiB: some seven million rows).
+pub const MAX_FILE_BYTES: u64 = 512 << 20;
+/// Longest line of the wells CSV, in bytes.
+pub const MAX_LINE_BYTES: usize = 1 << 20;
+/// Why [`MAX_FILE_BYTES`], for the message.
+const WHY: &str = "the limit for a wells file";
 
 /// One row of the wells CSV.
 #[derive(Clone, Debug, PartialEq, serde::Serialize, serde::Deserialize)]
@@ -65,8 +78,12 @@ pub fn read(
     columns: &WellColumns,
     steps: &[String],
 ) -> Result<Vec<WellRecord>, IoError> {
-    let bytes = std::fs::read(path).map_err(|e| IoError::os(path, e))?;
-    parse(path, &bytes, columns, steps)
+    let (records, mut errors) = read_all(path, columns, steps)?;
+    if errors.is_empty() {
+        Ok(records)
+    } else {
+        Err(errors.swap_remove(0))
+    }
 }
 
 /// Parses wells CSV bytes already in memory; `path` labels errors. Returns the first error.
@@ -91,8 +108,13 @@ pub fn read_all(
     columns: &WellColumns,
     steps: &[String],
 ) -> Result<(Vec<WellRecord>, Vec<IoError>), IoError> {
-    let bytes = std::fs::read(path).map_err(|e| IoError::os(path, e))?;
-    parse_all(path, &bytes, columns, steps)
+    let reader = text::open(path, MAX_FILE_BYTES, WHY, MAX_LINE_BYTES).map_err(|e| {
+        match text::Limit::from_io(&e) {
+            Some(limit) => IoError::format(path, limit.to_string()),
+            None => IoError::os(path, e),
+        }
+    })?;
+    parse_reader(path, reader, columns, steps)
 }
 
 /// Parses wells CSV bytes, keeping going after a bad row (see [`read_all`]).
@@ -102,8 +124,88 @@ pub fn parse_all(
     columns: &WellColumns,
     steps: &[String],
 ) -> Result<(Vec<WellRecord>, Vec<IoError>), IoError> {
+    let reader = text::Guarded::new(
+        bytes,
+        MAX_FILE_BYTES.max(bytes.len() as u64),
+        WHY,
+        MAX_LINE_BYTES,
+    );
+    parse_reader(path, reader, columns, steps)
+}
+
+/// Line numbers of CSV records from their byte offsets in the (normalised) text. The CSV parser's
+/// own line count misses blank and comment lines just before a record, so lines are counted here:
+/// from a record's starting offset, blank and `#` lines are skipped, then the line is the number
+/// of line ends before it plus one. Offsets come in file order, so the count moves forward only.
+struct Lines<'a> {
+    text: &'a [u8],
+    /// Offset up to which line ends are counted.
+    at: usize,
+    /// 1-based line at `at`.
+    line: u64,
+}
+
+impl Lines<'_> {
+    fn of(&mut self, start: u64) -> u64 {
+        let start = usize::try_from(start)
+            .unwrap_or(usize::MAX)
+            .min(self.text.len());
+        if start >= self.at {
+            self.line += memchr_count(&self.text[self.at..start]);
+            self.at = start;
+        } else {
+            // Never expected; count afresh rather than trust a stale cursor.
+            self.line = 1 + memchr_count(&self.text[..start]);
+            self.at = start;
+        }
+        // Skip blank and comment lines: the record starts on the first other line.
+        let (mut k, mut line) = (self.at, self.line);
+        while k < self.text.len() && (self.text[k] == b'\n' || self.text[k] == b'#') {
+            match self.text[k..].iter().position(|&b| b == b'\n') {
+                Some(end) => {
+                    k += end + 1;
+                    line += 1;
+                }
+                None => break,
+            }
+        }
+        line
+    }
+}
+
+/// Line ends in `bytes`.
+fn memchr_count(bytes: &[u8]) -> u64 {
+    bytes.iter().filter(|&&b| b == b'\n').count() as u64
+}
+
+/// Parses a wells CSV from any reader, keeping going after a bad row (see [`read_all`]); wrap
+/// the reader in [`text::Guarded`] for the byte-order mark, line ends and limits.
+pub fn parse_reader<R: Read>(
+    path: &Path,
+    mut reader: R,
+    columns: &WellColumns,
+    steps: &[String],
+) -> Result<(Vec<WellRecord>, Vec<IoError>), IoError> {
+    let mut text = Vec::new();
+    if let Err(io) = reader.read_to_end(&mut text) {
+        return Err(match text::Limit::from_io(&io) {
+            Some(text::Limit::Line { line, .. }) => IoError::Line {
+                path: path.to_path_buf(),
+                line: *line,
+                message: io.to_string(),
+            },
+            Some(limit) => IoError::format(path, limit.to_string()),
+            None => IoError::os(path, io),
+        });
+    }
+    let lines = std::cell::RefCell::new(Lines {
+        text: &text,
+        at: 0,
+        line: 1,
+    });
+    let line_of = |p: Option<&csv::Position>| p.map_or(1, |p| lines.borrow_mut().of(p.byte()));
     let csv_err = |e: csv::Error| {
-        let line = e.position().map(|p| p.line()).unwrap_or(1);
+        let line = line_of(e.position());
         let message = match e.kind() {
             csv::ErrorKind::UnequalLengths {
                 expected_len, len, ..
@@ -121,29 +223,29 @@ pub fn parse_all(
         .has_headers(true)
         .trim(csv::Trim::All)
         .comment(Some(b'#'))
-        .from_reader(bytes);
+        .from_reader(text.as_slice());
     let header = rdr.headers().map_err(csv_err)?.clone();
     if header.is_empty() || header.iter().all(|h| h.is_empty()) {
         return Err(IoError::format(path, "empty file: no header line"));
     }
-    let header_line = header.position().map_or(1, |p| p.line()).max(1);
+    let header_line = line_of(header.position()).max(1);
     let mut index: HashMap<&str, usize> = HashMap::new();
     for (k, name) in header.iter().enumerate() {
         if index.insert(name, k).is_some() {
             return Err(IoError::Cell {
                 path: path.to_path_buf(),
                 line: header_line,
-                column: name.to_string(),
+                column: excerpt(name),
                 message: "column name appears twice in the header".into(),
             });
         }
     }
-    let have: Vec<&str> = header.iter().collect();
+    let have: Vec<String> = header.iter().map(excerpt).collect();
     let find = |name: &str| -> Result<usize, IoError> {
         index.get(name).copied().ok_or_else(|| IoError::Cell {
             path: path.to_path_buf(),
             line: header_line,
-            column: name.to_string(),
+            column: excerpt(name),
             message: format!("missing column (the header has: {})", have.join(", ")),
         })
     };
@@ -167,7 +269,7 @@ pub fn parse_all(
     let mut errors = Vec::new();
     let mut row = |rec: Result<csv::StringRecord, csv::Error>| -> Result<WellRecord, IoError> {
         let rec = rec.map_err(csv_err)?;
-        let line = rec.position().map(|p| p.line()).unwrap_or(0);
+        let line = line_of(rec.position());
         let cell_err = |col: &str, message: String| IoError::Cell {
             path: path.to_path_buf(),
             line,
@@ -182,7 +284,10 @@ pub fn parse_all(
             }
             match s.parse::<f64>() {
                 Ok(v) if v.is_finite() => Ok(v),
-                _ => Err(cell_err(col, format!("'{s}' is not a finite number"))),
+                _ => Err(cell_err(
+                    col,
+                    format!("'{}' is not a finite number", excerpt(s)),
+                )),
             }
         };
         let well = get(c_well).to_string();
@@ -196,7 +301,8 @@ pub fn parse_all(
             return Err(cell_err(
                 &columns.step,
                 format!(
-                    "step '{step}' is not in the manifest (steps: {})",
+                    "step '{}' is not in the manifest (steps: {})",
+                    excerpt(&step),
                     steps.join(", ")
                 ),
             ));
@@ -227,7 +333,8 @@ pub fn parse_all(
                     return Err(cell_err(
                         &t.column,
                         format!(
-                            "'{s}' is not a finite number (leave the cell empty if not measured)"
+                            "'{}' is not a finite number (leave the cell empty if not measured)",
+                            excerpt(s)
                         ),
                     ));
                 }
@@ -247,7 +354,10 @@ pub fn parse_all(
             return Err(IoError::Line {
                 path: path.to_path_buf(),
                 line,
-                message: format!("well '{well}' step '{step}' already given on line {first}"),
+                message: format!(
+                    "well '{}' step '{step}' already given on line {first}",
+                    excerpt(&well)
+                ),
             });
         }
         Ok(WellRecord {

@@ -5,9 +5,14 @@
 //! node within `snap_tolerance` (a fraction of the spacing along each axis). Nodes the file does not
 //! mention are null, and so is a value equal to the grid's null value (or `NaN`). A point that lands
 //! on no node, a second point on the same node and a malformed line are errors naming file and line.
+//!
+//! Reading streams the file through [`text::Guarded`]: a byte-order mark is skipped, CRLF and CR
+//! line ends count as one, and a file larger than its grid can need ([`max_bytes`]) or a line over
+//! [`MAX_LINE_BYTES`] stops the read with an error.
 
-use super::{IoError, atomic, check_len};
+use super::{IoError, atomic, check_len, excerpt, text};
 use crate::grid::Grid;
+use std::io::{BufRead, BufReader, Read};
 use std::path::Path;
 
 /// How many off-grid points an error lists.
@@ -112,19 +117,41 @@ fn fields(line: &str) -> impl Iterator<Item = &str> {
         .filter(|f| !f.is_empty())
 }
 
-/// Reads an XYZ text grid onto `grid`, snapping each point to its node.
+/// Longest line an XYZ reader accepts, in bytes (comments included).
+pub const MAX_LINE_BYTES: usize = 64 * 1024;
+
+/// The most bytes an XYZ file on `grid` may hold: 256 per node (a point line is under 80 bytes
+/// even with full-precision coordinates) plus 1 MiB for comments and a header.
+pub fn max_bytes(grid: &Grid) -> u64 {
+    (grid.nx as u64)
+        .saturating_mul(grid.ny as u64)
+        .saturating_mul(256)
+        .saturating_add(1 << 20)
+}
+
+/// Reads an XYZ text grid onto `grid`, snapping each point to its node. The file is read as a
+/// stream through [`text::Guarded`] and may hold at most [`max_bytes`] bytes.
 pub fn read_on_grid(path: &Path, grid: &Grid, snap_tolerance: f64) -> Result<Vec<f64>, IoError> {
-    let text = std::fs::read(path).map_err(|e| IoError::os(path, e))?;
-    let text = String::from_utf8(text).map_err(|e| {
-        let upto = &e.as_bytes()[..e.utf8_error().valid_up_to()];
-        let line = upto.iter().filter(|&&b| b == b'\n').count() as u64 + 1;
-        IoError::Line {
+    let max = max_bytes(grid);
+    let why = format!(
+        "an XYZ map of {} x {} nodes needs far less",
+        grid.nx, grid.ny
+    );
+    let reader = text::open(path, max, &why, MAX_LINE_BYTES).map_err(|e| read_error(path, e))?;
+    parse_reader(path, reader, grid, snap_tolerance)
+}
+
+/// The error for a failed read: a [`text::Limit`] names its line; anything else is the OS's.
+fn read_error(path: &Path, e: std::io::Error) -> IoError {
+    match text::Limit::from_io(&e) {
+        Some(text::Limit::Line { line, .. }) => IoError::Line {
             path: path.to_path_buf(),
-            line,
-            message: "not UTF-8 text".into(),
-        }
-    })?;
-    parse(path, &text, grid, snap_tolerance)
+            line: *line,
+            message: e.to_string(),
+        },
+        Some(limit) => IoError::format(path, limit.to_string()),
+        None => IoError::os(path, e),
+    }
 }
 
 /// Parses XYZ text already in memory; `path` labels errors.
@@ -134,14 +161,37 @@ pub fn parse(
     grid: &Grid,
     snap_tolerance: f64,
 ) -> Result<Vec<f64>, IoError> {
+    let reader = text::Guarded::new(
+        text.as_bytes(),
+        max_bytes(grid).max(text.len() as u64),
+        "",
+        MAX_LINE_BYTES,
+    );
+    parse_reader(path, reader, grid, snap_tolerance)
+}
+
+/// Parses XYZ bytes from any reader (wrap it in [`text::Guarded`] for the byte-order mark, line
+/// ends and limits); `path` labels errors.
+pub fn parse_reader<R: Read>(
+    path: &Path,
+    reader: R,
+    grid: &Grid,
+    snap_tolerance: f64,
+) -> Result<Vec<f64>, IoError> {
     let line_err = |line: u64, message: String| IoError::Line {
         path: path.to_path_buf(),
         line,
         message,
     };
-    let mut values = vec![f64::NAN; grid.len()];
+    let n_nodes = grid.nx.checked_mul(grid.ny).ok_or_else(|| {
+        IoError::format(
+            path,
+            format!("a grid of {} x {} nodes is too large", grid.nx, grid.ny),
+        )
+    })?;
+    let mut values = vec![f64::NAN; n_nodes];
     // Line that set each node (0 = none yet).
-    let mut seen = vec![0u64; grid.len()];
+    let mut seen = vec![0u64; n_nodes];
     let mut header_allowed = true;
     let mut points = 0usize;
     let mut off_count = 0usize;
@@ -149,8 +199,19 @@ pub fn parse(
     let (nxm, nym) = (grid.nx as f64 - 1.0, grid.ny as f64 - 1.0);
     let null = grid.null_value;
     let null_tol = 1e-9 * null.abs().max(1.0);
-    for (n, raw) in text.lines().enumerate() {
-        let line = n as u64 + 1;
+    let mut reader = BufReader::new(reader);
+    let mut buf: Vec<u8> = Vec::new();
+    let mut line = 0u64;
+    loop {
+        buf.clear();
+        let got = reader
+            .read_until(b'\n', &mut buf)
+            .map_err(|e| read_error(path, e))?;
+        if got == 0 {
+            break;
+        }
+        line += 1;
+        let raw = std::str::from_utf8(&buf).map_err(|_| line_err(line, "not UTF-8 text".into()))?;
         let data = match raw.find('#') {
             Some(k) => &raw[..k],
             None => raw,
@@ -186,13 +247,18 @@ pub fn parse(
                 Ok(v) if v.is_nan() && what == "value" => Ok(v),
                 _ => Err(line_err(
                     line,
-                    format!("{what} '{s}' is not a finite number"),
+                    format!("{what} '{}' is not a finite number", excerpt(s)),
                 )),
             }
         };
         let x = match first {
             Ok(v) if v.is_finite() => v,
-            _ => return Err(line_err(line, format!("x '{f0}' is not a finite number"))),
+            _ => {
+                return Err(line_err(
+                    line,
+                    format!("x '{}' is not a finite number", excerpt(f0)),
+                ));
+            }
         };
         let y = num(f1, "y")?;
         let v = num(f2, "value")?;

@@ -63,15 +63,10 @@ pub fn infill_section(
 ) -> ri::InfillSection {
     ri::InfillSection {
         criterion: infill.criterion.clone(),
-        volume_unit: if project
+        volume_unit: project
             .infill
             .as_ref()
-            .is_some_and(|s| s.volume_map.is_some())
-        {
-            "m3".into()
-        } else {
-            "nodes".into()
-        },
+            .map_or_else(|| "nodes".into(), |s| s.risked_volume_unit()),
         picture: Some(picture),
         rows: infill
             .targets

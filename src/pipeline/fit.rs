@@ -86,6 +86,7 @@ pub fn thresholds_for(project: &Project, t: usize) -> Vec<Threshold> {
 /// Calibrates target `t` on the rows `rows` of the training set, using only the feature columns
 /// `cols` (all columns for the main run; fewer for ablation studies). With `shift` (one ratio per
 /// training-set row), the band is calibrated for the mapped nodes ([`calibrate::shift`]).
+#[allow(clippy::too_many_arguments)]
 pub fn calibrate_rows(
     project: &Project,
     ts: &TrainingSet,
@@ -267,14 +268,5 @@ pub fn fit_model(
 
 /// Distinct (well, x, y) positions of the survey's well records, in file order.
 pub fn well_positions(survey: &Survey) -> Vec<(String, f64, f64)> {
-    let mut out: Vec<(String, f64, f64)> = Vec::new();
-    for r in &survey.wells {
-        if !out
-            .iter()
-            .any(|(n, x, y)| n == &r.well && *x == r.x && *y == r.y)
-        {
-            out.push((r.well.clone(), r.x, r.y));
-        }
-    }
-    out
+    crate::sample::well_positions(survey)
 }

@@ -100,7 +100,7 @@ pub fn predict(
     }
     let mut inputs: Vec<PathBuf> = p.input_paths();
     inputs.push(model_path.to_path_buf());
-    let mut w = Writer::new(out, &inputs, formats)?;
+    let mut w = Writer::with_record(out, &inputs, formats, "predict.json")?;
     let mut warnings = Vec::new();
     let grid = match tile {
         Some(t) => t.grid(&p.grid),
@@ -139,6 +139,6 @@ pub fn predict(
         cautions: super::CAUTIONS.iter().map(|s| s.to_string()).collect(),
         files: w.written.clone(),
     };
-    w.json("predict.json", &record)?;
+    w.finish(&record)?;
     Ok(record)
 }

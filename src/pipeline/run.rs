@@ -109,6 +109,10 @@ pub fn run(opts: &RunOptions) -> Result<RunOutcome, PipelineError> {
     let survey = load(&opts.project)?;
     let project = &survey.project;
     let (ts, left_out) = sample::at_wells(&survey);
+    // The verdict `check` gives, before anything is written.
+    crate::check::ensure_runnable(&survey, &ts)
+        .map_err(|e| PipelineError::Invalid(e.to_string()))?;
+    project.read_volume_map()?;
     let mut w = Writer::new(&opts.out, &project.input_paths(), opts.formats)?;
     let seed = opts.seed.unwrap_or(project.model.seed);
     // Warnings of no single target; the page shows target warnings beside their target.
@@ -160,12 +164,9 @@ pub fn run(opts: &RunOptions) -> Result<RunOutcome, PipelineError> {
 
     let warnings = warnings(run_warnings, &model);
     let record = run_record(opts, project, seed, &model, &stages, warnings, &w.written);
-    w.json("run.json", &record)?;
-    Ok(RunOutcome {
-        out: w.root.clone(),
-        model,
-        record,
-    })
+    let out = w.root.clone();
+    w.finish(&record)?;
+    Ok(RunOutcome { out, model, record })
 }
 
 /// Predicts every node of every step, writes the maps and `maps/metadata.json`, and returns the

@@ -99,8 +99,25 @@ pub fn infill(
         },
         &settings,
     )?;
-    w.bytes("targets.csv", decide::to_csv(&targets).as_bytes())?;
     let th = model.thresholds_of(t)[k];
+    let table = decide::TargetsTable {
+        step: project.steps[s].name.clone(),
+        threshold_label: th.label.clone(),
+        criterion: format!(
+            "{} not {} {} (not {})",
+            th.target,
+            match th.direction {
+                crate::project::Direction::Above => "above",
+                crate::project::Direction::Below => "below",
+            },
+            th.value,
+            th.label
+        ),
+        volume_unit: spec.risked_volume_unit(),
+        crs: decide::crs_label(&project.grid),
+    };
+    w.bytes("targets.csv", decide::to_csv(&targets, &table).as_bytes())?;
+    w.json("targets.json", &table.sidecar(&targets))?;
     let criterion = format!(
         "the chance that {} is not {} (not {}), step {}",
         th.target,

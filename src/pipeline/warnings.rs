@@ -82,6 +82,7 @@ mod tests {
             well: "P7".into(),
             step: "m2".into(),
             reason: "point (1, 2) lies outside the grid (wells.csv line 9)".into(),
+            kind: "outside the grid".into(),
         };
         assert_eq!(
             RunWarning::extraction(&w).to_string(),

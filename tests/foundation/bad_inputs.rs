@@ -35,6 +35,43 @@ fn set_line(dir: &Path, rel: &str, n: usize, line: &str) {
     std::fs::write(&path, lines.join("\n") + "\n").unwrap();
 }
 
+/// Appends `text` to `dir/rel`.
+fn append(dir: &Path, rel: &str, text: &str) {
+    let path = dir.join(rel);
+    let mut t = std::fs::read_to_string(&path).unwrap();
+    t.push_str(text);
+    std::fs::write(&path, t).unwrap();
+}
+
+/// Sets the value count (or, for a one-value SHORT/LONG entry, the value) of IFD entries of a
+/// little-endian classic TIFF written by tidemark: `(tag, n)` pairs. Sizes and counts are the
+/// header fields a hostile file would inflate.
+fn patch_tiff(dir: &Path, rel: &str, patches: &[(u16, u32)]) {
+    let path = dir.join(rel);
+    let mut b = std::fs::read(&path).unwrap();
+    assert_eq!(&b[..4], b"II*\0", "little-endian classic TIFF");
+    let ifd = u32::from_le_bytes(b[4..8].try_into().unwrap()) as usize;
+    let n = u16::from_le_bytes(b[ifd..ifd + 2].try_into().unwrap()) as usize;
+    for &(tag, value) in patches {
+        let at = (0..n)
+            .map(|k| ifd + 2 + 12 * k)
+            .find(|&e| u16::from_le_bytes(b[e..e + 2].try_into().unwrap()) == tag)
+            .unwrap_or_else(|| panic!("tag {tag} not in {rel}"));
+        let typ = u16::from_le_bytes(b[at + 2..at + 4].try_into().unwrap());
+        let count = u32::from_le_bytes(b[at + 4..at + 8].try_into().unwrap());
+        if count == 1 && typ == 3 {
+            // A SHORT value sits in the entry itself; make it a LONG to hold 100000.
+            b[at + 2..at + 4].copy_from_slice(&4u16.to_le_bytes());
+            b[at + 8..at + 12].copy_from_slice(&value.to_le_bytes());
+        } else if count == 1 && typ == 4 {
+            b[at + 8..at + 12].copy_from_slice(&value.to_le_bytes());
+        } else {
+            b[at + 4..at + 8].copy_from_slice(&value.to_le_bytes());
+        }
+    }
+    std::fs::write(&path, b).unwrap();
+}
+
 const TS: &str = "maps/m1/time_shift.xyz";
 const NA: &str = "maps/m2/near_amp.tif";
 const W: &str = "wells.csv";
@@ -331,6 +368,205 @@ fn cases() -> Vec<Case> {
                 "needs at least 9",
             ],
         ),
+        // Sizes that drive memory or time: refused in the manifest, naming the key and limit.
+        err(
+            "grid of 4e9 x 5 nodes",
+            |d| edit(d, P, "nx = 6", "nx = 4000000000"),
+            &[
+                "project.toml",
+                "grid.nx * grid.ny",
+                "at most 50000000 nodes",
+            ],
+        ),
+        err(
+            "grid of i64::MAX x 5 nodes",
+            |d| edit(d, P, "nx = 6", "nx = 9223372036854775807"),
+            &[
+                "project.toml",
+                "grid.nx * grid.ny",
+                "at most 50000000 nodes",
+            ],
+        ),
+        err(
+            "grid whose node count wraps to zero",
+            |d| {
+                edit(d, P, "nx = 6", "nx = 4294967296");
+                edit(d, P, "ny = 5", "ny = 4294967296");
+            },
+            &[
+                "project.toml",
+                "4294967296 * 4294967296 = 18446744073709551616",
+                "at most 50000000 nodes",
+            ],
+        ),
+        err(
+            "i64::MAX trees",
+            |d| append(d, P, "\n[model]\ntrees = 9223372036854775807\n"),
+            &["project.toml", "model.trees", "at most 10000"],
+        ),
+        err(
+            "a billion trees",
+            |d| append(d, P, "\n[model]\ntrees = 1000000000\n"),
+            &["project.toml", "model.trees = 1000000000", "at most 10000"],
+        ),
+        err(
+            "i64::MAX boosting rounds",
+            |d| append(d, P, "\n[model]\nboost_rounds = 9223372036854775807\n"),
+            &["project.toml", "model.boost_rounds", "at most 10000"],
+        ),
+        err(
+            "i64::MAX Mondrian bins",
+            |d| {
+                edit(
+                    d,
+                    P,
+                    "folds = 4",
+                    "folds = 4\nmax_bins = 9223372036854775807",
+                )
+            },
+            &["project.toml", "calibration.max_bins", "at most 100"],
+        ),
+        err(
+            "i64::MAX folds",
+            |d| edit(d, P, "folds = 4", "folds = 9223372036854775807"),
+            &["project.toml", "calibration.folds", "at most 1000"],
+        ),
+        err(
+            "drainage radius of 1e308",
+            |d| {
+                append(
+                    d,
+                    P,
+                    "\n[infill]\nthreshold = \"swept\"\ndrainage_radius = 1e308\n",
+                )
+            },
+            &[
+                "project.toml",
+                "infill.drainage_radius = 1e308",
+                "at most 1000 node spacings",
+            ],
+        ),
+        err(
+            "learning-curve repeats over the limit",
+            |d| append(d, P, "\n[report]\nlearning_curve_repeats = 1000000\n"),
+            &[
+                "project.toml",
+                "report.learning_curve_repeats",
+                "at most 100",
+            ],
+        ),
+        err(
+            "step name of 300 characters",
+            |d| {
+                edit(
+                    d,
+                    P,
+                    "name = \"m2\"",
+                    &format!("name = \"{}\"", "m".repeat(300)),
+                )
+            },
+            &["project.toml", "is 300 bytes long", "at most 64 bytes"],
+        ),
+        // GeoTIFF headers are not trusted with memory.
+        err(
+            "GeoTIFF declaring 2^30 tie-point values",
+            |d| patch_tiff(d, NA, &[(33922, 1 << 30)]),
+            &["near_amp.tif", "ModelTiepointTag", "declares more data"],
+        ),
+        err(
+            "GeoTIFF declaring 100000 x 100000 pixels",
+            |d| patch_tiff(d, NA, &[(256, 100_000), (257, 100_000), (278, 100_000)]),
+            &["near_amp.tif", "size 100000 x 100000 nodes, expected 6 x 5"],
+        ),
+        err(
+            "XYZ token of 60 kB",
+            |d| {
+                let f = line_fields(d, TS, 5);
+                set_line(
+                    d,
+                    TS,
+                    5,
+                    &format!("{} {} {}", f[0], f[1], "9".repeat(60_000) + "x"),
+                );
+            },
+            &[
+                "time_shift.xyz, line 5",
+                "value '99999",
+                "... (60001 bytes)",
+            ],
+        ),
+        err(
+            "XYZ line of 100 kB",
+            |d| {
+                let f = line_fields(d, TS, 5);
+                set_line(
+                    d,
+                    TS,
+                    5,
+                    &format!("{} {} 1 # {}", f[0], f[1], "z".repeat(100_000)),
+                );
+            },
+            &["time_shift.xyz, line 5", "longer than 65536 bytes"],
+        ),
+        err(
+            "XYZ map far larger than its grid needs",
+            |d| append(d, TS, &"# padding\n".repeat(200_000)),
+            &["time_shift.xyz", "more than", "needs far less"],
+        ),
+        err(
+            "wells CSV cell of 1 MB",
+            |d| {
+                let mut f = line_fields(d, W, 3);
+                f[1] = "7".repeat(500_000) + "?";
+                set_line(d, W, 3, &f.join(","));
+            },
+            &["wells.csv, line 3, column 'x'", "... (500001 bytes)"],
+        ),
+        err(
+            "map that is a device of endless zeros",
+            |d| edit(d, P, "maps/m1/time_shift.xyz", "/dev/zero"),
+            &["/dev/zero", "line 1 is longer than 65536 bytes"],
+        ),
+        err(
+            "map that is a folder",
+            |d| edit(d, P, "maps/m1/time_shift.xyz", "maps"),
+            &["maps", "is a folder"],
+        ),
+        err(
+            "no usable well row",
+            |d| {
+                let text = std::fs::read_to_string(d.join(W)).unwrap();
+                let mut lines = text.lines();
+                let mut out = format!("{}\n", lines.next().unwrap());
+                for l in lines {
+                    let mut f: Vec<&str> = l.split(',').collect();
+                    f[1] = "9000";
+                    out.push_str(&f.join(","));
+                    out.push('\n');
+                }
+                std::fs::write(d.join(W), out).unwrap();
+            },
+            &["wells.csv", "no well row is usable for training"],
+        ),
+        err(
+            "three wells for four folds",
+            |d| {
+                let text = std::fs::read_to_string(d.join(W)).unwrap();
+                let keep: Vec<&str> = text
+                    .lines()
+                    .filter(|l| {
+                        ["well", "W0,", "W1,", "W2,"]
+                            .iter()
+                            .any(|p| l.starts_with(p))
+                    })
+                    .collect();
+                std::fs::write(d.join(W), keep.join("\n") + "\n").unwrap();
+            },
+            &[
+                "target 'dSw' is measured at 3 usable well(s)",
+                "needs at least 4",
+            ],
+        ),
         Case {
             name: "well outside the grid",
             mutate: |d| {
@@ -351,7 +587,7 @@ fn cases() -> Vec<Case> {
 #[test]
 fn bad_inputs_table() {
     let cases = cases();
-    assert!(cases.len() >= 15);
+    assert!(cases.len() >= 50);
     for case in &cases {
         let dir = tempfile::tempdir().unwrap();
         let manifest = tiny_project(dir.path());
@@ -378,6 +614,15 @@ fn bad_inputs_table() {
             "case '{}': no {severity:?} containing {:?}\n{report}",
             case.name, case.expect
         );
+        // No message echoes a huge token (each quotes at most 80 characters of one).
+        for p in &report.problems {
+            assert!(
+                p.message.len() < 1000,
+                "case '{}': a message of {} bytes",
+                case.name,
+                p.message.len()
+            );
+        }
         assert_eq!(
             list_files(dir.path()),
             before,

@@ -148,3 +148,157 @@ fn outputs_may_not_overwrite_inputs() {
         tidemark::io::atomic::ensure_not_input(&dir.path().join("out/p50.tif"), &inputs).is_ok()
     );
 }
+
+/// Replaces 1-based line `n` of `dir/wells.csv` by `f(line)`.
+fn edit_well_line(dir: &std::path::Path, n: usize, f: impl Fn(&str) -> String) {
+    let path = dir.join("wells.csv");
+    let text = std::fs::read_to_string(&path).unwrap();
+    let mut lines: Vec<String> = text.lines().map(str::to_string).collect();
+    lines[n - 1] = f(&lines[n - 1]);
+    std::fs::write(&path, lines.join("\n") + "\n").unwrap();
+}
+
+#[test]
+fn repeated_problems_become_one_line_with_a_count() {
+    let dir = tempfile::tempdir().unwrap();
+    let manifest = tiny_project(dir.path());
+    // Every map a GeoTIFF with another EPSG code: four files, one problem.
+    let g = tidemark::grid::Grid {
+        epsg: Some(32632),
+        ..tiny_grid()
+    };
+    for (s, step) in TINY_STEPS.iter().enumerate() {
+        for (a, attr) in TINY_ATTRIBUTES.iter().enumerate() {
+            let rel = format!("maps/{step}/{attr}.tif");
+            tidemark::io::geotiff::write(&dir.path().join(&rel), &g, &tiny_map(s, a), None)
+                .unwrap();
+        }
+    }
+    let text = std::fs::read_to_string(&manifest)
+        .unwrap()
+        .replace("time_shift.xyz", "time_shift.tif");
+    std::fs::write(&manifest, text).unwrap();
+    // Five rows naming a step the manifest lacks: one problem.
+    for n in 2..=6 {
+        edit_well_line(dir.path(), n, |l| {
+            l.replace(",m1,", ",m9,").replace(",m2,", ",m9,")
+        });
+    }
+    let report = check_project(&manifest);
+    let errors: Vec<&tidemark::check::Problem> = report
+        .problems
+        .iter()
+        .filter(|p| p.severity == Severity::Error)
+        .collect();
+    assert_eq!(errors.len(), 2, "{report}");
+    assert!(
+        errors[0]
+            .message
+            .contains("EPSG:32632, expected EPSG:32631 (4 files: "),
+        "{report}"
+    );
+    assert!(errors[0].message.ends_with(" and 1 more)"), "{report}");
+    assert_eq!(errors[0].count, 4);
+    assert!(
+        errors[1]
+            .message
+            .contains("wells.csv, column 'step': step 'm9' is not in the manifest"),
+        "{report}"
+    );
+    assert!(
+        errors[1].message.contains("(5 lines: 2, 3, 4 and 2 more)"),
+        "{report}"
+    );
+}
+
+#[test]
+fn swapped_coordinates_get_a_hint() {
+    let dir = tempfile::tempdir().unwrap();
+    // A square grid around the diagonal, so that (y, x) of a well lies inside when (x, y) does.
+    let manifest = tiny_project(dir.path());
+    edit_well_line(dir.path(), 1, |l| l.replace("well,x,y,", "well,y,x,"));
+    // With the columns swapped every point lies outside the tiny grid (x 1000-1050,
+    // y 2000-2040), and swapped back it lies inside.
+    let report = check_project(&manifest);
+    assert!(!report.runnable);
+    let text = report.to_string();
+    assert!(
+        text.contains("16 well row(s) outside the grid would lie inside it with x and y swapped"),
+        "{text}"
+    );
+    // The sixteen rows left out are one grouped warning.
+    assert!(
+        text.contains("well rows left out of training: point outside the grid (inside with x and y swapped) (16 rows: well 'W0' step 'm1'"),
+        "{text}"
+    );
+}
+
+#[test]
+fn a_value_far_from_the_other_wells_is_flagged_with_its_line() {
+    let dir = tempfile::tempdir().unwrap();
+    let manifest = tiny_project(dir.path());
+    // Well W3 step m2 is line 2 + 2 * 3 + 1 = 9; its dSw 0.15 becomes 0.9, as if percent had
+    // been meant (0.9 % = 0.009) among fractions. By hand (Iglewicz & Hoaglin 1993 modified
+    // z-score): the m2 values 0, 0.05, 0.1, 0.9, 0.2, 0.25, 0.3, 0.35 have median 0.225 and
+    // median absolute deviation 0.125, so z = 0.6745 * 0.675 / 0.125 = 3.64 > 3.5, and the next
+    // value lies 0.225 from the median, 3 times closer.
+    edit_well_line(dir.path(), 9, |l| {
+        let mut f: Vec<&str> = l.split(',').collect();
+        assert_eq!((f[0], f[3]), ("W3", "m2"));
+        assert!((f[4].parse::<f64>().unwrap() - 0.15).abs() < 1e-12);
+        f[4] = "0.9";
+        f.join(",")
+    });
+    let report = check_project(&manifest);
+    assert!(report.runnable, "a warning only: {report}");
+    let flagged: Vec<&str> = report
+        .problems
+        .iter()
+        .filter(|p| p.message.contains("far outside the other wells' values"))
+        .map(|p| p.message.as_str())
+        .collect();
+    assert_eq!(flagged.len(), 1, "{report}");
+    assert!(
+        flagged[0].contains("wells.csv, line 9, column 'dSw': 0.9 at well 'W3' step 'm2'"),
+        "{}",
+        flagged[0]
+    );
+    assert!(flagged[0].contains("modified z-score 4"), "{}", flagged[0]);
+}
+
+#[test]
+fn modified_z_scores_match_the_formula_by_hand() {
+    // Iglewicz & Hoaglin (1993): M = 0.6745 (x - median) / MAD. For 1, 2, 3, 4, 100: median 3,
+    // absolute deviations 2, 1, 0, 1, 97, MAD 1, so M = 0.6745 * (-2, -1, 0, 1, 97).
+    let z = tidemark::check::modified_z(&[1.0, 2.0, 3.0, 4.0, 100.0]).unwrap();
+    let by_hand = [-1.349, -0.6745, 0.0, 0.6745, 65.4265];
+    for (a, b) in z.iter().zip(by_hand) {
+        assert!((a - b).abs() < 1e-12, "{z:?}");
+    }
+    assert_eq!(
+        tidemark::check::lone_outliers(&[1.0, 2.0, 3.0, 4.0, 100.0]),
+        vec![4]
+    );
+    // A tail of large values is not one value standing alone.
+    assert!(tidemark::check::lone_outliers(&[1.0, 2.0, 3.0, 4.0, 90.0, 100.0]).is_empty());
+    // Fewer than five values, or no spread: nothing is judged.
+    assert!(tidemark::check::lone_outliers(&[1.0, 2.0, 3.0, 100.0]).is_empty());
+    assert!(tidemark::check::modified_z(&[2.0, 2.0, 2.0, 5.0]).is_none());
+}
+
+#[test]
+fn a_manifest_error_says_what_was_not_checked() {
+    let dir = tempfile::tempdir().unwrap();
+    let manifest = tiny_project(dir.path());
+    // A syntax error, and a broken map that therefore goes unchecked.
+    let text = std::fs::read_to_string(&manifest)
+        .unwrap()
+        .replace("nx = 6", "nx = = 6");
+    std::fs::write(&manifest, text).unwrap();
+    std::fs::remove_file(dir.path().join("maps/m1/near_amp.tif")).unwrap();
+    let report = check_project(&manifest);
+    assert_eq!(report.problems.len(), 1, "{report}");
+    let m = &report.problems[0].message;
+    assert!(m.contains("project.toml, line 9"), "{m}");
+    assert!(m.contains("nothing else was checked"), "{m}");
+}

@@ -4,7 +4,10 @@
 mod bad_inputs;
 mod check;
 pub(crate) mod fixtures;
+mod fuzz;
 mod geotiff;
 mod grid;
+mod outputs;
+mod readers;
 mod sample;
 mod xyz;

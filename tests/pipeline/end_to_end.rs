@@ -91,6 +91,7 @@ fn every_expected_file_exists_and_gdal_reads_each_map() {
         "summary.json",
         "model.json",
         "targets.csv",
+        "targets.json",
         "report.html",
         "truth-score.json",
         "maps/metadata.json",
@@ -180,24 +181,37 @@ fn infill_targets_respect_spacing_and_applicability() {
         .infill
         .clone()
         .expect("the synthetic project asks for infill targets");
-    let csv = std::fs::read_to_string(f.out.join("targets.csv")).unwrap();
-    let mut rows = csv.lines();
-    assert!(
-        rows.next()
-            .unwrap()
-            .starts_with("rank,x,y,chance,risked_volume")
+    let mut rdr = csv::Reader::from_path(f.out.join("targets.csv")).unwrap();
+    let header: Vec<String> = rdr.headers().unwrap().iter().map(str::to_string).collect();
+    let col = |name: &str| header.iter().position(|h| h == name).unwrap();
+    let last = project.steps.last().unwrap().name.clone();
+    assert_eq!(
+        header[..5],
+        [
+            "rank",
+            "step",
+            "x",
+            "y",
+            &format!("p_not_{}", spec.threshold)
+        ]
     );
-    let targets: Vec<Vec<String>> = rows
-        .map(|l| l.split(',').map(str::to_string).collect())
+    let targets: Vec<Vec<String>> = rdr
+        .records()
+        .map(|r| r.unwrap().iter().map(str::to_string).collect())
         .collect();
     assert!(!targets.is_empty());
-    let last = project.steps.last().unwrap().name.clone();
+    let sidecar: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(f.out.join("targets.json")).unwrap()).unwrap();
+    assert_eq!(sidecar["step"], last.as_str());
+    assert_eq!(sidecar["targets"].as_array().unwrap().len(), targets.len());
     let inside =
         tidemark::io::geotiff::read(&f.out.join(format!("maps/{last}/inside.tif"))).unwrap();
     let g = &inside.grid;
+    let (cx, cy, cd) = (col("x"), col("y"), col("nearest_well_distance"));
     for (a, t) in targets.iter().enumerate() {
-        let (x, y): (f64, f64) = (t[1].parse().unwrap(), t[2].parse().unwrap());
-        let d: f64 = t[6].parse().unwrap();
+        assert_eq!(t[col("step")], last);
+        let (x, y): (f64, f64) = (t[cx].parse().unwrap(), t[cy].parse().unwrap());
+        let d: f64 = t[cd].parse().unwrap();
         assert!(
             d >= spec.min_well_spacing,
             "target {a} at {d} m from a well"
@@ -209,7 +223,7 @@ fn infill_targets_respect_spacing_and_applicability() {
             "target {a} outside the area of applicability"
         );
         for u in &targets[a + 1..] {
-            let (ux, uy): (f64, f64) = (u[1].parse().unwrap(), u[2].parse().unwrap());
+            let (ux, uy): (f64, f64) = (u[cx].parse().unwrap(), u[cy].parse().unwrap());
             assert!((x - ux).hypot(y - uy) >= spec.min_target_spacing);
         }
     }
