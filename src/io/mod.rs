@@ -131,7 +131,9 @@ pub fn read_map(path: &Path, grid: &Grid, snap_tolerance: f64) -> Result<Vec<f64
     }
 }
 
-/// Writes a map: `.tif`/`.tiff` as float32 GeoTIFF, anything else as XYZ text. Atomic.
+/// Writes a map: `.tif`/`.tiff` as float32 GeoTIFF, anything else as XYZ text with its GDAL
+/// sidecar (see [`xyz`]). Atomic. `description` goes to the GeoTIFF's ImageDescription or the
+/// sidecar's metadata.
 pub fn write_map(
     path: &Path,
     grid: &Grid,
@@ -153,9 +155,16 @@ pub fn write_map_with(
     if is_geotiff(path) {
         geotiff::write(path, grid, values, description)
     } else if let Some(c) = coords {
-        xyz::write_with_coordinates(path, grid, values, c)
+        xyz::write_described(path, grid, values, description, c)
     } else {
-        xyz::write(path, grid, values)
+        check_len(path, grid, values)?;
+        xyz::write_described(
+            path,
+            grid,
+            values,
+            description,
+            &xyz::Coordinates::new(grid),
+        )
     }
 }
 

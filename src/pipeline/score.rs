@@ -210,10 +210,14 @@ pub fn score(results: &Path, truth: &Path) -> Result<(TruthScore, ErrorMaps), Pi
                     .map(|th| read(base(&format!("exceed_{}", th.label))))
                     .collect::<Result<_, _>>()?,
             };
-            let inside: Vec<bool> = read(dir.join("inside.tif"))?
-                .iter()
-                .map(|v| *v == 1.0)
-                .collect();
+            // Results folders written before the maps were renamed call it inside.tif.
+            let area = dir.join("applicable.tif");
+            let area = if area.exists() {
+                area
+            } else {
+                dir.join("inside.tif")
+            };
+            let inside: Vec<bool> = read(area)?.iter().map(|v| *v == 1.0).collect();
             steps.push(StepScore {
                 step: step.clone(),
                 scores: scores(&model, t, &data, &inside, &away),

@@ -8,3 +8,4 @@ mod geotiff;
 mod grid;
 mod sample;
 mod xyz;
+mod xyz_gdal;

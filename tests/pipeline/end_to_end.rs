@@ -110,8 +110,8 @@ fn every_expected_file_exists_and_gdal_reads_each_map() {
             "dSw_exceed_swept",
             "dP_exceed_depleted",
             "dSg_exceed_gas_out",
-            "applicability",
-            "inside",
+            "dissimilarity",
+            "applicable",
             "outside_range",
         ] {
             assert!(o.join(format!("maps/{step}/{m}.tif")).is_file(), "{m}");
@@ -156,7 +156,7 @@ fn pictures_have_the_expected_size_and_are_not_blank() {
     let dir = f.out.join("pictures");
     let mut seen = 0;
     for step in ["m1", "m3"] {
-        for name in ["dSw_p50", "dSw_width", "dSw_exceed_swept", "applicability"] {
+        for name in ["dSw_p50", "dSw_width", "dSw_exceed_swept", "dissimilarity"] {
             let p = dir.join(step).join(format!("{name}.png"));
             let (w, h, var) = png_size_and_variance(&p);
             assert_eq!(
@@ -193,7 +193,7 @@ fn infill_targets_respect_spacing_and_applicability() {
     assert!(!targets.is_empty());
     let last = project.steps.last().unwrap().name.clone();
     let inside =
-        tidemark::io::geotiff::read(&f.out.join(format!("maps/{last}/inside.tif"))).unwrap();
+        tidemark::io::geotiff::read(&f.out.join(format!("maps/{last}/applicable.tif"))).unwrap();
     let g = &inside.grid;
     for (a, t) in targets.iter().enumerate() {
         let (x, y): (f64, f64) = (t[1].parse().unwrap(), t[2].parse().unwrap());
@@ -260,7 +260,7 @@ fn same_seed_same_maps_and_tiles_put_together_equal_the_whole() {
         predict(&model, &f.project, &dir, Some(tile), formats).expect("tile");
         tiles.push((tile, dir));
     }
-    for name in ["dSw_p50", "dP_p10", "dSg_exceed_gas_out", "applicability"] {
+    for name in ["dSw_p50", "dP_p10", "dSg_exceed_gas_out", "dissimilarity"] {
         let whole =
             tidemark::io::geotiff::read(&f.out.join(format!("maps/m2/{name}.tif"))).unwrap();
         let mut stitched: Vec<f64> = Vec::new();
