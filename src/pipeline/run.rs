@@ -559,13 +559,10 @@ pub fn run(opts: &RunOptions) -> Result<RunOutcome, PipelineError> {
 
     if opts.pictures {
         let mut entries = Vec::new();
+        let setting = super::pictures::MapSetting::of_survey(&survey, &model);
         for (s, step) in project.steps.iter().enumerate() {
             entries.extend(super::pictures::step_pictures(
-                &mut w,
-                &model,
-                &project.grid,
-                &step.name,
-                &kept[s],
+                &mut w, &model, &setting, &step.name, &kept[s],
             )?);
         }
         let infill_section = match &infill {
@@ -582,8 +579,8 @@ pub fn run(opts: &RunOptions) -> Result<RunOutcome, PipelineError> {
                 },
                 picture: Some(super::pictures::infill_picture(
                     &mut w,
-                    &model,
-                    &project.grid,
+                    &setting,
+                    &project.steps[i.step].name,
                     &i.chance,
                     &kept[i.step].applicability.inside,
                     &i.targets,
@@ -601,6 +598,7 @@ pub fn run(opts: &RunOptions) -> Result<RunOutcome, PipelineError> {
                         nearest_well: t.nearest_well.clone(),
                         distance: t.nearest_distance.is_finite().then_some(t.nearest_distance),
                         inside: t.inside,
+                        drainage_inside_fraction: Some(t.drainage_inside_fraction),
                     })
                     .collect(),
             }),
