@@ -1,11 +1,12 @@
-//! Reading and writing field data: XYZ text grids, GeoTIFF rasters, the wells CSV, and the atomic
-//! writer every output goes through.
+//! Reading and writing field data: XYZ text grids, GeoTIFF rasters, the wells CSV, polylines to
+//! draw over maps, and the atomic writer every output goes through.
 //!
 //! Every error names the file and, where there is one, the line, record or column at fault. In
 //! memory a null node is `NaN`; the grid's null value only exists in files.
 
 pub mod atomic;
 pub mod geotiff;
+pub mod polylines;
 pub mod wells;
 pub mod xyz;
 

@@ -96,6 +96,16 @@ impl MapSetting {
         }
     }
 
+    /// Reads outline and fault polylines (see [`crate::io::polylines`]) to draw over every map.
+    pub fn add_lines(&mut self, paths: &[std::path::PathBuf]) -> Result<(), PipelineError> {
+        for path in paths {
+            for p in crate::io::polylines::read(path)? {
+                self.lines.push(MapLine { points: p.points });
+            }
+        }
+        Ok(())
+    }
+
     /// The setting of a survey's maps (see [`MapSetting::new`]).
     pub fn of_survey(survey: &crate::project::Survey, model: &SavedModel) -> Self {
         let p = &survey.project;

@@ -193,8 +193,10 @@ mod tests {
                 );
             }
         }
-        // The first takes the preferred spot: upper right of its point.
-        assert!(boxes[0].x0 > req[0].x && boxes[0].y1 < req[0].y + 1.0);
+        // A point alone takes the preferred spot: to the upper right, without a leader.
+        let one = place(&req[..1], &[], frame, 3.0)[0].unwrap();
+        assert!(!one.leader);
+        assert!(one.rect.x0 > req[0].x && one.rect.y1 < req[0].y, "{one:?}");
     }
 
     #[test]

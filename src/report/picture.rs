@@ -504,14 +504,16 @@ impl MapView {
 /// Number of colour classes a map and its colour bar are drawn with. More than the eye tells
 /// apart on a continuous ramp, and few enough that a map, its colour bar and the greys of its
 /// text fit the 256 colours of an indexed (palette) PNG.
-pub const COLOUR_LEVELS: usize = 128;
+/// An odd number, so that the middle class holds the centre of a diverging scale exactly.
+pub const COLOUR_LEVELS: usize = 127;
 
-/// The colour of scale position `t` in `[0, 1]`, taken at the centre of its class of
-/// [`COLOUR_LEVELS`] equal classes.
+/// The colour of scale position `t` in `[0, 1]`: `t` falls in one of [`COLOUR_LEVELS`] equal
+/// classes, and class `k` takes the colour map's colour at `k / (COLOUR_LEVELS - 1)`, so the
+/// first and last classes show the map's end colours and the middle class its centre.
 pub fn level_colour(scale: &ColourScale, t: f64) -> Rgb {
     let n = COLOUR_LEVELS as f64;
     let k = (t.clamp(0.0, 1.0) * n).floor().min(n - 1.0);
-    scale.colormap().rgb((k + 0.5) / n)
+    scale.colormap().rgb(k / (n - 1.0))
 }
 
 /// Spacing in pixels of the hatch lines over nodes outside the area of applicability.

@@ -584,3 +584,63 @@ fn geometry_from_grid_keeps_node_positions() {
     assert!((x - (1000.0 + 6.0 * 12.5 * r.cos() - 4.0 * 25.0 * r.sin())).abs() < 1e-9);
     assert!((y - (2000.0 + 6.0 * 12.5 * r.sin() + 4.0 * 25.0 * r.cos())).abs() < 1e-9);
 }
+
+// Outlines and fault traces are drawn over the cells: a line across a flat map adds a band of
+// black pixels about as long as the map is wide. The picture (rotated grid, every well symbol,
+// a ranked target, an outline) is kept in the target folder for a look.
+#[test]
+fn outlines_are_drawn_over_a_rotated_map() {
+    let (nx, ny) = (60, 40);
+    let g = MapGeometry {
+        origin_x: 20000.0,
+        origin_y: 40000.0,
+        dx: 50.0,
+        dy: 50.0,
+        nx,
+        ny,
+        rotation_deg: 30.0,
+    };
+    let v = field(nx, ny, 5);
+    let (x0, x1, y0, y1) = g.extent();
+    let ym = (y0 + y1) / 2.0;
+    let lines = [MapLine {
+        points: vec![(x0 - 100.0, ym), (x1 + 100.0, ym)],
+    }];
+    let (cx, cy) = g.node_xy(30, 20);
+    let symbols = [
+        WellSymbol::Producer,
+        WellSymbol::Injector,
+        WellSymbol::Observer,
+        WellSymbol::Unknown,
+    ];
+    let wells: Vec<MapWell> = (0..8)
+        .map(|k| MapWell {
+            x: cx + 40.0 * k as f64,
+            y: cy - 300.0 + 25.0 * k as f64,
+            name: format!("SKB-W{k}"),
+            symbol: symbols[k % 4],
+        })
+        .collect();
+    let markers = vec![(cx - 400.0, cy + 200.0, "#1".to_string())];
+    let outside: Vec<bool> = (0..nx * ny).map(|k| k % nx < 12).collect();
+    let mut p = picture(g, &v);
+    p.scale = ColourScale::diverging_from(&v);
+    p.title = "dSw P50 (most likely change)".to_string();
+    p.subtitle = "step m2: monitor 2019-06-01 minus base 2016-06-01".to_string();
+    p.crs = "local engineering coordinates in metres".to_string();
+    p.wells = &wells;
+    p.markers = &markers;
+    p.outside = Some(&outside);
+    let black = |png: &[u8]| decode(png).rgb.iter().filter(|c| **c == [0, 0, 0]).count();
+    let without = black(&map_png(&p, 1000, 840).unwrap());
+    p.lines = &lines;
+    let png = map_png(&p, 1000, 840).unwrap();
+    let with = black(&png);
+    assert!(
+        with > without + 2 * 400,
+        "outline adds only {} black pixels",
+        with - without
+    );
+    let keep = std::path::Path::new(env!("CARGO_TARGET_TMPDIR")).join("map-overlays.png");
+    std::fs::write(keep, &png).unwrap();
+}
