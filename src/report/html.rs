@@ -463,7 +463,7 @@ fn maps_section(h: &mut String, input: &ReportInput, results_dir: &Path) {
             }
         }
         let step_wide: Vec<&MapEntry> = input.maps.iter().filter(|m| m.target.is_none()).collect();
-        h.push_str("<h3>Applicability</h3>\n");
+        h.push_str("<h3>Dissimilarity to the wells and area of applicability</h3>\n");
         if step_wide.is_empty() {
             h.push_str("<p class=\"nc\">Applicability maps: not computed.</p>\n");
         } else {
