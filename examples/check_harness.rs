@@ -28,14 +28,14 @@ const WELLS: usize = 50;
 
 fn grid() -> Grid {
     Grid {
-        origin_x: 512000.0,
-        origin_y: 7340000.0,
+        origin_x: 12000.0,
+        origin_y: 34000.0,
         dx: 25.0,
         dy: 25.0,
         nx: 240,
         ny: 180,
         rotation: 0.0,
-        epsg: Some(32631),
+        epsg: None,
         null_value: -999.25,
     }
 }
@@ -60,8 +60,8 @@ fn attribute_map(g: &Grid, s: usize, a: usize) -> Vec<f64> {
 fn write_project(dir: &Path) -> PathBuf {
     let g = grid();
     let mut manifest = String::from(
-        "[project]\nname = \"Skerrow Bank check harness\"\n\n[grid]\norigin_x = 512000.0\n\
-         origin_y = 7340000.0\ndx = 25.0\ndy = 25.0\nnx = 240\nny = 180\nepsg = 32631\n\n",
+        "[project]\nname = \"Skerrow Bank check harness\"\n\n[grid]\norigin_x = 12000.0\n\
+         origin_y = 34000.0\ndx = 25.0\ndy = 25.0\nnx = 240\nny = 180\n\n",
     );
     for (s, step) in STEPS.iter().enumerate() {
         let _ = write!(

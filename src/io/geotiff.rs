@@ -3,8 +3,10 @@
 //! Layout written: float32, uncompressed strips, image row 0 is grid row `j = ny - 1` (north up for an
 //! unrotated grid), pixel-is-area with each node at its pixel centre. Georeferencing is
 //! ModelPixelScale + ModelTiepoint for an unrotated grid and ModelTransformation for a rotated one;
-//! the GeoKeyDirectory carries the raster type and, when known, the EPSG code; GDAL_NODATA carries the
-//! grid's null value; ImageDescription an optional free text.
+//! the GeoKeyDirectory carries the raster type and the EPSG code when the grid has one, or else a
+//! local engineering system in metres (citation [`LOCAL_CRS_NAME`] and the metre as linear unit,
+//! which GDAL reports as an engineering CRS); GDAL_NODATA carries the grid's null value;
+//! ImageDescription an optional free text.
 //!
 //! Reading accepts float32/float64 and 8/16/32/64-bit integer samples, any compression the `tiff`
 //! crate decodes, strips or tiles, pixel-is-area or pixel-is-point, and top-down or bottom-up rows.
@@ -24,12 +26,21 @@ use tiff::tags::Tag;
 /// GeoKey ids used here (OGC 19-008r4, section 7).
 const GT_MODEL_TYPE: u16 = 1024;
 const GT_RASTER_TYPE: u16 = 1025;
+const GT_CITATION: u16 = 1026;
+const GEO_ASCII_PARAMS_TAG: u16 = 34737;
 const GEOGRAPHIC_TYPE: u16 = 2048;
 const PROJECTED_CS_TYPE: u16 = 3072;
+const PROJ_LINEAR_UNITS: u16 = 3076;
+/// EPSG unit code of the metre.
+const UNIT_METRE: u16 = 9001;
 const RASTER_PIXEL_IS_AREA: u16 = 1;
 const RASTER_PIXEL_IS_POINT: u16 = 2;
 const MODEL_PROJECTED: u16 = 1;
 const MODEL_GEOGRAPHIC: u16 = 2;
+
+/// Name of the coordinate system written to maps whose grid has no EPSG code: a local engineering
+/// (Cartesian) system in metres, east and north axes.
+pub const LOCAL_CRS_NAME: &str = "Local engineering coordinates (metres, x east, y north)";
 
 /// Null value assumed when a file carries no GDAL_NODATA tag.
 pub const DEFAULT_NULL: f64 = -999.25;
@@ -130,12 +141,32 @@ pub fn encode(grid: &Grid, values: &[f64], description: Option<&str>) -> Result<
                 };
                 keys.push([key, 0, 1, code16]);
             }
-            None => keys.push([GT_RASTER_TYPE, 0, 1, RASTER_PIXEL_IS_AREA]),
+            None => {
+                // A local engineering system: raster type, the name as citation (kept in
+                // GeoAsciiParams) and the metre as linear unit, with no model type, which GDAL
+                // reads as a local (engineering) CRS.
+                keys.push([GT_RASTER_TYPE, 0, 1, RASTER_PIXEL_IS_AREA]);
+                keys.push([
+                    GT_CITATION,
+                    GEO_ASCII_PARAMS_TAG,
+                    LOCAL_CRS_NAME.len() as u16 + 1,
+                    0,
+                ]);
+                keys.push([PROJ_LINEAR_UNITS, 0, 1, UNIT_METRE]);
+            }
         }
         let mut dir: Vec<u16> = vec![1, 1, 0, keys.len() as u16];
         dir.extend(keys.iter().flatten());
         d.write_tag(Tag::GeoKeyDirectoryTag, &dir[..])
             .map_err(tiff_err)?;
+        if grid.epsg.is_none() {
+            // GeoTIFF ASCII parameters end each string with '|' (OGC 19-008r4, 7.1.5).
+            d.write_tag(
+                Tag::GeoAsciiParamsTag,
+                format!("{LOCAL_CRS_NAME}|").as_str(),
+            )
+            .map_err(tiff_err)?;
+        }
         d.write_tag(Tag::GdalNodata, format!("{}", grid.null_value).as_str())
             .map_err(tiff_err)?;
         if let Some(text) = description {

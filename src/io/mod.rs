@@ -1,5 +1,5 @@
-//! Reading and writing field data: XYZ text grids, GeoTIFF rasters, the wells CSV, and the atomic
-//! writer every output goes through.
+//! Reading and writing field data: XYZ text grids, GeoTIFF rasters, the wells CSV, polylines to
+//! draw over maps, and the atomic writer every output goes through.
 //!
 //! Every error names the file and, where there is one, the line, record or column at fault, and
 //! quotes at most [`EXCERPT_CHARS`] characters of an offending token. In memory a null node is
@@ -12,6 +12,7 @@
 
 pub mod atomic;
 pub mod geotiff;
+pub mod polylines;
 pub mod text;
 pub mod wells;
 pub mod xyz;
@@ -158,7 +159,9 @@ pub fn read_map(path: &Path, grid: &Grid, snap_tolerance: f64) -> Result<Vec<f64
     }
 }
 
-/// Writes a map: `.tif`/`.tiff` as float32 GeoTIFF, anything else as XYZ text. Atomic.
+/// Writes a map: `.tif`/`.tiff` as float32 GeoTIFF, anything else as XYZ text with its GDAL
+/// sidecar (see [`xyz`]). Atomic. `description` goes to the GeoTIFF's ImageDescription or the
+/// sidecar's metadata.
 pub fn write_map(
     path: &Path,
     grid: &Grid,
@@ -180,9 +183,16 @@ pub fn write_map_with(
     if is_geotiff(path) {
         geotiff::write(path, grid, values, description)
     } else if let Some(c) = coords {
-        xyz::write_with_coordinates(path, grid, values, c)
+        xyz::write_described(path, grid, values, description, c)
     } else {
-        xyz::write(path, grid, values)
+        check_len(path, grid, values)?;
+        xyz::write_described(
+            path,
+            grid,
+            values,
+            description,
+            &xyz::Coordinates::new(grid),
+        )
     }
 }
 

@@ -1,6 +1,7 @@
 //! The wells CSV (RFC 4180 comma-separated values), long form: one row per (well, step) with the
 //! reservoir penetration point `x, y` of that step, the measured changes (one column per target,
-//! empty cell = not measured) and an optional weight.
+//! empty cell = not measured), an optional weight and an optional `kind` (producer, injector or
+//! observer; only used to draw the well).
 //!
 //! Every error names the file, the line (the header is line 1) and, for a cell, the column, and
 //! quotes at most [`super::EXCERPT_CHARS`] characters of a bad cell. The file is read through
@@ -36,8 +37,39 @@ pub struct WellRecord {
     pub targets: Vec<f64>,
     /// Row weight (> 0), 1 when the file has no weight column.
     pub weight: f64,
+    /// What the well does, from the optional `kind` column; `None` when absent or empty.
+    #[serde(default)]
+    pub kind: Option<WellKind>,
     /// 1-based line number of the row in the file.
     pub line: u64,
+}
+
+/// Name of the optional column that says what a well does.
+pub const KIND_COLUMN: &str = "kind";
+
+/// What a well does (the optional `kind` column: `producer`, `injector` or `observer`, any case;
+/// `observation` is taken as `observer`).
+#[derive(Clone, Copy, Debug, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum WellKind {
+    /// Produces reservoir fluids.
+    Producer,
+    /// Injects (water or gas).
+    Injector,
+    /// Observes only.
+    Observer,
+}
+
+impl WellKind {
+    /// Reads a `kind` cell; `None` for a word that is none of the kinds.
+    pub fn parse(text: &str) -> Option<WellKind> {
+        match text.trim().to_ascii_lowercase().as_str() {
+            "producer" => Some(WellKind::Producer),
+            "injector" => Some(WellKind::Injector),
+            "observer" | "observation" => Some(WellKind::Observer),
+            _ => None,
+        }
+    }
 }
 
 /// A target column and its physical bounds.
@@ -258,6 +290,7 @@ pub fn parse_reader<R: Read>(
     } else {
         index.get(columns.weight.as_str()).copied()
     };
+    let c_kind = index.get(KIND_COLUMN).copied();
     let c_targets = columns
         .targets
         .iter()
@@ -320,6 +353,15 @@ pub fn parse_reader<R: Read>(
             }
             None => 1.0,
         };
+        let kind = match c_kind.map(get).filter(|s| !s.is_empty()) {
+            Some(s) => Some(WellKind::parse(s).ok_or_else(|| {
+                cell_err(
+                    KIND_COLUMN,
+                    format!("'{s}' is not a well kind (producer, injector or observer)"),
+                )
+            })?),
+            None => None,
+        };
         let mut targets = Vec::with_capacity(c_targets.len());
         for (t, &k) in columns.targets.iter().zip(&c_targets) {
             let s = get(k);
@@ -367,6 +409,7 @@ pub fn parse_reader<R: Read>(
             step,
             targets,
             weight,
+            kind,
             line,
         })
     };
@@ -412,6 +455,25 @@ mod tests {
         assert_eq!(r[1].line, 3);
         assert!(r[1].targets[0].is_nan());
         assert_eq!(r[0].weight, 1.0);
+    }
+
+    #[test]
+    fn optional_kind_column() {
+        let text = b"well,x,y,step,kind,dSw\nA,1,2,m1,Producer,0.2\nB,1,2,m1,,0.1\nC,3,4,m1,observation,\n";
+        let steps = vec!["m1".to_string()];
+        let r = parse(Path::new("w.csv"), text, &cols(), &steps).unwrap();
+        let kinds: Vec<Option<WellKind>> = r.iter().map(|w| w.kind).collect();
+        assert_eq!(
+            kinds,
+            [Some(WellKind::Producer), None, Some(WellKind::Observer)]
+        );
+        let bad = b"well,x,y,step,kind,dSw\nA,1,2,m1,producer,0.2\nB,1,2,m1,pump,0.1\n";
+        let e = parse(Path::new("w.csv"), bad, &cols(), &steps).unwrap_err();
+        let msg = e.to_string();
+        assert!(
+            msg.starts_with("w.csv, line 3, column 'kind'") && msg.contains("'pump'"),
+            "{msg}"
+        );
     }
 
     #[test]

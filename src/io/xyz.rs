@@ -6,6 +6,13 @@
 //! mention are null, and so is a value equal to the grid's null value (or `NaN`). A point that lands
 //! on no node, a second point on the same node and a malformed line are errors naming file and line.
 //!
+//! Writing gives plain `x y value` lines with no header or comment, so that GDAL's "ASCII Gridded
+//! XYZ" driver opens an unrotated map as a raster (and the tiles of one map concatenate into the
+//! whole map). The rest of the grid description goes to a GDAL PAM sidecar `<file>.aux.xml`
+//! beside it (GDAL's persistent auxiliary metadata): the nodata value, the coordinate system (the
+//! EPSG code, or a local engineering system in metres) and the grid's size, spacing and rotation.
+//! GDAL's XYZ driver reads only north-up grids; the XYZ of a rotated grid is a point list.
+//!
 //! Reading streams the file through [`text::Guarded`]: a byte-order mark is skipped, CRLF and CR
 //! line ends count as one, and a file larger than its grid can need ([`max_bytes`]) or a line over
 //! [`MAX_LINE_BYTES`] stops the read with an error.
@@ -60,13 +67,78 @@ impl Coordinates {
     }
 }
 
-/// Writes a map as XYZ text, atomically: a `#` comment header, then one `x y value` line per node
-/// in index order, nulls written as the grid's null value. Coordinates and values use the shortest
-/// decimal form that reads back to the same `f64` (Ryu, Adams 2018, PLDI; exponent form such as
-/// `1e-7` for very small or large magnitudes).
+/// The sidecar of an XYZ map: `<file>.aux.xml` in the same folder (GDAL's PAM file name).
+pub fn sidecar_path(path: &Path) -> std::path::PathBuf {
+    let mut name = path.as_os_str().to_os_string();
+    name.push(".aux.xml");
+    std::path::PathBuf::from(name)
+}
+
+/// Escapes text for XML content.
+fn xml_escape(text: &str) -> String {
+    let mut out = String::with_capacity(text.len());
+    for c in text.chars() {
+        match c {
+            '&' => out.push_str("&amp;"),
+            '<' => out.push_str("&lt;"),
+            '>' => out.push_str("&gt;"),
+            '"' => out.push_str("&quot;"),
+            _ => out.push(c),
+        }
+    }
+    out
+}
+
+/// The text of the PAM sidecar of a map on `grid`: coordinate system, nodata value, and metadata
+/// items describing the grid (and `description`, when given, as item `description`).
+pub fn sidecar_text(grid: &Grid, description: Option<&str>) -> String {
+    let srs = match grid.epsg {
+        Some(code) => format!("EPSG:{code}"),
+        None => format!(
+            "LOCAL_CS[\"{}\",UNIT[\"metre\",1],AXIS[\"Easting\",EAST],AXIS[\"Northing\",NORTH]]",
+            super::geotiff::LOCAL_CRS_NAME
+        ),
+    };
+    let mut items = vec![
+        (
+            "layout",
+            "one 'x y value' line per grid node, nodes (i, j) with j outer and i inner, \
+             both increasing"
+                .to_string(),
+        ),
+        ("nodes", format!("{} x {}", grid.nx, grid.ny)),
+        ("origin", format!("{} {}", grid.origin_x, grid.origin_y)),
+        ("dx", grid.dx.to_string()),
+        ("dy", grid.dy.to_string()),
+        ("rotation_degrees", grid.rotation.to_string()),
+        ("null_value", grid.null_value.to_string()),
+    ];
+    if let Some(d) = description {
+        items.push(("description", d.to_string()));
+    }
+    let mut t = String::from("<PAMDataset>\n");
+    t.push_str(&format!(
+        "  <SRS dataAxisToSRSAxisMapping=\"1,2\">{}</SRS>\n  <Metadata>\n",
+        xml_escape(&srs)
+    ));
+    for (k, v) in items {
+        t.push_str(&format!("    <MDI key=\"{k}\">{}</MDI>\n", xml_escape(&v)));
+    }
+    t.push_str(&format!(
+        "  </Metadata>\n  <PAMRasterBand band=\"1\">\n    <NoDataValue>{}</NoDataValue>\n  \
+         </PAMRasterBand>\n</PAMDataset>\n",
+        grid.null_value
+    ));
+    t
+}
+
+/// Writes a map as XYZ text, atomically: one `x y value` line per node in index order, nulls
+/// written as the grid's null value, and the sidecar `<file>.aux.xml` (see [`sidecar_text`]).
+/// Coordinates and values use the shortest decimal form that reads back to the same `f64` (Ryu,
+/// Adams 2018, PLDI; exponent form such as `1e-7` for very small or large magnitudes).
 pub fn write(path: &Path, grid: &Grid, values: &[f64]) -> Result<(), IoError> {
     check_len(path, grid, values)?;
-    write_with_coordinates(path, grid, values, &Coordinates::new(grid))
+    write_described(path, grid, values, None, &Coordinates::new(grid))
 }
 
 /// As [`write()`], with the node coordinates already formatted (see [`Coordinates`]); they must
@@ -75,6 +147,18 @@ pub fn write_with_coordinates(
     path: &Path,
     grid: &Grid,
     values: &[f64],
+    coords: &Coordinates,
+) -> Result<(), IoError> {
+    write_described(path, grid, values, None, coords)
+}
+
+/// As [`write_with_coordinates`], with a description of the map (e.g. quantity and unit) kept in
+/// the sidecar.
+pub fn write_described(
+    path: &Path,
+    grid: &Grid,
+    values: &[f64],
+    description: Option<&str>,
     coords: &Coordinates,
 ) -> Result<(), IoError> {
     check_len(path, grid, values)?;
@@ -88,11 +172,6 @@ pub fn write_with_coordinates(
         ));
     }
     atomic::write_with(path, |w| {
-        writeln!(
-            w,
-            "# x y value; {} x {} nodes, dx={} dy={} rotation={}, null={}",
-            grid.nx, grid.ny, grid.dx, grid.dy, grid.rotation, grid.null_value
-        )?;
         let mut buf = ryu::Buffer::new();
         let mut line: Vec<u8> = Vec::with_capacity(64 * grid.nx);
         for j in 0..grid.ny {
@@ -108,7 +187,11 @@ pub fn write_with_coordinates(
             w.write_all(&line)?;
         }
         Ok(())
-    })
+    })?;
+    atomic::write_bytes(
+        &sidecar_path(path),
+        sidecar_text(grid, description).as_bytes(),
+    )
 }
 
 /// Splits a data line into fields on whitespace and commas.

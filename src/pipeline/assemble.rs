@@ -80,6 +80,7 @@ pub fn infill_section(
                 nearest_well: t.nearest_well.clone(),
                 distance: t.nearest_distance.is_finite().then_some(t.nearest_distance),
                 inside: t.inside,
+                drainage_inside_fraction: Some(t.drainage_inside_fraction),
             })
             .collect(),
     }
@@ -191,11 +192,15 @@ fn settings_table(project: &Project, wells_vs_nodes: Option<&ShiftSummary>) -> V
     ]
 }
 
-/// Attribute family for grouped importance.
+/// Attribute family for grouped importance: amplitudes, AVO intercept/gradient, timing,
+/// repeatability (NRMS, which measures how alike the two surveys are, not an amplitude), time
+/// step.
 pub fn family(attribute: &str) -> &'static str {
     let l = attribute.to_lowercase();
     if l == "step" {
         "time step"
+    } else if l.contains("nrms") {
+        "repeatability (NRMS)"
     } else if l.contains("intercept") || l.contains("gradient") {
         "AVO intercept/gradient"
     } else if l.contains("shift") || l.contains("strain") || l.contains("time") {
@@ -336,6 +341,7 @@ fn learning_curve(target: &str, studies: &Sensitivity) -> Option<ri::LearningCur
         .collect();
     (!points.is_empty()).then(|| ri::LearningCurve {
         repeats: studies.curve.iter().map(|c| c.r2.len()).max().unwrap_or(0),
+        note: studies.note.clone(),
         points,
     })
 }
@@ -369,6 +375,7 @@ fn importance(t: &TargetSummary) -> ri::Importance {
         unit: "share".into(),
         by_attribute,
         by_family,
+        family_note: String::new(),
     }
 }
 

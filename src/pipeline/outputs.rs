@@ -4,8 +4,8 @@
 //! ```text
 //! maps/<step>/<target>_<p50|pNN>.{tif,xyz}     most likely change and band edges
 //! maps/<step>/<target>_exceed_<label>.{tif,xyz} probability of crossing a threshold
-//! maps/<step>/applicability.{tif,xyz}          dissimilarity index
-//! maps/<step>/inside.{tif,xyz}                 1 inside the area of applicability, 0 outside
+//! maps/<step>/dissimilarity.{tif,xyz}          dissimilarity index to the wells
+//! maps/<step>/applicable.{tif,xyz}             1 inside the area of applicability, 0 outside
 //! maps/<step>/outside_range.{tif,xyz}          attributes outside the training range
 //! maps/metadata.json                           what each map holds, units, convention
 //! ```
@@ -451,7 +451,7 @@ pub fn write_step_maps(
     let a = &maps.applicability;
     put(
         w,
-        format!("maps/{step}/applicability"),
+        format!("maps/{step}/dissimilarity"),
         &a.di,
         format!(
             "dissimilarity index (Meyer & Pebesma 2021); area-of-applicability threshold {:.4}",
@@ -462,7 +462,7 @@ pub fn write_step_maps(
     let (inside, outside) = flag_maps(a);
     put(
         w,
-        format!("maps/{step}/inside"),
+        format!("maps/{step}/applicable"),
         &inside,
         "1 inside the area of applicability, 0 outside".into(),
         "flag",

@@ -1,24 +1,152 @@
 //! Pictures of a run.
 //!
 //! Draws, per step and target, P50 (diverging colour map for signed changes), band width and each
-//! exceedance probability (viridis), and per step the dissimilarity index, with wells posted and
-//! nodes outside the area of applicability hatched; the infill targets over the chance of remaining
-//! oil; error maps against a synthetic truth. The review page that shows them is assembled in
-//! [`super::assemble`].
+//! exceedance probability (viridis), and per step the dissimilarity index, with wells posted (by
+//! kind when the wells CSV says it), outlines, a scale bar, a north arrow, the coordinate system
+//! and the survey dates, and nodes outside the area of applicability hatched; the infill targets
+//! over the chance of remaining oil; error maps against a synthetic truth. The P10/P50/P90
+//! convention is stated once per figure set (on the review page), not under every map. The review
+//! page that shows them is assembled in [`super::assemble`].
 
 use super::PipelineError;
 use super::model::{SavedModel, StepMaps, convention_text};
 use super::outputs::Writer;
 use crate::decide::Target;
 use crate::grid::Grid;
+use crate::io::wells::WellKind;
 use crate::report::PictureRef;
 use crate::report::colormap::ColourScale;
 use crate::report::input as ri;
-use crate::report::picture::{MapGeometry, MapPicture, map_png};
+use crate::report::picture::{MapGeometry, MapLine, MapPicture, MapWell, WellSymbol, map_png};
 use rayon::prelude::*;
 
-/// Size in pixels of every map picture.
-pub const MAP_SIZE: (u32, u32) = (900, 720);
+/// Size in pixels of every map picture: wide enough for a slide, with text sized to it.
+pub const MAP_SIZE: (u32, u32) = (1000, 840);
+
+/// What every map of a run shares: the grid, its coordinate system, the wells (with their kind
+/// when known), outlines and fault traces, and the survey dates of each step.
+#[derive(Clone, Debug)]
+pub struct MapSetting {
+    /// The grid of the maps.
+    pub grid: Grid,
+    /// The coordinate system in words ([`crs_text`]).
+    pub crs: String,
+    /// Wells to post.
+    pub wells: Vec<MapWell>,
+    /// Outlines and fault traces to draw over every map (from the project's polyline files).
+    pub lines: Vec<MapLine>,
+    /// Per step name: base and monitor survey dates, when the manifest gives them.
+    pub dates: Vec<(String, Option<String>, Option<String>)>,
+}
+
+/// The coordinate system of `grid` in words: its EPSG code, or the local engineering system the
+/// maps are written in when it has none.
+pub fn crs_text(grid: &Grid) -> String {
+    match grid.epsg {
+        Some(code) => format!("EPSG:{code}"),
+        None => "local engineering coordinates in metres (no EPSG code)".to_string(),
+    }
+}
+
+fn symbol(kind: Option<WellKind>) -> WellSymbol {
+    match kind {
+        Some(WellKind::Producer) => WellSymbol::Producer,
+        Some(WellKind::Injector) => WellSymbol::Injector,
+        Some(WellKind::Observer) => WellSymbol::Observer,
+        None => WellSymbol::Unknown,
+    }
+}
+
+impl MapSetting {
+    /// The setting of a run's maps: the model's training wells (by kind when `well_rows` says
+    /// it), the grid's coordinate system and the survey dates of the project's steps.
+    pub fn new(
+        grid: &Grid,
+        model: &SavedModel,
+        steps: &[crate::project::StepSpec],
+        well_rows: &[crate::io::wells::WellRecord],
+    ) -> Self {
+        let kind_of = |name: &str| {
+            well_rows
+                .iter()
+                .filter(|r| r.well == name)
+                .find_map(|r| r.kind)
+        };
+        MapSetting {
+            grid: grid.clone(),
+            crs: crs_text(grid),
+            wells: model
+                .wells
+                .iter()
+                .map(|(n, x, y)| MapWell {
+                    x: *x,
+                    y: *y,
+                    name: n.clone(),
+                    symbol: symbol(kind_of(n)),
+                })
+                .collect(),
+            lines: Vec::new(),
+            dates: steps
+                .iter()
+                .map(|s| (s.name.clone(), s.base_date.clone(), s.monitor_date.clone()))
+                .collect(),
+        }
+    }
+
+    /// Reads outline and fault polylines (see [`crate::io::polylines`]) to draw over every map.
+    pub fn add_lines(&mut self, paths: &[std::path::PathBuf]) -> Result<(), PipelineError> {
+        for path in paths {
+            for p in crate::io::polylines::read(path)? {
+                self.lines.push(MapLine { points: p.points });
+            }
+        }
+        Ok(())
+    }
+
+    /// The setting of a survey's maps (see [`MapSetting::new`]).
+    pub fn of_survey(survey: &crate::project::Survey, model: &SavedModel) -> Self {
+        let p = &survey.project;
+        Self::new(&p.grid, model, &p.steps, &survey.wells)
+    }
+
+    /// The line under a map's title: the step and its survey dates when known.
+    pub fn subtitle(&self, step: &str) -> String {
+        match self.dates.iter().find(|(s, _, _)| s == step) {
+            Some((_, Some(base), Some(monitor))) => {
+                format!("step {step}: monitor {monitor} minus base {base}")
+            }
+            Some((_, None, Some(monitor))) => format!("step {step}: monitor {monitor}"),
+            Some((_, Some(base), None)) => format!("step {step}: base {base}"),
+            _ => format!("step {step}"),
+        }
+    }
+
+    /// A map picture of `values` in this setting (no caption, no markers, no hatching).
+    pub fn picture<'a>(
+        &'a self,
+        values: &'a [f64],
+        title: String,
+        subtitle: String,
+        unit: String,
+        scale: ColourScale,
+    ) -> MapPicture<'a> {
+        MapPicture {
+            geometry: MapGeometry::from(&self.grid),
+            values,
+            title,
+            subtitle,
+            unit,
+            xy_unit: "m".into(),
+            crs: self.crs.clone(),
+            scale,
+            wells: &self.wells,
+            outside: None,
+            caption: String::new(),
+            markers: &[],
+            lines: &self.lines,
+        }
+    }
+}
 
 /// One map to draw.
 struct Job {
@@ -33,19 +161,11 @@ struct Job {
     hatch: bool,
 }
 
-fn wells_of(model: &SavedModel) -> Vec<(f64, f64, String)> {
-    model
-        .wells
-        .iter()
-        .map(|(n, x, y)| (*x, *y, n.clone()))
-        .collect()
-}
-
 /// Draws the map pictures of one step into `pictures/<step>/` and returns their report entries.
 pub fn step_pictures(
     w: &mut Writer,
     model: &SavedModel,
-    grid: &Grid,
+    setting: &MapSetting,
     step: &str,
     maps: &StepMaps,
 ) -> Result<Vec<ri::MapEntry>, PipelineError> {
@@ -57,7 +177,7 @@ pub fn step_pictures(
             step: step.into(),
             target: Some(spec.name.clone()),
             kind: "P50".into(),
-            title: format!("{} P50, step {step}", spec.name),
+            title: format!("{} P50 (most likely change)", spec.name),
             unit: spec.unit.clone(),
             scale: ColourScale::diverging_from(&tm.mid),
             values: tm.mid.clone(),
@@ -71,7 +191,7 @@ pub fn step_pictures(
             target: Some(spec.name.clone()),
             kind: "band width".into(),
             title: format!(
-                "{} band width ({}-{}), step {step}",
+                "{} band width ({}-{})",
                 spec.name,
                 lo_l.to_uppercase(),
                 hi_l.to_uppercase()
@@ -92,7 +212,7 @@ pub fn step_pictures(
                 target: Some(spec.name.clone()),
                 kind: format!("P({})", th.label),
                 title: format!(
-                    "P({} {dir} {} {}) - {}, step {step}",
+                    "P({} {dir} {} {}): {}",
                     spec.name, th.value, spec.unit, th.label
                 ),
                 unit: "probability".into(),
@@ -103,12 +223,12 @@ pub fn step_pictures(
         }
     }
     jobs.push(Job {
-        rel: format!("pictures/{step}/applicability.png"),
+        rel: format!("pictures/{step}/dissimilarity.png"),
         step: step.into(),
         target: None,
-        kind: "applicability".into(),
+        kind: "dissimilarity".into(),
         title: format!(
-            "Dissimilarity index, step {step} (hatched: DI > {:.3} or outside the training range)",
+            "Dissimilarity to the wells (hatched: above {:.3} or outside their range)",
             model.applicability.threshold
         ),
         unit: "DI".into(),
@@ -116,39 +236,28 @@ pub fn step_pictures(
         values: maps.applicability.di.clone(),
         hatch: true,
     });
-    draw(w, model, grid, jobs, &maps.applicability.inside)
+    draw(w, setting, jobs, &maps.applicability.inside)
 }
 
 fn draw(
     w: &mut Writer,
-    model: &SavedModel,
-    grid: &Grid,
+    setting: &MapSetting,
     jobs: Vec<Job>,
     inside: &[bool],
 ) -> Result<Vec<ri::MapEntry>, PipelineError> {
-    let geometry = MapGeometry::from(grid);
-    let wells = wells_of(model);
     let outside: Vec<bool> = inside.iter().map(|i| !i).collect();
-    let caption = convention_text(model.convention, model.level);
     let drawn: Vec<Result<Vec<u8>, crate::report::ReportError>> = jobs
         .par_iter()
         .map(|j| {
-            map_png(
-                &MapPicture {
-                    geometry,
-                    values: &j.values,
-                    title: j.title.clone(),
-                    unit: j.unit.clone(),
-                    xy_unit: "m".into(),
-                    scale: j.scale,
-                    wells: &wells,
-                    outside: (j.hatch && outside.len() == j.values.len()).then_some(&outside[..]),
-                    caption: caption.clone(),
-                    markers: &[],
-                },
-                MAP_SIZE.0,
-                MAP_SIZE.1,
-            )
+            let mut p = setting.picture(
+                &j.values,
+                j.title.clone(),
+                setting.subtitle(&j.step),
+                j.unit.clone(),
+                j.scale,
+            );
+            p.outside = (j.hatch && outside.len() == j.values.len()).then_some(&outside[..]);
+            map_png(&p, MAP_SIZE.0, MAP_SIZE.1)
         })
         .collect();
     let mut entries = Vec::new();
@@ -159,46 +268,42 @@ fn draw(
             target: j.target,
             kind: j.kind,
             picture: PictureRef::File(j.rel),
-            caption: caption.clone(),
+            caption: String::new(),
         });
     }
     Ok(entries)
 }
 
 /// Draws the infill targets over the chance map of the ranking step.
+#[allow(clippy::too_many_arguments)]
 pub fn infill_picture(
     w: &mut Writer,
-    model: &SavedModel,
-    grid: &Grid,
+    setting: &MapSetting,
+    step: &str,
     chance: &[f64],
     inside: &[bool],
     targets: &[Target],
     criterion: &str,
 ) -> Result<PictureRef, PipelineError> {
-    let wells = wells_of(model);
     let outside: Vec<bool> = inside.iter().map(|i| !i).collect();
     let markers: Vec<(f64, f64, String)> = targets
         .iter()
         .map(|t| (t.x, t.y, format!("#{}", t.rank)))
         .collect();
-    let png = map_png(
-        &MapPicture {
-            geometry: MapGeometry::from(grid),
-            values: chance,
-            title: format!("Risked infill targets over {criterion}"),
-            unit: "probability".into(),
-            xy_unit: "m".into(),
-            scale: ColourScale::Probability,
-            wells: &wells,
-            outside: Some(&outside),
-            caption: "Triangles: ranked targets (outside the hatched area, spaced from wells and \
-                      each other). Decision support only."
-                .into(),
-            markers: &markers,
-        },
-        MAP_SIZE.0,
-        MAP_SIZE.1,
-    )?;
+    let mut p = setting.picture(
+        chance,
+        "Risked infill targets".to_string(),
+        setting.subtitle(step),
+        "probability".into(),
+        ColourScale::Probability,
+    );
+    p.outside = Some(&outside);
+    p.markers = &markers;
+    p.caption = format!(
+        "Colours: {criterion}. Triangles: ranked targets, outside the hatched area and spaced \
+         from the wells and each other. Decision support only."
+    );
+    let png = map_png(&p, MAP_SIZE.0, MAP_SIZE.1)?;
     w.bytes("pictures/targets.png", &png)?;
     Ok(PictureRef::File("pictures/targets.png".into()))
 }

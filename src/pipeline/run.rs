@@ -139,8 +139,9 @@ pub fn run(opts: &RunOptions) -> Result<RunOutcome, PipelineError> {
     stages.done("summary and model");
 
     if opts.pictures {
-        let maps = step_pictures(&mut w, &model, project, &kept)?;
-        let infill_section = infill_section(&mut w, &model, project, &kept, infill.as_ref())?;
+        let setting = pictures::MapSetting::of_survey(&survey, &model);
+        let maps = step_pictures(&mut w, &model, &setting, project, &kept)?;
+        let infill_section = infill_section(&mut w, &setting, project, &kept, infill.as_ref())?;
         stages.done("pictures");
         if opts.report {
             let sensitivity = studies::sensitivity(&survey, &ts, seed, &mut stages)?;
@@ -206,17 +207,14 @@ fn predict_and_write(
 fn step_pictures(
     w: &mut Writer,
     model: &SavedModel,
+    setting: &pictures::MapSetting,
     project: &Project,
     kept: &[StepMaps],
 ) -> Result<Vec<ri::MapEntry>, PipelineError> {
     let mut entries = Vec::new();
     for (step, maps) in project.steps.iter().zip(kept) {
         entries.extend(pictures::step_pictures(
-            w,
-            model,
-            &project.grid,
-            &step.name,
-            maps,
+            w, model, setting, &step.name, maps,
         )?);
     }
     Ok(entries)
@@ -225,7 +223,7 @@ fn step_pictures(
 /// Draws the infill targets over the chance map and returns the page's infill section.
 fn infill_section(
     w: &mut Writer,
-    model: &SavedModel,
+    setting: &pictures::MapSetting,
     project: &Project,
     kept: &[StepMaps],
     infill: Option<&studies::Infill>,
@@ -235,8 +233,8 @@ fn infill_section(
     };
     let picture = pictures::infill_picture(
         w,
-        model,
-        &project.grid,
+        setting,
+        &project.steps[i.step].name,
         &i.chance,
         &kept[i.step].applicability.inside,
         &i.targets,

@@ -640,10 +640,14 @@ pub fn score_with(
                     .map(|th| read(base(&format!("exceed_{}", th.label))))
                     .collect::<Result<_, _>>()?,
             };
-            let inside: Vec<bool> = read(dir.join("inside.tif"))?
-                .iter()
-                .map(|v| *v == 1.0)
-                .collect();
+            // Results folders written before the maps were renamed call it inside.tif.
+            let area = dir.join("applicable.tif");
+            let area = if area.exists() {
+                area
+            } else {
+                dir.join("inside.tif")
+            };
+            let inside: Vec<bool> = read(area)?.iter().map(|v| *v == 1.0).collect();
             let cal_band = Band {
                 lo: data.lo.clone(),
                 mid: data.mid.clone(),
@@ -737,34 +741,34 @@ pub fn score_and_report_with(
     project: Option<&Path>,
 ) -> Result<TruthScore, PipelineError> {
     use crate::report::input as ri;
-    use crate::report::picture::{MapPicture, map_png};
+    use crate::report::picture::map_png;
     let (scores, errors) = score_with(results, truth, project)?;
     let model = SavedModel::load(&results.join("model.json"))?;
-    let geometry = crate::report::picture::MapGeometry::from(&errors.grid);
-    let wells: Vec<(f64, f64, String)> = model
-        .wells
-        .iter()
-        .map(|(n, x, y)| (*x, *y, n.clone()))
-        .collect();
+    // The synthetic project beside its truth gives the survey dates and the wells' kinds; without
+    // it the maps name the steps only and draw every well alike.
+    let manifest = [truth.join("project.toml"), truth.join("../project.toml")]
+        .into_iter()
+        .find(|m| m.is_file());
+    let (steps, rows) = manifest
+        .and_then(|m| crate::project::Project::load(&m).ok())
+        .map(|p| {
+            let rows = p.read_wells().unwrap_or_default();
+            (p.steps, rows)
+        })
+        .unwrap_or_default();
+    let setting = super::pictures::MapSetting::new(&errors.grid, &model, &steps, &rows);
     let mut entries = Vec::new();
     for (step, target, unit, values) in &errors.maps {
         let rel = format!("pictures/errors/{step}/{target}_error.png");
-        let png = map_png(
-            &MapPicture {
-                geometry,
-                values,
-                title: format!("{target} P50 minus truth, step {step}"),
-                unit: unit.clone(),
-                xy_unit: "m".into(),
-                scale: crate::report::colormap::ColourScale::diverging_from(values),
-                wells: &wells,
-                outside: None,
-                caption: "Error of the most likely change against the synthetic truth".into(),
-                markers: &[],
-            },
-            super::pictures::MAP_SIZE.0,
-            super::pictures::MAP_SIZE.1,
-        )?;
+        let mut p = setting.picture(
+            values,
+            format!("{target} P50 minus truth"),
+            setting.subtitle(step),
+            unit.clone(),
+            crate::report::colormap::ColourScale::diverging_from(values),
+        );
+        p.caption = "Error of the most likely change against the synthetic truth.".into();
+        let png = map_png(&p, super::pictures::MAP_SIZE.0, super::pictures::MAP_SIZE.1)?;
         let path = results.join(&rel);
         if let Some(dir) = path.parent() {
             std::fs::create_dir_all(dir).map_err(|e| {

@@ -441,6 +441,13 @@ fn maps_section(h: &mut String, input: &ReportInput, results_dir: &Path) {
                 .map(|x| x.unit.clone())
                 .unwrap_or_default();
             let _ = writeln!(h, "<h3>{}{}</h3>", escape(t), unit_suffix(&unit));
+            if !input.convention.is_empty() {
+                let _ = writeln!(
+                    h,
+                    "<p class=\"convention\">{}</p>",
+                    escape(&input.convention)
+                );
+            }
             for s in &steps {
                 let entries: Vec<&MapEntry> = input
                     .maps
@@ -456,7 +463,7 @@ fn maps_section(h: &mut String, input: &ReportInput, results_dir: &Path) {
             }
         }
         let step_wide: Vec<&MapEntry> = input.maps.iter().filter(|m| m.target.is_none()).collect();
-        h.push_str("<h3>Applicability</h3>\n");
+        h.push_str("<h3>Dissimilarity to the wells and area of applicability</h3>\n");
         if step_wide.is_empty() {
             h.push_str("<p class=\"nc\">Applicability maps: not computed.</p>\n");
         } else {
@@ -501,14 +508,15 @@ fn infill_block(h: &mut String, infill: Option<&InfillSection>, xy_unit: &str, d
     let _ = writeln!(
         h,
         "<table><tr><th>rank</th><th>x{xu}</th><th>y{xu}</th><th>chance</th><th>risked volume{}</th>\
-         <th class=\"l\">nearest well</th><th>distance{xu}</th><th class=\"l\">inside applicability</th></tr>",
+         <th class=\"l\">nearest well</th><th>distance{xu}</th><th class=\"l\">target point inside \
+         applicability</th><th>drainage area inside applicability</th></tr>",
         unit_suffix(&inf.volume_unit)
     );
     for r in &inf.rows {
         let _ = writeln!(
             h,
             "<tr><td>{}</td><td>{:.1}</td><td>{:.1}</td><td>{}</td><td>{}</td><td class=\"l\">{}</td>\
-             <td>{}</td><td class=\"l\">{}</td></tr>",
+             <td>{}</td><td class=\"l\">{}</td><td>{}</td></tr>",
             r.rank,
             r.x,
             r.y,
@@ -516,7 +524,8 @@ fn infill_block(h: &mut String, infill: Option<&InfillSection>, xy_unit: &str, d
             num(r.risked_volume),
             escape(&r.nearest_well),
             num(r.distance),
-            if r.inside { "yes" } else { "no" }
+            if r.inside { "yes" } else { "no" },
+            pct(r.drainage_inside_fraction)
         );
     }
     h.push_str("</table>\n");
@@ -561,11 +570,19 @@ fn crossplot_block(h: &mut String, t: &TargetReport, c: &CrossplotData) {
     }
     let pair =
         |p: &[f64]| -> Vec<(f64, f64)> { c.truth.iter().copied().zip(p.iter().copied()).collect() };
+    // When the correction was not kept the corrected values are the raw ones: one series, and
+    // a sentence saying why.
+    let not_kept = t.summary.end_correction_kept == Some(false);
+    let show_corrected = !c.corrected.is_empty() && !not_kept;
     let mut series = vec![PointSeries {
-        name: "out-of-fold P50, raw".to_string(),
+        name: if not_kept {
+            "out-of-fold P50 (no end-bias correction)".to_string()
+        } else {
+            "out-of-fold P50, raw".to_string()
+        },
         points: pair(&c.raw),
     }];
-    if !c.corrected.is_empty() {
+    if show_corrected {
         series.push(PointSeries {
             name: "after end-bias correction".to_string(),
             points: pair(&c.corrected),
@@ -591,6 +608,14 @@ fn crossplot_block(h: &mut String, t: &TargetReport, c: &CrossplotData) {
          The black line is 1:1.",
     ));
     h.push_str("</div>\n");
+    if not_kept {
+        let _ = writeln!(
+            h,
+            "<p class=\"note\">The end-bias correction was not kept for {}: on held-out wells it \
+             did not lower the mean squared error, so the maps use the raw prediction.</p>",
+            escape(&t.name)
+        );
+    }
     let uu = unit_suffix(&t.unit);
     let _ = writeln!(
         h,
@@ -598,7 +623,7 @@ fn crossplot_block(h: &mut String, t: &TargetReport, c: &CrossplotData) {
          <th>slope on truth (-)</th></tr>"
     );
     let mut rows = vec![("raw", &c.raw)];
-    if !c.corrected.is_empty() {
+    if show_corrected {
         rows.push(("after end-bias correction", &c.corrected));
     }
     for (name, p) in rows {
@@ -613,7 +638,7 @@ fn crossplot_block(h: &mut String, t: &TargetReport, c: &CrossplotData) {
     }
     h.push_str(
         "</table><p class=\"note\">A slope below 1 is the regression to the mean: high changes \
-         predicted too low and low ones too high. The correction should bring it towards 1.</p>\n",
+         predicted too low and low ones too high.</p>\n",
     );
 }
 
@@ -854,6 +879,18 @@ fn learning_block(h: &mut String, t: &TargetReport, lc: &LearningCurve) {
             lc.repeats
         ),
     ));
+    let how = if lc.note.is_empty() {
+        "The curve's models are fitted with the study settings of the run".to_string()
+    } else {
+        format!("Settings of the curve: {}", lc.note)
+    };
+    let _ = writeln!(
+        h,
+        "<p class=\"note\">{}. They are lighter than the main model's, so the curve's R&sup2; at \
+         the full well count need not equal the summary's: read the curve for its shape, the \
+         summary for the skill of the maps.</p>",
+        escape(&how)
+    );
     h.push_str(
         "</div>\n<table><tr><th>training wells</th><th>R&sup2; mean</th><th>R&sup2; min</th>\
                 <th>R&sup2; max</th><th>coverage mean</th></tr>\n",
@@ -905,11 +942,13 @@ fn importance_section(h: &mut String, input: &ReportInput) {
                 } else {
                     imp.measure.clone()
                 };
+                // The axis carries a short label; the measure is spelt out in the note above.
                 let value_label = if imp.unit.is_empty() {
-                    measure.clone()
+                    "importance".to_string()
                 } else {
-                    format!("{measure} ({})", imp.unit)
+                    format!("importance ({})", imp.unit)
                 };
+                let spreads = imp.by_attribute.iter().any(|a| a.spread.is_some());
                 let _ = writeln!(h, "<p class=\"note\">{}.</p>", escape(&measure));
                 h.push_str("<div class=\"figs\">");
                 if !imp.by_attribute.is_empty() {
@@ -938,12 +977,12 @@ fn importance_section(h: &mut String, input: &ReportInput) {
                                     }
                                 })
                                 .collect(),
-                            errors: Some(
+                            errors: spreads.then(|| {
                                 imp.by_attribute
                                     .iter()
                                     .map(|a| a.spread.unwrap_or(0.0))
-                                    .collect(),
-                            ),
+                                    .collect()
+                            }),
                         })
                         .collect();
                     let plot = BarPicture {
@@ -959,7 +998,11 @@ fn importance_section(h: &mut String, input: &ReportInput) {
                     h.push_str(&figure_png(
                         drawn(bars_png(&plot, 640, height)),
                         &format!("{} importance by attribute", t.name),
-                        "Bars coloured by family; whiskers show the spread over repeats.",
+                        if spreads {
+                            "Bars coloured by family; whiskers show the spread over repeats."
+                        } else {
+                            "Bars coloured by family. Computed once, so no spread is shown."
+                        },
                     ));
                 }
                 if !imp.by_family.is_empty() {
@@ -984,33 +1027,49 @@ fn importance_section(h: &mut String, input: &ReportInput) {
                     h.push_str(&figure_png(
                         drawn(bars_png(&plot, 560, height)),
                         &format!("{} importance by family", t.name),
-                        "Each family permuted as a whole.",
+                        &if imp.family_note.is_empty() {
+                            "Each family's value is the sum of its attributes' values (the \
+                             attributes were permuted one at a time)."
+                                .to_string()
+                        } else {
+                            imp.family_note.clone()
+                        },
                     ));
                 }
                 h.push_str("</div>\n");
                 let u = unit_suffix(&imp.unit);
+                let spread_head = if spreads {
+                    format!("<th>spread{u}</th>")
+                } else {
+                    String::new()
+                };
                 let _ = writeln!(
                     h,
                     "<table><tr><th class=\"l\">attribute</th><th class=\"l\">family</th>\
-                     <th>importance{u}</th><th>spread{u}</th></tr>"
+                     <th>importance{u}</th>{spread_head}</tr>"
                 );
                 for a in &imp.by_attribute {
+                    let spread = if spreads {
+                        format!("<td>{}</td>", num(a.spread))
+                    } else {
+                        String::new()
+                    };
                     let _ = writeln!(
                         h,
-                        "<tr><td class=\"l\">{}</td><td class=\"l\">{}</td><td>{}</td><td>{}</td></tr>",
+                        "<tr><td class=\"l\">{}</td><td class=\"l\">{}</td><td>{}</td>{spread}</tr>",
                         escape(&a.attribute),
                         escape(&a.family),
                         num(a.value),
-                        num(a.spread)
                     );
                 }
                 for f in &imp.by_family {
                     let _ = writeln!(
                         h,
                         "<tr><td class=\"l\"><i>all of family</i></td><td class=\"l\">{}</td>\
-                         <td>{}</td><td></td></tr>",
+                         <td>{}</td>{}</tr>",
                         escape(&f.family),
-                        num(f.value)
+                        num(f.value),
+                        if spreads { "<td></td>" } else { "" }
                     );
                 }
                 h.push_str("</table>\n");
@@ -1033,7 +1092,7 @@ fn importance_section(h: &mut String, input: &ReportInput) {
                 let f = |v: Option<f64>| v.unwrap_or(f64::NAN);
                 let plot = BarPicture {
                     title: format!("{}: skill with and without", t.name),
-                    value_label: "fraction".to_string(),
+                    value_label: "R2 and coverage (fraction)".to_string(),
                     category_label: String::new(),
                     categories: vec!["R2".to_string(), "coverage".to_string()],
                     series: vec![
@@ -1057,21 +1116,47 @@ fn importance_section(h: &mut String, input: &ReportInput) {
                     &format!("{} ablation", t.name),
                     "",
                 ));
+                // Only the figures the study computed get a column.
                 let u = unit_suffix(&t.unit);
-                let _ = writeln!(
-                    h,
-                    "<table><tr><th class=\"l\">attributes</th><th>R&sup2; (-)</th><th>RMSE{u}</th>\
-                     <th>coverage</th><th>mean width{u}</th></tr>"
-                );
+                let both = [&a.with_all, &a.without];
+                type Cell = fn(&super::input::Skill) -> String;
+                let columns: Vec<(String, Cell)> = [
+                    (
+                        "R&sup2; (-)".to_string(),
+                        (|s: &super::input::Skill| num(s.r2)) as Cell,
+                        both.iter().any(|s| s.r2.is_some()),
+                    ),
+                    (
+                        format!("RMSE{u}"),
+                        |s| num(s.rmse),
+                        both.iter().any(|s| s.rmse.is_some()),
+                    ),
+                    (
+                        "coverage".to_string(),
+                        |s| pct(s.coverage),
+                        both.iter().any(|s| s.coverage.is_some()),
+                    ),
+                    (
+                        format!("mean width{u}"),
+                        |s| num(s.mean_width),
+                        both.iter().any(|s| s.mean_width.is_some()),
+                    ),
+                ]
+                .into_iter()
+                .filter(|c| c.2)
+                .map(|(head, cell, _)| (head, cell))
+                .collect();
+                h.push_str("<table><tr><th class=\"l\">attributes</th>");
+                for (head, _) in &columns {
+                    let _ = write!(h, "<th>{head}</th>");
+                }
+                h.push_str("</tr>\n");
                 for (name, s) in [("all", &a.with_all), ("without removed", &a.without)] {
-                    let _ = writeln!(
-                        h,
-                        "<tr><td class=\"l\">{name}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td></tr>",
-                        num(s.r2),
-                        num(s.rmse),
-                        pct(s.coverage),
-                        num(s.mean_width)
-                    );
+                    let _ = write!(h, "<tr><td class=\"l\">{name}</td>");
+                    for (_, cell) in &columns {
+                        let _ = write!(h, "<td>{}</td>", cell(s));
+                    }
+                    h.push_str("</tr>\n");
                 }
                 h.push_str("</table></div>\n");
             }

@@ -231,6 +231,9 @@ pub struct PitHistogram {
 pub struct LearningCurve {
     /// Random well subsets drawn per size.
     pub repeats: usize,
+    /// How the curve's models were fitted (e.g. the forest alone with fewer trees than the main
+    /// model), shown beside the curve; empty when not recorded.
+    pub note: String,
     /// One point per subset size.
     pub points: Vec<LearningPoint>,
 }
@@ -263,6 +266,8 @@ pub struct Importance {
     pub by_attribute: Vec<AttributeImportance>,
     /// One entry per family (amplitudes, AVO intercept/gradient, timing, ...).
     pub by_family: Vec<FamilyImportance>,
+    /// How the family values were obtained; empty means the sum of the family's attribute values.
+    pub family_note: String,
 }
 
 /// Importance of one attribute.
@@ -386,6 +391,9 @@ pub struct InfillRow {
     pub distance: Option<f64>,
     /// Inside the area of applicability.
     pub inside: bool,
+    /// Share of the drainage area (nodes within the drainage radius) inside the area of
+    /// applicability.
+    pub drainage_inside_fraction: Option<f64>,
 }
 
 /// Scores of the maps against the truth at every node (synthetic projects).

@@ -4,6 +4,7 @@
 //! - [`font`]: the embedded DejaVu Sans typeface, registered with plotters.
 //! - [`picture`]: PNG maps (rasterised by inverse mapping, rotated grids included), cross-plots,
 //!   line plots and bar charts, returned as PNG bytes.
+//! - [`labels`]: point labels placed clear of each other and of the symbols.
 //! - [`input`]: [`ReportInput`], the plain serialisable data the page is built from.
 //! - [`html`]: [`render_html`], one self-contained HTML page (pictures as data URIs, inline CSS, no
 //!   scripts, no network), and [`write_html`] (temporary file + rename).
@@ -15,14 +16,16 @@ pub mod colormap;
 pub mod font;
 pub mod html;
 pub mod input;
+pub mod labels;
 pub mod picture;
 
 pub use colormap::{Colormap, ColourScale};
 pub use html::{render_html, write_html};
 pub use input::{DATA_FILE, PAGE_FILE, PictureRef, ReportInput};
 pub use picture::{
-    BarPicture, BarSeries, CrossPlot, Curve, LinePicture, MapGeometry, MapPicture, MapView,
-    PointSeries, Reference, bars_png, crossplot_png, line_png, map_png,
+    BarPicture, BarSeries, CrossPlot, Curve, LinePicture, MapGeometry, MapLine, MapPicture,
+    MapView, MapWell, PointSeries, Reference, WellSymbol, bars_png, crossplot_png, line_png,
+    map_png,
 };
 
 use std::path::{Path, PathBuf};

@@ -85,13 +85,14 @@ pub struct SynthSettings {
     pub ny: usize,
     /// Node spacing in metres, the same along x and y \[50\], > 0.
     pub spacing: f64,
-    /// World x of node (0, 0), m \[431000\].
+    /// World x of node (0, 0), m \[20000\] (local engineering coordinates of an invented field).
     pub origin_x: f64,
-    /// World y of node (0, 0), m \[6712000\].
+    /// World y of node (0, 0), m \[40000\].
     pub origin_y: f64,
     /// Grid rotation, degrees counter-clockwise from east \[0\].
     pub rotation: f64,
-    /// EPSG code written to the maps \[32631\].
+    /// EPSG code written to the maps \[none: local engineering coordinates in metres, which the
+    /// GeoTIFFs describe as such\].
     pub epsg: Option<u32>,
     /// Null value in the files \[-999.25\].
     pub null_value: f64,
@@ -283,10 +284,10 @@ impl Default for SynthSettings {
             nx: 120,
             ny: 100,
             spacing: 50.0,
-            origin_x: 431_000.0,
-            origin_y: 6_712_000.0,
+            origin_x: 20_000.0,
+            origin_y: 40_000.0,
             rotation: 0.0,
-            epsg: Some(32631),
+            epsg: None,
             null_value: -999.25,
             wells: 45,
             injector_fraction: 0.3,

@@ -246,16 +246,22 @@ fn manifest(field: &SynthField, settings: &SynthSettings, steps: &[StepRecord]) 
     t
 }
 
-/// The wells CSV text: well,x,y,step,dP,dSw,dSg.
+/// The wells CSV text: well,x,y,step,kind,dP,dSw,dSg.
 fn wells_csv(field: &SynthField) -> String {
-    let mut t = String::from("well,x,y,step");
+    let kinds: std::collections::HashMap<&str, &str> = field
+        .wells
+        .iter()
+        .map(|w| (w.name.as_str(), w.kind.as_str()))
+        .collect();
+    let mut t = String::from("well,x,y,step,kind");
     for name in &field.target_names {
         t.push(',');
         t.push_str(name);
     }
     t.push('\n');
     for (well, x, y, step, values) in &field.well_rows {
-        let _ = write!(t, "{well},{x:.3},{y:.3},{step}");
+        let kind = kinds.get(well.as_str()).copied().unwrap_or("");
+        let _ = write!(t, "{well},{x:.3},{y:.3},{step},{kind}");
         for v in values {
             let _ = write!(t, ",{v:.6}");
         }

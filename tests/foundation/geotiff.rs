@@ -8,8 +8,8 @@ use tidemark::io::{IoError, geotiff};
 
 fn grid(rotation: f64, epsg: Option<u32>) -> Grid {
     Grid {
-        origin_x: 512000.0,
-        origin_y: 7340000.0,
+        origin_x: 500000.0,
+        origin_y: 3300000.0,
         dx: 25.0,
         dy: 12.5,
         nx: 7,
@@ -47,7 +47,7 @@ fn assert_same_values(a: &[f64], b: &[f64]) {
 #[test]
 fn round_trip_unrotated_and_rotated() {
     let dir = tempfile::tempdir().unwrap();
-    for (k, (rotation, epsg)) in [(0.0, Some(32631)), (30.0, Some(32631)), (-112.5, None)]
+    for (k, (rotation, epsg)) in [(0.0, Some(32625)), (30.0, Some(32625)), (-112.5, None)]
         .into_iter()
         .enumerate()
     {
@@ -76,19 +76,19 @@ fn round_trip_unrotated_and_rotated() {
 fn read_on_grid_says_how_grids_differ() {
     let dir = tempfile::tempdir().unwrap();
     let path = dir.path().join("m.tif");
-    let g = grid(0.0, Some(32631));
+    let g = grid(0.0, Some(32625));
     geotiff::write(&path, &g, &values(&g), None).unwrap();
     let mut other = g.clone();
     other.nx = 8;
     other.origin_x += 5.0;
-    other.epsg = Some(32632);
+    other.epsg = Some(32626);
     let err = geotiff::read_on_grid(&path, &other).unwrap_err();
     let msg = err.to_string();
     assert!(matches!(err, IoError::GridMismatch { .. }));
     assert!(msg.contains("m.tif"), "{msg}");
     assert!(msg.contains("size 7 x 5 nodes, expected 8 x 5"), "{msg}");
     assert!(msg.contains("origin"), "{msg}");
-    assert!(msg.contains("EPSG:32631, expected EPSG:32632"), "{msg}");
+    assert!(msg.contains("EPSG:32625, expected EPSG:32626"), "{msg}");
 }
 
 #[test]
@@ -100,7 +100,7 @@ fn wrong_length_writes_nothing() {
     assert!(list_files(dir.path()).is_empty());
 }
 
-fn gdal(program: &str, args: &[&str]) -> std::process::Output {
+pub(crate) fn gdal(program: &str, args: &[&str]) -> std::process::Output {
     match Command::new(program).args(args).output() {
         Ok(out) => {
             assert!(
@@ -117,7 +117,7 @@ fn gdal(program: &str, args: &[&str]) -> std::process::Output {
     }
 }
 
-fn gdalinfo_json(path: &Path) -> serde_json::Value {
+pub(crate) fn gdalinfo_json(path: &Path) -> serde_json::Value {
     let out = gdal("gdalinfo", &["-json", path.to_str().unwrap()]);
     serde_json::from_slice(&out.stdout).expect("gdalinfo -json prints JSON")
 }
@@ -128,8 +128,8 @@ fn gdalinfo_json(path: &Path) -> serde_json::Value {
 #[test]
 fn gdalinfo_agrees() {
     let dir = tempfile::tempdir().unwrap();
-    for (rotation, epsg) in [(0.0, 32631u32), (30.0, 32631)] {
-        let g = grid(rotation, Some(epsg));
+    for (rotation, epsg) in [(0.0, Some(32625u32)), (30.0, Some(32625)), (-112.5, None)] {
+        let g = grid(rotation, epsg);
         let path = dir.path().join(format!("rot{rotation}.tif"));
         geotiff::write(&path, &g, &values(&g), None).unwrap();
         let info = gdalinfo_json(&path);
@@ -154,10 +154,20 @@ fn gdalinfo_agrees() {
         assert_eq!(band["noDataValue"].as_f64(), Some(-999.25), "{band}");
         assert_eq!(band["type"], "Float32");
         let wkt = info["coordinateSystem"]["wkt"].as_str().expect("wkt");
-        assert!(
-            wkt.ends_with(&format!("ID[\"EPSG\",{epsg}]]")),
-            "EPSG code missing from {wkt}"
-        );
+        match epsg {
+            Some(code) => assert!(
+                wkt.ends_with(&format!("ID[\"EPSG\",{code}]]")),
+                "EPSG code missing from {wkt}"
+            ),
+            // No EPSG code: GDAL must still see a named local engineering system in metres.
+            None => {
+                assert!(
+                    wkt.starts_with(&format!("ENGCRS[\"{}\"", geotiff::LOCAL_CRS_NAME)),
+                    "{wkt}"
+                );
+                assert!(wkt.contains("LENGTHUNIT[\"metre\",1"), "{wkt}");
+            }
+        }
     }
 }
 
@@ -166,7 +176,7 @@ fn gdalinfo_agrees() {
 #[test]
 fn gdal_translate_xyz_matches_nodes() {
     let dir = tempfile::tempdir().unwrap();
-    let g = grid(0.0, Some(32631));
+    let g = grid(0.0, Some(32625));
     let v = values(&g);
     let tif = dir.path().join("m.tif");
     let xyz = dir.path().join("m.xyz");
@@ -209,7 +219,7 @@ fn gdal_translate_xyz_matches_nodes() {
 #[test]
 fn reads_gdal_written_variants() {
     let dir = tempfile::tempdir().unwrap();
-    let g = grid(0.0, Some(32631));
+    let g = grid(0.0, Some(32625));
     let v: Vec<f64> = (0..g.len()).map(|k| (k % 11) as f64 - 3.0).collect();
     let src = dir.path().join("src.tif");
     geotiff::write(&src, &g, &v, None).unwrap();

@@ -11,3 +11,4 @@ mod outputs;
 mod readers;
 mod sample;
 mod xyz;
+mod xyz_gdal;

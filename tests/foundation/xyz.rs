@@ -138,10 +138,15 @@ fn shared_coordinates_write_the_same_text() {
     xyz::write_with_coordinates(&b, &g, &v, &coords).unwrap();
     let text = std::fs::read_to_string(&b).unwrap();
     assert_eq!(std::fs::read_to_string(&a).unwrap(), text);
-    for (k, line) in text.lines().skip(1).enumerate() {
+    assert_eq!(
+        text.lines().count(),
+        g.len(),
+        "one line per node, no header"
+    );
+    for (k, line) in text.lines().enumerate() {
         let f: Vec<f64> = line.split(' ').map(|s| s.parse().unwrap()).collect();
         let (x, y) = g.node_xy(k % g.nx, k / g.nx);
-        assert_eq!((f[0], f[1], f[2]), (x, y, v[k]), "line {}", k + 2);
+        assert_eq!((f[0], f[1], f[2]), (x, y, v[k]), "line {}", k + 1);
     }
     let other = Grid { nx: 5, ..grid(0.0) };
     let c = dir.path().join("c.xyz");

@@ -69,16 +69,36 @@ pub fn fixture() -> &'static Fixture {
 }
 
 fn tifs_under(dir: &Path) -> Vec<PathBuf> {
+    files_under(dir, "tif")
+}
+
+fn files_under(dir: &Path, ext: &str) -> Vec<PathBuf> {
     let mut out = Vec::new();
     for e in std::fs::read_dir(dir).unwrap() {
         let p = e.unwrap().path();
         if p.is_dir() {
-            out.extend(tifs_under(&p));
-        } else if p.extension().is_some_and(|x| x == "tif") {
+            out.extend(files_under(&p, ext));
+        } else if p.extension().is_some_and(|x| x == ext) {
             out.push(p);
         }
     }
     out.sort();
+    out
+}
+
+/// Runs a GDAL command-line tool and fails with install instructions when it is missing.
+fn gdal(program: &str, args: &[&str]) -> std::process::Output {
+    let out = Command::new(program)
+        .args(args)
+        .output()
+        .unwrap_or_else(|e| {
+            panic!("{program} could not be run ({e}): install Debian's gdal-bin (.ci/deps does)")
+        });
+    assert!(
+        out.status.success(),
+        "{program} {args:?} failed: {}",
+        String::from_utf8_lossy(&out.stderr)
+    );
     out
 }
 
@@ -111,8 +131,8 @@ fn every_expected_file_exists_and_gdal_reads_each_map() {
             "dSw_exceed_swept",
             "dP_exceed_depleted",
             "dSg_exceed_gas_out",
-            "applicability",
-            "inside",
+            "dissimilarity",
+            "applicable",
             "outside_range",
         ] {
             assert!(o.join(format!("maps/{step}/{m}.tif")).is_file(), "{m}");
@@ -133,10 +153,96 @@ fn every_expected_file_exists_and_gdal_reads_each_map() {
         assert_eq!(v["size"][0].as_u64(), Some(grid.nx as u64));
         assert_eq!(v["size"][1].as_u64(), Some(grid.ny as u64));
     }
+    // ... and every XYZ map, through its XYZ driver, with the nodata value of the sidecar.
+    let xyzs = files_under(&o.join("maps"), "xyz");
+    assert_eq!(xyzs.len(), 3 * 15, "one XYZ per GeoTIFF");
+    for xyz in xyzs {
+        let out = gdal("gdalinfo", &["-json", xyz.to_str().unwrap()]);
+        let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+        assert_eq!(v["driverShortName"], "XYZ", "{}", xyz.display());
+        assert_eq!(v["size"][0].as_u64(), Some(grid.nx as u64));
+        assert_eq!(v["size"][1].as_u64(), Some(grid.ny as u64));
+        assert_eq!(v["bands"][0]["noDataValue"].as_f64(), Some(grid.null_value));
+    }
+}
+
+// Tiles of `tidemark predict --tile i/N` are georeferenced GeoTIFFs: GDAL's gdalbuildvrt mosaics
+// them into the whole map, node for node equal to a whole-grid run, with no gap and no overlap;
+// and their XYZ text, concatenated in tile order, is the whole map too.
+#[test]
+fn tiles_mosaic_into_the_whole_map_with_gdal() {
+    let f = fixture();
+    let model = f.out.join("model.json");
+    let count = 5; // 52 rows: tiles of 10, 10, 11, 10 and 11 rows
+    let root = f.root.join("mosaic");
+    if root.exists() {
+        std::fs::remove_dir_all(&root).unwrap();
+    }
+    let mut dirs = Vec::new();
+    for i in 1..=count {
+        let dir = root.join(format!("tile{i}"));
+        let tile = Tile { index: i, count };
+        predict(&model, &f.project, &dir, Some(tile), Formats::default()).expect("tile");
+        dirs.push(dir);
+    }
+    let whole_grid = tidemark::project::Project::load(&f.project).unwrap().grid;
+    for step in ["m1", "m3"] {
+        for name in ["dSw_p50", "dP_p90", "dSg_exceed_gas_out", "applicable"] {
+            let rel = format!("maps/{step}/{name}");
+            let whole = tidemark::io::geotiff::read(&f.out.join(format!("{rel}.tif"))).unwrap();
+            let vrt = root.join(format!("{step}_{name}.vrt"));
+            let tif = root.join(format!("{step}_{name}.tif"));
+            let mut args = vec!["-q".to_string(), vrt.display().to_string()];
+            args.extend(
+                dirs.iter()
+                    .map(|d| d.join(format!("{rel}.tif")).display().to_string()),
+            );
+            let args: Vec<&str> = args.iter().map(String::as_str).collect();
+            gdal("gdalbuildvrt", &args);
+            gdal(
+                "gdal_translate",
+                &["-q", vrt.to_str().unwrap(), tif.to_str().unwrap()],
+            );
+            let mosaic = tidemark::io::geotiff::read(&tif).unwrap();
+            assert!(
+                whole_grid.differences(&mosaic.grid).is_empty(),
+                "{rel}: {:?}",
+                whole_grid.differences(&mosaic.grid)
+            );
+            assert_eq!(mosaic.values.len(), whole.values.len());
+            for (k, (a, b)) in whole.values.iter().zip(&mosaic.values).enumerate() {
+                assert!(
+                    a == b || (a.is_nan() && b.is_nan()),
+                    "{rel} node {k}: whole {a}, mosaic {b}"
+                );
+            }
+            let text: String = dirs
+                .iter()
+                .map(|d| std::fs::read_to_string(d.join(format!("{rel}.xyz"))).unwrap())
+                .collect();
+            let joined =
+                tidemark::io::xyz::parse(Path::new("joined.xyz"), &text, &whole_grid, 0.01)
+                    .unwrap();
+            let want = tidemark::io::xyz::read_on_grid(
+                &f.out.join(format!("{rel}.xyz")),
+                &whole_grid,
+                0.01,
+            )
+            .unwrap();
+            for (k, (a, b)) in want.iter().zip(&joined).enumerate() {
+                assert!(
+                    a == b || (a.is_nan() && b.is_nan()),
+                    "{rel} node {k}: whole {a}, joined tiles {b}"
+                );
+            }
+        }
+    }
 }
 
 fn png_size_and_variance(path: &Path) -> (u32, u32, f64) {
-    let decoder = png::Decoder::new(std::io::BufReader::new(std::fs::File::open(path).unwrap()));
+    let mut decoder =
+        png::Decoder::new(std::io::BufReader::new(std::fs::File::open(path).unwrap()));
+    decoder.set_transformations(png::Transformations::EXPAND);
     let mut reader = decoder.read_info().unwrap();
     let mut buf = vec![0; reader.output_buffer_size()];
     let info = reader.next_frame(&mut buf).unwrap();
@@ -157,7 +263,7 @@ fn pictures_have_the_expected_size_and_are_not_blank() {
     let dir = f.out.join("pictures");
     let mut seen = 0;
     for step in ["m1", "m3"] {
-        for name in ["dSw_p50", "dSw_width", "dSw_exceed_swept", "applicability"] {
+        for name in ["dSw_p50", "dSw_width", "dSw_exceed_swept", "dissimilarity"] {
             let p = dir.join(step).join(format!("{name}.png"));
             let (w, h, var) = png_size_and_variance(&p);
             assert_eq!(
@@ -205,7 +311,7 @@ fn infill_targets_respect_spacing_and_applicability() {
     assert_eq!(sidecar["step"], last.as_str());
     assert_eq!(sidecar["targets"].as_array().unwrap().len(), targets.len());
     let inside =
-        tidemark::io::geotiff::read(&f.out.join(format!("maps/{last}/inside.tif"))).unwrap();
+        tidemark::io::geotiff::read(&f.out.join(format!("maps/{last}/applicable.tif"))).unwrap();
     let g = &inside.grid;
     let (cx, cy, cd) = (col("x"), col("y"), col("nearest_well_distance"));
     for (a, t) in targets.iter().enumerate() {
@@ -274,7 +380,7 @@ fn same_seed_same_maps_and_tiles_put_together_equal_the_whole() {
         predict(&model, &f.project, &dir, Some(tile), formats).expect("tile");
         tiles.push((tile, dir));
     }
-    for name in ["dSw_p50", "dP_p10", "dSg_exceed_gas_out", "applicability"] {
+    for name in ["dSw_p50", "dP_p10", "dSg_exceed_gas_out", "dissimilarity"] {
         let whole =
             tidemark::io::geotiff::read(&f.out.join(format!("maps/m2/{name}.tif"))).unwrap();
         let mut stitched: Vec<f64> = Vec::new();

@@ -14,8 +14,24 @@ fn the_report_of_a_run_renders_in_headless_chromium() {
     let page = f.out.join("report.html");
     let html = std::fs::read_to_string(&page).unwrap();
     let n_images = crate::report::html::check_self_contained(&html);
-    // 3 steps x (3 targets x 3 maps + applicability) + infill + error maps + diagnostics plots.
+    // 3 steps x (3 targets x 3 maps + dissimilarity) + infill + error maps + diagnostics plots.
     assert!(n_images >= 30 + 1 + 9, "only {n_images} images");
+    // Palette PNGs keep the page small enough to mail: every map picture under 100 kB, the page
+    // under 5 MB (the demo's, with 53 maps, is about 4.6 MB).
+    let pictures = f.out.join("pictures");
+    let mut stack = vec![pictures];
+    while let Some(dir) = stack.pop() {
+        for e in std::fs::read_dir(&dir).unwrap() {
+            let p = e.unwrap().path();
+            if p.is_dir() {
+                stack.push(p);
+            } else {
+                let len = std::fs::metadata(&p).unwrap().len();
+                assert!(len < 100_000, "{}: {len} bytes", p.display());
+            }
+        }
+    }
+    assert!(html.len() < 5_000_000, "page of {} bytes", html.len());
     let name = project::Project::load(&f.project).unwrap().name;
     crate::report::browser::check_page_in_browser(&page, n_images, &name);
     assert!(html.contains("not a reserves estimate"));

@@ -88,10 +88,19 @@ pub fn sample_input(dir: &Path) -> ReportInput {
         ny,
         rotation_deg: 20.0,
     };
-    let wells: Vec<(f64, f64, String)> = (0..6)
+    let wells: Vec<MapWell> = (0..6)
         .map(|k| {
             let (x, y) = geometry.node_xy(8 + 8 * k, 5 + 5 * k);
-            (x, y, format!("SB-{}", k + 1))
+            MapWell {
+                x,
+                y,
+                name: format!("SB-{}", k + 1),
+                symbol: if k % 2 == 0 {
+                    WellSymbol::Producer
+                } else {
+                    WellSymbol::Injector
+                },
+            }
         })
         .collect();
     let outside: Vec<bool> = (0..nx * ny).map(|k| k % nx > 50).collect();
@@ -136,6 +145,9 @@ pub fn sample_input(dir: &Path) -> ReportInput {
                     outside: Some(&outside),
                     caption: "P10 is the low value (percentile convention).".to_string(),
                     markers: &[],
+                    subtitle: format!("step {step}"),
+                    crs: "EPSG:32625".to_string(),
+                    lines: &[],
                 };
                 let png = map_png(&pic, 560, 420).expect("map picture");
                 let picture = if kind == "P50" {
@@ -170,11 +182,14 @@ pub fn sample_input(dir: &Path) -> ReportInput {
             outside: Some(&outside),
             caption: String::new(),
             markers: &[],
+            subtitle: String::new(),
+            crs: "EPSG:32625".to_string(),
+            lines: &[],
         };
         maps.push(MapEntry {
             step: step.clone(),
             target: None,
-            kind: "applicability".to_string(),
+            kind: "dissimilarity".to_string(),
             picture: PictureRef::from_png(&map_png(&pic, 560, 420).unwrap()),
             caption: String::new(),
         });
@@ -248,6 +263,7 @@ pub fn sample_input(dir: &Path) -> ReportInput {
                 }),
                 learning_curve: Some(LearningCurve {
                     repeats: 5,
+                    note: "the forest alone with 100 trees".to_string(),
                     points: [6usize, 10, 14, 18, 24]
                         .iter()
                         .map(|&w| LearningPoint {
@@ -292,6 +308,7 @@ pub fn sample_input(dir: &Path) -> ReportInput {
                             value: Some(0.01),
                         },
                     ],
+                    family_note: String::new(),
                 }),
                 ablation: Some(Ablation {
                     description: "Skill without the angle-dependent attributes.".to_string(),
@@ -325,6 +342,9 @@ pub fn sample_input(dir: &Path) -> ReportInput {
             outside: None,
             caption: String::new(),
             markers: &[],
+            subtitle: String::new(),
+            crs: "EPSG:32625".to_string(),
+            lines: &[],
         },
         560,
         420,
@@ -360,6 +380,7 @@ pub fn sample_input(dir: &Path) -> ReportInput {
                 nearest_well: "SB-2".to_string(),
                 distance: Some(410.0),
                 inside: true,
+                drainage_inside_fraction: Some(0.85),
             }],
         }),
         truth: Some(TruthSection {

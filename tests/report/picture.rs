@@ -2,7 +2,9 @@
 
 use super::fixture::{decode, field, grey_variance};
 use tidemark::report::colormap::{ColourScale, hex};
-use tidemark::report::picture::{HATCH_COLOUR, NULL_COLOUR, rasterise};
+use tidemark::report::picture::{
+    self, HATCH_COLOUR, HATCH_LIGHT, HATCH_SPACING, NULL_COLOUR, hatch_colour, rasterise,
+};
 use tidemark::report::*;
 
 const YELLOW: [u8; 3] = [0xfd, 0xe7, 0x25]; // viridis top
@@ -21,6 +23,9 @@ fn picture<'a>(geometry: MapGeometry, values: &'a [f64]) -> MapPicture<'a> {
         outside: None,
         caption: String::new(),
         markers: &[],
+        subtitle: String::new(),
+        crs: String::new(),
+        lines: &[],
     }
 }
 
@@ -201,16 +206,95 @@ fn nulls_and_outside_nodes_are_marked() {
         .flat_map(|y| (21..40).map(move |x| (x, y)))
         .map(|(x, y)| img[y * 40 + x])
         .collect();
-    assert!(cells.iter().all(|c| *c != YELLOW));
-    assert!(cells.contains(&HATCH_COLOUR));
-    assert!(cells.contains(&[0xfe, 0xf3, 0x92]));
+    // node 1 (outside): its own colour under thin dark hatch lines, one pixel diagonal in every
+    // HATCH_SPACING, so the value stays readable
+    let hatch = cells.iter().filter(|c| **c == HATCH_COLOUR).count();
+    let kept = cells.iter().filter(|c| **c == YELLOW).count();
+    assert_eq!(hatch + kept, cells.len());
+    let share = hatch as f64 / cells.len() as f64;
+    assert!(
+        (share - 1.0 / HATCH_SPACING as f64).abs() < 0.05,
+        "hatch share {share}"
+    );
+    // Over dark cells the lines are light.
+    assert_eq!(hatch_colour(PURPLE), HATCH_LIGHT);
+    assert_eq!(hatch_colour(YELLOW), HATCH_COLOUR);
+}
+
+#[test]
+fn palette_png_keeps_frequent_colours_exactly() {
+    // 300 colours: 200 frequent ones (a ramp of 50 pixels each) and 100 that occur once.
+    let mut rgb = Vec::new();
+    for k in 0..200u32 {
+        for _ in 0..50 {
+            rgb.extend([k as u8, (255 - k) as u8, 40]);
+        }
+    }
+    for k in 0..100u32 {
+        rgb.extend([k as u8, 7, (k * 2) as u8]);
+    }
+    let (w, h) = (100u32, (rgb.len() / 300) as u32);
+    let d = decode(&picture::encode_png(&rgb, w, h).unwrap());
+    let back: Vec<u8> = d.rgb.iter().flatten().copied().collect();
+    assert_eq!(
+        &back[..200 * 50 * 3],
+        &rgb[..200 * 50 * 3],
+        "frequent colours exact"
+    );
+    // The rare ones take the nearest palette colour: close, not exact.
+    for (a, b) in back[200 * 50 * 3..]
+        .chunks(3)
+        .zip(rgb[200 * 50 * 3..].chunks(3))
+    {
+        let d2: i32 = (0..3)
+            .map(|k| (i32::from(a[k]) - i32::from(b[k])).pow(2))
+            .sum();
+        assert!(d2 < 3 * 120 * 120, "{a:?} vs {b:?}");
+    }
+    // At most 256 colours: the image comes back exactly.
+    let small: Vec<u8> = (0..256u32 * 4)
+        .flat_map(|k| [(k % 256) as u8, 3, 9])
+        .collect();
+    let d = decode(&picture::encode_png(&small, 64, 16).unwrap());
+    let back: Vec<u8> = d.rgb.iter().flatten().copied().collect();
+    assert_eq!(back, small);
+}
+
+#[test]
+fn scale_bar_lengths_and_ticks_are_round() {
+    assert_eq!(picture::nice_length(1320.0), 1000.0);
+    assert_eq!(picture::nice_length(2600.0), 2000.0);
+    assert_eq!(picture::nice_length(0.07), 0.05);
+    assert_eq!(picture::length_text(2000.0, "m"), "2 km");
+    assert_eq!(picture::length_text(500.0, "m"), "500 m");
+    assert_eq!(
+        picture::nice_ticks(-0.62, 0.62, 6),
+        vec![-0.6, -0.4, -0.2, 0.0, 0.2, 0.4, 0.6]
+    );
+    assert_eq!(
+        picture::nice_ticks(0.0, 1.0, 5),
+        vec![0.0, 0.2, 0.4, 0.6, 0.8, 1.0]
+    );
 }
 
 #[test]
 fn map_picture_has_size_content_and_colours() {
     let (nx, ny) = (80, 50);
     let v = field(nx, ny, 3);
-    let wells = vec![(500.0, 400.0, "SB-1".to_string())];
+    let wells = vec![
+        MapWell {
+            x: 500.0,
+            y: 400.0,
+            name: "SB-1".to_string(),
+            symbol: WellSymbol::Producer,
+        },
+        MapWell {
+            x: 520.0,
+            y: 410.0,
+            name: "SB-2".to_string(),
+            symbol: WellSymbol::Injector,
+        },
+    ];
     let markers = vec![(900.0, 700.0, "1".to_string())];
     let g = MapGeometry {
         origin_x: 0.0,
@@ -499,4 +583,64 @@ fn geometry_from_grid_keeps_node_positions() {
     let (x, y) = g.node_xy(6, 4);
     assert!((x - (1000.0 + 6.0 * 12.5 * r.cos() - 4.0 * 25.0 * r.sin())).abs() < 1e-9);
     assert!((y - (2000.0 + 6.0 * 12.5 * r.sin() + 4.0 * 25.0 * r.cos())).abs() < 1e-9);
+}
+
+// Outlines and fault traces are drawn over the cells: a line across a flat map adds a band of
+// black pixels about as long as the map is wide. The picture (rotated grid, every well symbol,
+// a ranked target, an outline) is kept in the target folder for a look.
+#[test]
+fn outlines_are_drawn_over_a_rotated_map() {
+    let (nx, ny) = (60, 40);
+    let g = MapGeometry {
+        origin_x: 20000.0,
+        origin_y: 40000.0,
+        dx: 50.0,
+        dy: 50.0,
+        nx,
+        ny,
+        rotation_deg: 30.0,
+    };
+    let v = field(nx, ny, 5);
+    let (x0, x1, y0, y1) = g.extent();
+    let ym = (y0 + y1) / 2.0;
+    let lines = [MapLine {
+        points: vec![(x0 - 100.0, ym), (x1 + 100.0, ym)],
+    }];
+    let (cx, cy) = g.node_xy(30, 20);
+    let symbols = [
+        WellSymbol::Producer,
+        WellSymbol::Injector,
+        WellSymbol::Observer,
+        WellSymbol::Unknown,
+    ];
+    let wells: Vec<MapWell> = (0..8)
+        .map(|k| MapWell {
+            x: cx + 40.0 * k as f64,
+            y: cy - 300.0 + 25.0 * k as f64,
+            name: format!("SKB-W{k}"),
+            symbol: symbols[k % 4],
+        })
+        .collect();
+    let markers = vec![(cx - 400.0, cy + 200.0, "#1".to_string())];
+    let outside: Vec<bool> = (0..nx * ny).map(|k| k % nx < 12).collect();
+    let mut p = picture(g, &v);
+    p.scale = ColourScale::diverging_from(&v);
+    p.title = "dSw P50 (most likely change)".to_string();
+    p.subtitle = "step m2: monitor 2019-06-01 minus base 2016-06-01".to_string();
+    p.crs = "local engineering coordinates in metres".to_string();
+    p.wells = &wells;
+    p.markers = &markers;
+    p.outside = Some(&outside);
+    let black = |png: &[u8]| decode(png).rgb.iter().filter(|c| **c == [0, 0, 0]).count();
+    let without = black(&map_png(&p, 1000, 840).unwrap());
+    p.lines = &lines;
+    let png = map_png(&p, 1000, 840).unwrap();
+    let with = black(&png);
+    assert!(
+        with > without + 2 * 400,
+        "outline adds only {} black pixels",
+        with - without
+    );
+    let keep = std::path::Path::new(env!("CARGO_TARGET_TMPDIR")).join("map-overlays.png");
+    std::fs::write(keep, &png).unwrap();
 }

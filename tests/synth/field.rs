@@ -124,11 +124,24 @@ fn written_project_loads_and_matches_the_field() {
 
     // wells CSV: the exact header, one row per observation, values within rounding
     let text = std::fs::read_to_string(dir.path().join("wells.csv")).unwrap();
-    assert_eq!(text.lines().next().unwrap(), "well,x,y,step,dP,dSw,dSg");
+    assert_eq!(
+        text.lines().next().unwrap(),
+        "well,x,y,step,kind,dP,dSw,dSg"
+    );
     assert_eq!(survey.wells.len(), field.well_rows.len());
     for (rec, row) in survey.wells.iter().zip(&field.well_rows) {
         assert_eq!(rec.well, row.0);
         assert_eq!(rec.step, row.3);
+        let synth_kind = field
+            .wells
+            .iter()
+            .find(|w| w.name == rec.well)
+            .unwrap()
+            .kind;
+        assert_eq!(
+            rec.kind.map(|k| format!("{k:?}").to_lowercase()),
+            Some(synth_kind.as_str().to_string())
+        );
         assert!((rec.x - row.1).abs() < 1e-3 && (rec.y - row.2).abs() < 1e-3);
         for (a, b) in rec.targets.iter().zip(&row.4) {
             assert!((a - b).abs() < 1e-6);
