@@ -9,7 +9,7 @@
 //! page that shows them is assembled in [`super::assemble`].
 
 use super::PipelineError;
-use super::model::{SavedModel, StepMaps, convention_text};
+use super::model::{SavedModel, StepMaps};
 use super::outputs::Writer;
 use crate::decide::Target;
 use crate::grid::Grid;
