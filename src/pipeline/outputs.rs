@@ -254,6 +254,9 @@ impl Writer {
         }
         if self.formats.xyz {
             out.push(self.target(&format!("{rel}.xyz"))?);
+            // The XYZ writer puts its GDAL sidecar beside the map; listed so that `run.json`
+            // describes every file of the folder.
+            self.target(&format!("{rel}.xyz.aux.xml"))?;
         }
         Ok(out)
     }

@@ -590,7 +590,6 @@ pub fn score_with(
                 .all(|(_, wx, wy)| (wx - x).hypot(wy - y) > reach)
         })
         .collect();
-    let read = |rel: PathBuf| io::geotiff::read_on_grid(&rel, &grid);
     let (regions, masks) = read_regions(&troot, &grid)?;
     let project_path = find_project(results, truth, project);
     let (survey, forest_note) = match &project_path {
@@ -628,26 +627,14 @@ pub fn score_with(
             masks.iter().map(|(n, _)| (n.clone(), Vec::new())).collect();
         let mut steps = Vec::new();
         for (s, step) in model.step_names.iter().enumerate() {
-            let dir = results.join("maps").join(step);
-            let base = |suffix: &str| dir.join(format!("{}_{suffix}.tif", spec.name));
-            let data = Pooled {
-                truth: read(troot.join(step).join(format!("{}.tif", spec.name)))?,
-                mid: read(base("p50"))?,
-                lo: read(base(&lo_label))?,
-                hi: read(base(&hi_label))?,
-                exceed: ths
-                    .iter()
-                    .map(|th| read(base(&format!("exceed_{}", th.label))))
-                    .collect::<Result<_, _>>()?,
-            };
-            // Results folders written before the maps were renamed call it inside.tif.
-            let area = dir.join("applicable.tif");
-            let area = if area.exists() {
-                area
-            } else {
-                dir.join("inside.tif")
-            };
-            let inside: Vec<bool> = read(area)?.iter().map(|v| *v == 1.0).collect();
+            let (data, inside) = read_step(
+                &results.join("maps").join(step),
+                &troot.join(step).join(format!("{}.tif", spec.name)),
+                &spec.name,
+                &ths,
+                (&lo_label, &hi_label),
+                &grid,
+            )?;
             let cal_band = Band {
                 lo: data.lo.clone(),
                 mid: data.mid.clone(),
@@ -821,4 +808,37 @@ pub fn score_and_report_with(
         crate::report::write_html(&input, results)?;
     }
     Ok(scores)
+}
+
+/// One step's maps of one target (`maps_dir` the step's folder of a results folder), its truth,
+/// and the area-of-applicability flag per node.
+fn read_step(
+    maps_dir: &Path,
+    truth: &Path,
+    target: &str,
+    ths: &[&crate::project::ThresholdSpec],
+    (lo_label, hi_label): (&str, &str),
+    grid: &Grid,
+) -> Result<(Pooled, Vec<bool>), PipelineError> {
+    let read = |p: PathBuf| io::geotiff::read_on_grid(&p, grid);
+    let base = |suffix: &str| maps_dir.join(format!("{target}_{suffix}.tif"));
+    let data = Pooled {
+        truth: read(truth.to_path_buf())?,
+        mid: read(base("p50"))?,
+        lo: read(base(lo_label))?,
+        hi: read(base(hi_label))?,
+        exceed: ths
+            .iter()
+            .map(|th| read(base(&format!("exceed_{}", th.label))))
+            .collect::<Result<_, _>>()?,
+    };
+    // Results folders written before the maps were renamed call it inside.tif.
+    let area = maps_dir.join("applicable.tif");
+    let area = if area.exists() {
+        area
+    } else {
+        maps_dir.join("inside.tif")
+    };
+    let inside: Vec<bool> = read(area)?.iter().map(|v| *v == 1.0).collect();
+    Ok((data, inside))
 }

@@ -385,7 +385,7 @@ fn score_reports_band_figures_per_set_with_the_uncalibrated_forest() {
             let maps = f.out.join("maps").join(step);
             let lo = read(maps.join(format!("{target}_{lo_label}.tif")));
             let hi = read(maps.join(format!("{target}_{hi_label}.tif")));
-            let inside = read(maps.join("inside.tif"));
+            let inside = read(maps.join("applicable.tif"));
             let y = read(field.join("truth").join(step).join(format!("{target}.tif")));
             for k in (0..y.len()).filter(|&k| lobe[k] && lo[k].is_finite()) {
                 let hit = lo[k] <= y[k] && y[k] <= hi[k];
@@ -430,7 +430,7 @@ fn the_forest_band_is_the_quantile_forest_of_meinshausen() {
             .collect();
         assert_eq!(
             y.len(),
-            cal.forest.n_train(),
+            cal.reference_forest().n_train(),
             "{}: the forest is fitted on the target's measured rows",
             cal.name
         );

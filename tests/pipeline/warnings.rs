@@ -17,7 +17,7 @@ fn quiet_runs_print_every_warning_naming_target_well_and_step() {
     let text = std::fs::read_to_string(&wells_csv).unwrap();
     let mut lines = text.lines();
     let header = lines.next().unwrap();
-    assert_eq!(header, "well,x,y,step,dP,dSw,dSg");
+    assert_eq!(header, "well,x,y,step,kind,dP,dSw,dSg");
     let mut kept: Vec<String> = Vec::new();
     let mut out = vec![header.to_string()];
     let mut first_step = String::new();
@@ -30,11 +30,13 @@ fn quiet_runs_print_every_warning_naming_target_well_and_step() {
             kept.push(f[0].clone());
         }
         if !kept.contains(&f[0]) {
-            f[6].clear();
+            f[7].clear();
         }
         out.push(f.join(","));
     }
-    out.push(format!("ZZ-FAR,-9000000,-9000000,{first_step},1.0,0.1,0.0"));
+    out.push(format!(
+        "ZZ-FAR,-9000000,-9000000,{first_step},,1.0,0.1,0.0"
+    ));
     std::fs::write(&wells_csv, out.join("\n") + "\n").unwrap();
 
     let results = root.join("results");
