@@ -1,8 +1,9 @@
 //! Timing harness for `tidemark check` on a full-size project of XYZ maps: 4 steps x 8 attributes
 //! on a 240 x 180 grid, 50 wells (the foundation issue's "done when" project).
 //!
-//! Run with `cargo run --release --example check_harness [-- FOLDER]`. It writes the project into
-//! FOLDER (default: a `tidemark-check-harness` folder in the system temporary folder), times the
+//! Run with `cargo run --release --example check_harness [-- FOLDER] [--wells N]`. It writes the
+//! project into FOLDER (default: a `tidemark-check-harness` folder in the system temporary
+//! folder; with `--wells N`, N wells of one row each instead of 50 wells of four), times the
 //! library's `check_project` three times, and also times the `tidemark` binary beside this example
 //! (`target/release/tidemark`, built by `cargo build --release`) when it exists.
 
@@ -57,7 +58,7 @@ fn attribute_map(g: &Grid, s: usize, a: usize) -> Vec<f64> {
     v
 }
 
-fn write_project(dir: &Path) -> PathBuf {
+fn write_project(dir: &Path, many: Option<usize>) -> PathBuf {
     let g = grid();
     let mut manifest = String::from(
         "[project]\nname = \"Skerrow Bank check harness\"\n\n[grid]\norigin_x = 12000.0\n\
@@ -88,7 +89,23 @@ fn write_project(dir: &Path) -> PathBuf {
     );
     let mut rng = StdRng::seed_from_u64(7);
     let mut csv = String::from("well,x,y,step,dSw,dP,dSg\n");
-    for w in 0..WELLS {
+    if let Some(n) = many {
+        // One row per well, the steps in turn: the size that tests well grouping.
+        for w in 0..n {
+            let (fi, fj) = (rng.random_range(35.0..235.0), rng.random_range(25.0..175.0));
+            let (x, y) = g.fractional_xy(fi, fj);
+            let s = w % STEPS.len();
+            let dsw = 0.1 * s as f64 + rng.random_range(-0.05..0.2);
+            let dp = -1.0 - s as f64 + rng.random_range(-2.0..2.0);
+            let dsg = rng.random_range(0.0..0.1);
+            let _ = writeln!(
+                csv,
+                "W{w:07},{x:.2},{y:.2},{},{dsw:.4},{dp:.3},{dsg:.4}",
+                STEPS[s]
+            );
+        }
+    }
+    for w in 0..if many.is_some() { 0 } else { WELLS } {
         let fi = rng.random_range(35.0..235.0);
         let fj = rng.random_range(25.0..175.0);
         for (s, step) in STEPS.iter().enumerate() {
@@ -110,18 +127,27 @@ fn write_project(dir: &Path) -> PathBuf {
 }
 
 fn main() {
-    let dir = std::env::args()
-        .nth(1)
-        .map(PathBuf::from)
+    let args: Vec<String> = std::env::args().skip(1).collect();
+    let many = args
+        .iter()
+        .position(|a| a == "--wells")
+        .and_then(|k| args.get(k + 1))
+        .map(|n| n.parse::<usize>().expect("--wells takes a number"));
+    let dir = args
+        .iter()
+        .enumerate()
+        .find(|(k, a)| !a.starts_with("--") && (*k == 0 || args[k - 1] != "--wells"))
+        .map(|(_, a)| PathBuf::from(a))
         .unwrap_or_else(|| std::env::temp_dir().join("tidemark-check-harness"));
     std::fs::create_dir_all(&dir).expect("create the project folder");
     let t = Instant::now();
-    let manifest = write_project(&dir);
+    let manifest = write_project(&dir, many);
     println!(
-        "wrote {} ({} steps x {} XYZ maps on 240 x 180, {WELLS} wells) in {:.2} s",
+        "wrote {} ({} steps x {} XYZ maps on 240 x 180, {} wells) in {:.2} s",
         manifest.display(),
         STEPS.len(),
         ATTRIBUTES.len(),
+        many.unwrap_or(WELLS),
         t.elapsed().as_secs_f64()
     );
     let mut times = Vec::new();
