@@ -17,6 +17,7 @@ use super::warnings::RunWarning;
 use crate::project::{self, Project, Survey};
 use crate::report::input as ri;
 use crate::sample;
+use crate::skill::Verdict;
 use rayon::prelude::*;
 use serde::Serialize;
 use sha2::{Digest, Sha256};
@@ -163,7 +164,7 @@ pub fn run(opts: &RunOptions) -> Result<RunOutcome, PipelineError> {
         }
     }
 
-    let warnings = warnings(run_warnings, &model);
+    let warnings = warnings(run_warnings, &model, &summary);
     let record = run_record(opts, project, seed, &model, &stages, warnings, &w.written);
     let out = w.root.clone();
     w.finish(&record)?;
@@ -245,8 +246,24 @@ fn infill_section(
 
 /// Every warning of the run, each naming its stage, target, well and step where it has them:
 /// the rows left out at extraction, then each target's calibration warnings.
-fn warnings(run_warnings: Vec<RunWarning>, model: &SavedModel) -> Vec<RunWarning> {
-    let mut all = run_warnings;
+fn warnings(
+    run_warnings: Vec<RunWarning>,
+    model: &SavedModel,
+    summary: &studies::Summary,
+) -> Vec<RunWarning> {
+    // Targets and steps without demonstrated skill come first.
+    let mut all: Vec<RunWarning> = Vec::new();
+    for t in &summary.targets {
+        if t.skill.as_ref().is_some_and(|s| s.verdict == Verdict::None) {
+            all.push(RunWarning::no_skill(&t.name, None));
+        }
+        for s in &t.skill_by_step {
+            if s.skill.verdict == Verdict::None {
+                all.push(RunWarning::no_skill(&t.name, Some(&s.step)));
+            }
+        }
+    }
+    all.extend(run_warnings);
     for (spec, cal) in model.targets.iter().zip(&model.calibrated) {
         all.extend(
             cal.diagnostics

@@ -7,10 +7,12 @@ use super::fit::{calibrate_rows, calibration_settings, target_rows};
 use super::model::{SavedModel, StepMaps, convention_text};
 use super::outputs::Writer;
 use super::stages::Stages;
-use crate::calibrate::{CalibrationSettings, LearnerChoice};
+use crate::calibrate::{CalibratedTarget, CalibrationSettings, LearnerChoice};
 use crate::decide::{self, InfillSettings, RankInputs, Target};
+use crate::metrics::{crps_from_quantiles, quantile_sorted};
 use crate::project::Survey;
 use crate::sample::TrainingSet;
+use crate::skill::{Skill, SkillInput, SkillSettings, StepSkill, assess, assess_by_step};
 use rand::rngs::StdRng;
 use rand::{RngExt, SeedableRng};
 use serde::{Deserialize, Serialize};
@@ -158,6 +160,10 @@ pub struct TargetSummary {
     pub importance: Vec<FeatureImportance>,
     /// Leave-wells-out diagnostics from calibration (schema in docs/summary-schema.md).
     pub diagnostics: crate::calibrate::TargetDiagnostics,
+    /// Leave-wells-out skill against the wells' climatology, steps pooled, with its verdict.
+    pub skill: Option<Skill>,
+    /// The same per step, by name.
+    pub skill_by_step: Vec<StepSkill>,
 }
 
 /// Contents of `summary.json`.
@@ -201,7 +207,8 @@ pub fn summary(
         .iter()
         .zip(&model.calibrated)
         .zip(importance)
-        .map(|((spec, cal), imp)| TargetSummary {
+        .map(|((spec, cal), imp)| (spec, cal, imp, target_skill(cal, &model.step_names)))
+        .map(|(spec, cal, imp, (skill, skill_by_step))| TargetSummary {
             name: spec.name.clone(),
             unit: spec.unit.clone(),
             bounds: [spec.min, spec.max],
@@ -215,6 +222,8 @@ pub fn summary(
                 })
                 .collect(),
             diagnostics: cal.diagnostics.clone(),
+            skill,
+            skill_by_step,
         })
         .collect();
     Summary {
@@ -446,4 +455,55 @@ pub fn curve_rows(
         .into_iter()
         .filter(|&row| wells.binary_search(&ts.group[row]).is_ok())
         .collect()
+}
+
+/// Skill of a calibrated target's held-out rows against climatology (the other wells' values at the
+/// same step), pooled and per step, with well-bootstrap intervals and verdicts ([`crate::skill`]).
+/// Both CRPS are the three-quantile CRPS at the band's levels (`metrics::crps_from_quantiles`), so
+/// that the model and climatology are scored alike. `None` and no steps when it cannot be scored.
+pub fn target_skill(
+    cal: &CalibratedTarget,
+    step_names: &[String],
+) -> (Option<Skill>, Vec<StepSkill>) {
+    let rows = &cal.diagnostics.rows;
+    let a = 1.0 - cal.level;
+    let levels = [a / 2.0, 0.5, 1.0 - a / 2.0];
+    let truth: Vec<f64> = rows.iter().map(|r| r.truth).collect();
+    let mid: Vec<f64> = rows.iter().map(|r| r.corrected).collect();
+    let well: Vec<usize> = rows.iter().map(|r| r.group).collect();
+    let step: Vec<usize> = rows.iter().map(|r| r.step).collect();
+    let weight = vec![1.0; rows.len()];
+    let crps_model: Vec<f64> = rows
+        .iter()
+        .map(|r| crps_from_quantiles(r.truth, &levels, &[r.lo, r.corrected, r.hi]))
+        .collect();
+    // Climatology of a row: the values of every other well at the same step.
+    let crps_climatology: Vec<f64> = (0..rows.len())
+        .map(|i| {
+            let mut v: Vec<f64> = (0..rows.len())
+                .filter(|&j| well[j] != well[i] && step[j] == step[i])
+                .map(|j| truth[j])
+                .collect();
+            if v.is_empty() {
+                return f64::NAN;
+            }
+            v.sort_by(f64::total_cmp);
+            let q: Vec<f64> = levels.iter().map(|&l| quantile_sorted(&v, l)).collect();
+            crps_from_quantiles(truth[i], &levels, &q)
+        })
+        .collect();
+    let input = SkillInput {
+        truth: &truth,
+        prediction: &mid,
+        crps_model: &crps_model,
+        crps_climatology: &crps_climatology,
+        well: &well,
+        weight: &weight,
+    };
+    let settings = SkillSettings::default();
+    let step_names: Vec<String> = step_names.to_vec();
+    (
+        assess(&input, &settings).ok(),
+        assess_by_step(&input, &step, &step_names, &settings).unwrap_or_default(),
+    )
 }

@@ -53,6 +53,23 @@ impl RunWarning {
     }
 }
 
+impl RunWarning {
+    /// No demonstrated skill of a target at one step (or all steps pooled), from the verdicts.
+    pub fn no_skill(target: &str, step: Option<&str>) -> Self {
+        Self {
+            stage: "skill",
+            target: Some(target.to_string()),
+            well: None,
+            steps: Some(step.map_or(Steps::All, |s| Steps::One(s.to_string()))),
+            message: NO_SKILL.to_string(),
+        }
+    }
+}
+
+/// What a `none` skill verdict means for the maps.
+pub const NO_SKILL: &str = "no demonstrated skill at wells held out: this map shows little more \
+                            than the wells' average";
+
 impl fmt::Display for RunWarning {
     /// `stage, target T, well W, step S: message` (the parts it has).
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {

@@ -4,6 +4,7 @@
 use std::path::{Path, PathBuf};
 use std::process::Command;
 use std::sync::OnceLock;
+use tidemark::pipeline::model::SavedModel;
 use tidemark::pipeline::outputs::Formats;
 use tidemark::pipeline::predict::{Tile, predict};
 use tidemark::pipeline::run::{RunOptions, run};
@@ -459,6 +460,56 @@ fn summary_says_how_typical_of_the_nodes_the_wells_are() {
     );
     assert_eq!(s["applied"], false, "the default calibrates for the wells");
     assert!(s["node_rows"].as_u64().unwrap() > 0);
+}
+
+#[test]
+fn summary_gives_skill_verdicts_per_target_and_named_step() {
+    let f = fixture();
+    let v: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(f.out.join("summary.json")).unwrap())
+            .unwrap();
+    let run: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(f.out.join("run.json")).unwrap()).unwrap();
+    let model = SavedModel::load(&f.out.join("model.json")).unwrap();
+    for t in v["targets"].as_array().unwrap() {
+        let name = t["name"].as_str().unwrap();
+        let skill = &t["skill"];
+        let verdict = skill["verdict"].as_str().unwrap();
+        assert!(
+            ["none", "weak", "useful"].contains(&verdict),
+            "{name}: {verdict}"
+        );
+        // The interval brackets the estimate (percentile bootstrap over wells).
+        let r2 = skill["r2"].as_f64().unwrap();
+        let iv = skill["r2_interval"].as_array().unwrap();
+        assert!(iv[0].as_f64().unwrap() <= r2 + 1e-12 && r2 <= iv[1].as_f64().unwrap() + 1e-12);
+        let steps: Vec<&str> = t["skill_by_step"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|s| s["step"].as_str().unwrap())
+            .collect();
+        assert_eq!(
+            steps,
+            model
+                .step_names
+                .iter()
+                .map(String::as_str)
+                .collect::<Vec<_>>()
+        );
+        // A `none` verdict is a warning of run.json naming the target.
+        let warned = run["warnings"].as_array().unwrap().iter().any(|w| {
+            let w = w.as_str().unwrap();
+            w.starts_with("skill") && w.contains(&format!("target {name}"))
+        });
+        let any_none = verdict == "none"
+            || t["skill_by_step"]
+                .as_array()
+                .unwrap()
+                .iter()
+                .any(|s| s["verdict"] == "none");
+        assert_eq!(warned, any_none, "{name}");
+    }
 }
 
 #[test]
