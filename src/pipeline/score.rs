@@ -591,24 +591,7 @@ pub fn score_with(
         })
         .collect();
     let (regions, masks) = read_regions(&troot, &grid)?;
-    let project_path = find_project(results, truth, project);
-    let (survey, forest_note) = match &project_path {
-        None => (
-            None,
-            Some(
-                "no project found (give --project, or keep project.toml beside truth/): the \
-                 uncalibrated forest was not evaluated"
-                    .to_string(),
-            ),
-        ),
-        Some(p) => match forest_survey(&model, &grid, p) {
-            Ok(s) => (Some(s), None),
-            Err(e) => (
-                None,
-                Some(format!("the uncalibrated forest was not evaluated: {e}")),
-            ),
-        },
-    };
+    let (survey, forest_note) = forest_project(&model, &grid, results, truth, project);
     let level = model.level;
     let mut targets = Vec::new();
     let mut errors = Vec::new();
@@ -841,4 +824,32 @@ fn read_step(
     };
     let inside: Vec<bool> = read(area)?.iter().map(|v| *v == 1.0).collect();
     Ok((data, inside))
+}
+
+/// The project the uncalibrated forest is evaluated on (`--project`, else `project.toml` in or
+/// beside the truth folder, else the run's), or why it is not evaluated.
+fn forest_project(
+    model: &SavedModel,
+    grid: &Grid,
+    results: &Path,
+    truth: &Path,
+    project: Option<&Path>,
+) -> (Option<crate::project::Survey>, Option<String>) {
+    match &find_project(results, truth, project) {
+        None => (
+            None,
+            Some(
+                "no project found (give --project, or keep project.toml beside truth/): the \
+                 uncalibrated forest was not evaluated"
+                    .to_string(),
+            ),
+        ),
+        Some(p) => match forest_survey(model, grid, p) {
+            Ok(s) => (Some(s), None),
+            Err(e) => (
+                None,
+                Some(format!("the uncalibrated forest was not evaluated: {e}")),
+            ),
+        },
+    }
 }

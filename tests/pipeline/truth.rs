@@ -440,7 +440,7 @@ fn the_forest_band_is_the_quantile_forest_of_meinshausen() {
             let x = sample::node_features(&survey, s);
             for k in (0..x.nrows()).step_by(97) {
                 let row = x.row(k).to_vec();
-                let w = cal.forest.quantile_weights(&row);
+                let w = cal.reference_forest().quantile_weights(&row);
                 let mut order: Vec<usize> = (0..y.len()).collect();
                 order.sort_by(|a, b| y[*a].total_cmp(&y[*b]));
                 let quantile = |q: f64| {
