@@ -5,7 +5,7 @@
 //!
 //! Also the guard that refuses to write over one of the project's inputs.
 
-use super::IoError;
+use super::error::IoError;
 use std::fs;
 use std::io::{BufWriter, Write};
 use std::path::{Path, PathBuf};

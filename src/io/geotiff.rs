@@ -15,7 +15,8 @@
 //! grid is refused before its pixels are decoded, which then happens within a buffer limit of the
 //! grid's size.
 
-use super::{IoError, atomic, check_len};
+use super::atomic;
+use super::error::{IoError, check_len};
 use crate::grid::Grid;
 use std::io::Cursor;
 use std::path::Path;

@@ -6,7 +6,7 @@
 //! Without it the whole file is one polyline. A closed outline repeats its first vertex at the end.
 //! Every error names the file and the line (the header is line 1).
 
-use super::IoError;
+use super::error::IoError;
 use std::path::Path;
 
 /// One polyline: its name (empty without a `line` column) and its vertices in order.

@@ -10,7 +10,8 @@
 //! [`MAX_FILE_BYTES`] bytes, a line at most [`MAX_LINE_BYTES`]. Line numbers are counted from the
 //! text itself (blank and `#` comment lines included), not taken from the CSV parser.
 
-use super::{IoError, excerpt, text};
+use super::error::{IoError, excerpt};
+use super::text;
 use std::collections::HashMap;
 use std::io::Read;
 use std::path::Path;

@@ -17,7 +17,8 @@
 //! line ends count as one, and a file larger than its grid can need ([`max_bytes`]) or a line over
 //! [`MAX_LINE_BYTES`] stops the read with an error.
 
-use super::{IoError, atomic, check_len, excerpt, text};
+use super::error::{IoError, check_len, excerpt};
+use super::{atomic, text};
 use crate::grid::Grid;
 use std::io::{BufRead, BufReader, Read};
 use std::path::Path;

@@ -29,9 +29,9 @@
 //!   dispersed. Gas is conserved, so the mean saturations (the truth) are the same as without
 //!   segregation; only the layering, and with it the seismic response, differs.
 
-use super::SynthSettings;
 use super::reservoir::Reservoir;
 use super::rock::Saturation;
+use super::settings::SynthSettings;
 use super::wells::{PlacedWell, WellKind};
 
 const SECONDS_PER_YEAR: f64 = 365.25 * 86400.0;

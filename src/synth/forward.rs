@@ -11,9 +11,9 @@
 //! reservoir (the overburden time shift removed, as in a warped monitor), so that amplitude windows
 //! compare like with like.
 
-use super::SynthModel;
 use super::dynamics::NodeState;
 use super::fluids::{self, FluidProps};
+use super::model::SynthModel;
 use super::rock::{self, Elastic, Saturation};
 use super::seismic::{self, Spike};
 

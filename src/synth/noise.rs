@@ -10,8 +10,8 @@
 //! SNR.
 
 use super::seismic::ricker;
+use super::settings::sub_seed;
 use super::spectral::gaussian_field;
-use super::sub_seed;
 use rand::SeedableRng;
 use rand::rngs::StdRng;
 use rayon::prelude::*;

@@ -14,7 +14,8 @@
 //! generator, and then only the files that `synth.json` lists are replaced or, when no longer
 //! produced, removed.
 
-use super::{SynthError, SynthField, SynthSettings, SynthWell, TARGET_BOUNDS};
+use super::settings::{SynthError, SynthSettings};
+use super::{SynthField, SynthWell, TARGET_BOUNDS};
 use crate::io::{atomic, geotiff};
 use serde::{Deserialize, Serialize};
 use std::fmt::Write as _;

@@ -15,9 +15,9 @@
 //! Both regions are written as masks beside the truth ([`Reservoir::masks`]): 1 where the region's
 //! weight is at least one half (within its radius), 0 elsewhere.
 
-use super::SynthSettings;
+pub use super::settings::WELL_FREE_MARGIN;
+use super::settings::{SynthSettings, sub_seed};
 use super::spectral::gaussian_field;
-use super::sub_seed;
 use rand::SeedableRng;
 use rand::rngs::StdRng;
 
@@ -66,9 +66,6 @@ impl Fault {
         (x - 2.0 * d * self.normal.0, y - 2.0 * d * self.normal.1)
     }
 }
-
-/// Wells keep out of a region's disc enlarged by this factor (the lobe and the culmination).
-pub const WELL_FREE_MARGIN: f64 = 1.35;
 
 /// Weight (0..1) of a round region with a smooth edge at normalised distance `d` (distance from
 /// the centre over the radius): one half on the rim.

@@ -9,7 +9,7 @@
 //! field outside the lobe, so they sample the reservoir as a random grid node would.
 
 use super::reservoir::Reservoir;
-use super::{SynthError, SynthSettings, sub_seed};
+use super::settings::{SynthError, SynthSettings, sub_seed};
 use rand::rngs::StdRng;
 use rand::{RngExt, SeedableRng};
 use serde::{Deserialize, Serialize};
