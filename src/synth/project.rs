@@ -231,7 +231,8 @@ fn manifest(field: &SynthField, settings: &SynthSettings, steps: &[StepRecord]) 
     }
     let _ = writeln!(t, "[infill]");
     let _ = writeln!(t, "threshold = \"swept\"");
-    let _ = writeln!(t, "volume_map = \"static/hcpv.tif\"\n");
+    let _ = writeln!(t, "volume_map = \"static/hcpv.tif\"");
+    let _ = writeln!(t, "volume_unit = \"m3\"\n");
     let _ = writeln!(t, "[report]");
     let angle: Vec<String> = field
         .attribute_names
