@@ -19,7 +19,6 @@
 //! [--wells 45] [--steps 4] [--snr 12] [--perturb 1e-6] [--json FILE] [--dir FOLDER]`.
 //! Fields and results are kept under FOLDER (default `target/calib_bench`), one folder per seed.
 
-use rand::{RngExt, SeedableRng, rngs::StdRng};
 use serde_json::{Value, json};
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
@@ -110,14 +109,7 @@ fn perturbed_run(
     let survey = run::load(manifest)?;
     let project = &survey.project;
     let (mut ts, _) = sample::at_wells(&survey);
-    let n_attr = project.attribute_names.len();
-    let mut rng = StdRng::seed_from_u64(seed);
-    for r in 0..ts.x.nrows() {
-        for c in 0..n_attr {
-            let u: f64 = rng.random_range(-1.0..=1.0);
-            ts.x[[r, c]] *= 1.0 + eps * u;
-        }
-    }
+    ts.perturb_attributes(eps, seed);
     let mut stages = Stages::new(true);
     let (model, _) = fit::fit_model(&survey, &ts, project.model.seed, &mut stages)?;
     if out.exists() {
