@@ -56,6 +56,24 @@ impl TrainingSet {
             .filter(|&r| !self.y[[r, t]].is_nan())
             .collect()
     }
+
+    /// Multiplies every attribute value (every feature column but the step, the last one) by
+    /// `1 + eps u`, `u` uniform in `[-1, 1]` drawn in row then column order from `seed`.
+    ///
+    /// This is the stability experiment of the calibration: a band that moves when the
+    /// training attributes move by rounding (`eps = 1e-6`) depends on near-ties, not on the
+    /// data. Missing values stay missing.
+    pub fn perturb_attributes(&mut self, eps: f64, seed: u64) {
+        use rand::{RngExt, SeedableRng};
+        let n_attr = self.x.ncols().saturating_sub(1);
+        let mut rng = rand::rngs::StdRng::seed_from_u64(seed);
+        for r in 0..self.x.nrows() {
+            for c in 0..n_attr {
+                let u: f64 = rng.random_range(-1.0..=1.0);
+                self.x[[r, c]] *= 1.0 + eps * u;
+            }
+        }
+    }
 }
 
 /// A well row left out of training, and why.
