@@ -10,11 +10,13 @@ use super::model::{SavedModel, convention_text};
 use super::stages::Timing;
 use super::studies::{Infill, Sensitivity, Summary, TargetSummary};
 use crate::calibrate::shift::ShiftSummary;
+use crate::calibrate::stages::spread::Spread;
 use crate::calibrate::{OofRow, TargetDiagnostics};
 use crate::metrics::quantile_sorted;
 use crate::project::Project;
 use crate::report::input as ri;
 use crate::report::{PictureRef, ReportInput};
+use crate::skill::Skill;
 
 /// Everything [`build_report`] needs.
 pub struct ReportParts<'a> {
@@ -52,6 +54,11 @@ pub fn build_report(p: ReportParts) -> ReportInput {
         maps: p.maps,
         infill: p.infill,
         truth: None,
+        skill_rule: crate::skill::rule_text(&super::studies::skill_settings()),
+        band_labels: {
+            let (lo, hi) = model.band_labels();
+            [lo.to_uppercase(), hi.to_uppercase()]
+        },
     }
 }
 
@@ -228,6 +235,7 @@ fn target_report(t: &TargetSummary, studies: &Sensitivity) -> ri::TargetReport {
             rows: Some(d.n_rows),
             learner: Some(d.learner.chosen.clone()),
             end_correction_kept: Some(d.end_correction.kept),
+            end_correction_reason: d.end_correction.reason.clone(),
             r2: opt(m.r2),
             rmse: opt(m.rmse),
             bias: opt(m.bias),
@@ -255,6 +263,49 @@ fn target_report(t: &TargetSummary, studies: &Sensitivity) -> ri::TargetReport {
         learning_curve: learning_curve(&t.name, studies),
         importance: Some(importance(t)),
         ablation: ablation(&t.name, studies),
+        skill: t.skill.as_ref().map(|s| skill_verdict(None, s)),
+        skill_by_step: t
+            .skill_by_step
+            .iter()
+            .map(|s| skill_verdict(Some(&s.step), &s.skill))
+            .collect(),
+        spread: d.spread.as_ref().map(spread_profile),
+        zero_change: d.zero.as_ref().map(|z| ri::ZeroDecision {
+            enabled: z.enabled,
+            applied: d.hurdle.is_some(),
+            reason: z.reason.clone(),
+            tolerance: opt(z.tolerance),
+            zero_share: opt(z.zero_share),
+        }),
+    }
+}
+
+/// A skill and its verdict as the page shows them, with the meaning of the verdict.
+fn skill_verdict(step: Option<&str>, s: &Skill) -> ri::SkillVerdict {
+    let settings = super::studies::skill_settings();
+    ri::SkillVerdict {
+        step: step.map(str::to_string),
+        r2: opt(s.r2),
+        r2_interval: s.r2_interval.map(opt),
+        crps_skill: opt(s.crps_skill),
+        crps_skill_interval: s.crps_skill_interval.map(opt),
+        level: Some(settings.level),
+        verdict: s.verdict.as_str().to_string(),
+        meaning: s.verdict.meaning(&settings),
+    }
+}
+
+/// The spread profile and the rule beyond the spanned ground, as the page shows them.
+fn spread_profile(s: &Spread) -> ri::SpreadProfile {
+    let (p, b) = (&s.profile, &s.beyond);
+    ri::SpreadProfile {
+        di: p.di.clone(),
+        scale: p.scale.clone(),
+        di_edge: opt(b.di_max).or(opt(p.di_max)),
+        distance_edge: opt(b.distance_max),
+        envelope: [opt(b.envelope_lo), opt(b.envelope_hi)],
+        spearman: opt(p.spearman),
+        coverage: [opt(p.coverage_plain), opt(p.coverage_scaled)],
     }
 }
 

@@ -23,6 +23,8 @@ use super::input::{
     CrossplotData, DecileCoverage, InfillSection, LearningCurve, MapEntry, PAGE_FILE, PictureRef,
     ReportInput, TargetReport, TruthSection,
 };
+use super::markup::{NOT_COMPUTED, drawn, figure_png, format_sig, unit_suffix};
+pub use super::markup::{escape, num, pct};
 use super::picture::{
     BarPicture, BarSeries, CrossPlot, Curve, LinePicture, PointSeries, Reference, bars_png,
     crossplot_png, line_png,
@@ -37,8 +39,6 @@ pub const DEFAULT_CAUTIONS: [&str; 3] = [
      inform a drilling decision or any public disclosure.",
     "Reporting and disclosure follow the rules and standards that apply where the field lies.",
 ];
-
-const NOT_COMPUTED: &str = "<span class=\"nc\">not computed</span>";
 
 const STYLE: &str = r#"
 :root { --ink: #1d2327; --muted: #5b6770; --rule: #d5dade; --band: #f4f6f7; --accent: #0072b2; }
@@ -80,111 +80,6 @@ footer { margin-top: 30px; padding: 12px 32px; border-top: 1px solid var(--rule)
   figure, table { break-inside: avoid; }
 }
 "#;
-
-/// Escapes text for HTML content and attribute values.
-pub fn escape(text: &str) -> String {
-    let mut out = String::with_capacity(text.len());
-    for c in text.chars() {
-        match c {
-            '&' => out.push_str("&amp;"),
-            '<' => out.push_str("&lt;"),
-            '>' => out.push_str("&gt;"),
-            '"' => out.push_str("&quot;"),
-            '\'' => out.push_str("&#39;"),
-            _ => out.push(c),
-        }
-    }
-    out
-}
-
-/// Formats a number with about three significant digits; `None` and non-finite values read
-/// "not computed".
-pub fn num(v: Option<f64>) -> String {
-    match v {
-        Some(x) if x.is_finite() => format_sig(x),
-        _ => NOT_COMPUTED.to_string(),
-    }
-}
-
-fn format_sig(x: f64) -> String {
-    if x == 0.0 {
-        return "0".to_string();
-    }
-    let mag = x.abs().log10().floor();
-    let decimals = (2.0 - mag).clamp(0.0, 6.0) as usize;
-    let s = format!("{x:.decimals$}");
-    if s.trim_start_matches('-')
-        .chars()
-        .all(|c| c == '0' || c == '.')
-    {
-        format!("{x:.2e}")
-    } else {
-        s
-    }
-}
-
-/// Formats a fraction as a percentage with one decimal.
-pub fn pct(v: Option<f64>) -> String {
-    match v {
-        Some(x) if x.is_finite() => format!("{:.1}&nbsp;%", x * 100.0),
-        _ => NOT_COMPUTED.to_string(),
-    }
-}
-
-fn unit_suffix(unit: &str) -> String {
-    if unit.is_empty() {
-        String::new()
-    } else {
-        format!(" ({})", escape(unit))
-    }
-}
-
-fn data_uri(png: &[u8]) -> String {
-    format!(
-        "data:image/png;base64,{}",
-        base64::engine::general_purpose::STANDARD.encode(png)
-    )
-}
-
-/// Checks that `bytes` are a PNG that decodes to a non-empty image.
-fn check_png(bytes: &[u8]) -> Result<(u32, u32), String> {
-    let decoder = png::Decoder::new(std::io::Cursor::new(bytes));
-    let reader = decoder
-        .read_info()
-        .map_err(|e| format!("not a readable PNG ({e})"))?;
-    let info = reader.info();
-    if info.width == 0 || info.height == 0 {
-        return Err("empty PNG".to_string());
-    }
-    Ok((info.width, info.height))
-}
-
-/// A figure from PNG bytes, or a note saying why there is none.
-fn figure_png(png: Result<Vec<u8>, String>, alt: &str, caption: &str) -> String {
-    match png.and_then(|b| check_png(&b).map(|_| b)) {
-        Ok(bytes) => {
-            let mut s = format!(
-                "<figure><img src=\"{}\" alt=\"{}\">",
-                data_uri(&bytes),
-                escape(alt)
-            );
-            if !caption.is_empty() {
-                let _ = write!(s, "<figcaption>{}</figcaption>", escape(caption));
-            }
-            s.push_str("</figure>");
-            s
-        }
-        Err(why) => format!(
-            "<figure><p class=\"nc\">{}: picture not available ({}).</p></figure>",
-            escape(alt),
-            escape(&why)
-        ),
-    }
-}
-
-fn drawn(r: Result<Vec<u8>, ReportError>) -> Result<Vec<u8>, String> {
-    r.map_err(|e| e.to_string())
-}
 
 /// Reads a picture reference into PNG bytes.
 fn load_picture(p: &PictureRef, results_dir: &Path) -> Result<Vec<u8>, String> {

@@ -1486,6 +1486,13 @@ pub enum Reference {
         /// Legend name.
         label: String,
     },
+    /// A vertical line at `x` (e.g. the edge of the ground cross-validation spans).
+    Vertical {
+        /// Position of the line.
+        x: f64,
+        /// Legend name.
+        label: String,
+    },
 }
 
 /// A plot of lines against a shared x axis.
@@ -1512,7 +1519,7 @@ pub struct LinePicture {
 pub fn line_png(p: &LinePicture, width: u32, height: u32) -> Result<Vec<u8>, ReportError> {
     check_size(width, height)?;
     ensure_registered()?;
-    let xs: Vec<f64> = p
+    let mut xs: Vec<f64> = p
         .series
         .iter()
         .flat_map(|s| s.points.iter().map(|q| q.0))
@@ -1528,8 +1535,10 @@ pub fn line_png(p: &LinePicture, width: u32, height: u32) -> Result<Vec<u8>, Rep
         }
     }
     for r in &p.references {
-        if let Reference::Horizontal { y, .. } = r {
-            ys.push(*y);
+        match r {
+            Reference::Horizontal { y, .. } => ys.push(*y),
+            Reference::Vertical { x, .. } => xs.push(*x),
+            Reference::Diagonal { .. } => {}
         }
     }
     let (x0, x1) = p
@@ -1581,6 +1590,7 @@ pub fn line_png(p: &LinePicture, width: u32, height: u32) -> Result<Vec<u8>, Rep
                     (vec![(a, a), (b, b)], label)
                 }
                 Reference::Horizontal { y, label } => (vec![(x0, *y), (x1, *y)], label),
+                Reference::Vertical { x, label } => (vec![(*x, y0), (*x, y1)], label),
             };
             chart
                 .draw_series(DashedLineSeries::new(pts, 6, 4, grey.stroke_width(1)))
