@@ -150,10 +150,9 @@ impl Verdict {
     pub fn meaning(&self, s: &SkillSettings) -> String {
         let pct = (s.level * 100.0).round();
         match self {
-            Verdict::None => format!(
-                "no demonstrated skill at wells held out: this map shows little more than the \
-                 wells' average (the {pct:.0} % interval of R2 or of CRPS skill reaches 0)"
-            ),
+            Verdict::None => {
+                format!("{NO_SKILL} (the {pct:.0} % interval of R2 or of CRPS skill reaches 0)")
+            }
             Verdict::Weak => format!(
                 "some skill beyond the wells' average (both {pct:.0} % intervals lie above 0), \
                  but not clearly useful: read the map's patterns, not its values"
@@ -166,6 +165,11 @@ impl Verdict {
         }
     }
 }
+
+/// What a `none` verdict means for the maps of that target and step: the warning of `run.json`
+/// and the caption of every picture they have.
+pub const NO_SKILL: &str =
+    "no demonstrated skill at wells held out: this map shows little more than the wells' average";
 
 /// The verdict rule in plain words, with the bars of `s`.
 pub fn rule_text(s: &SkillSettings) -> String {

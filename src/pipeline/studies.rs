@@ -282,13 +282,13 @@ pub fn print_table(summary: &Summary) {
         summary.wells, summary.rows
     );
     eprintln!(
-        "  {:<8} {:>7} {:>9} {:>9} {:>9} {:>9} {:>9} {:>9}  learner",
-        "target", "R2", "RMSE", "bias", "coverage", "cov.low", "cov.high", "width"
+        "  {:<8} {:>7} {:>9} {:>9} {:>9} {:>9} {:>9} {:>9}  {:<8} skill",
+        "target", "R2", "RMSE", "bias", "coverage", "cov.low", "cov.high", "width", "learner"
     );
     for t in &summary.targets {
         let m = &t.diagnostics.metrics;
         eprintln!(
-            "  {:<8} {:>7.3} {:>9.4} {:>9.4} {:>9.3} {:>9.3} {:>9.3} {:>9.4}  {}",
+            "  {:<8} {:>7.3} {:>9.4} {:>9.4} {:>9.3} {:>9.3} {:>9.3} {:>9.4}  {:<8} {}",
             t.name,
             m.r2,
             m.rmse,
@@ -297,10 +297,30 @@ pub fn print_table(summary: &Summary) {
             m.coverage_bottom_decile,
             m.coverage_top_decile,
             m.mean_width,
-            t.diagnostics.learner.chosen
+            t.diagnostics.learner.chosen,
+            skill_words(t)
         );
     }
     eprintln!();
+}
+
+/// A target's verdicts in a few words: the pooled verdict, then the steps whose own verdict
+/// differs from it (e.g. `weak (none at m1)`).
+pub fn skill_words(t: &TargetSummary) -> String {
+    let Some(pooled) = &t.skill else {
+        return "not computed".to_string();
+    };
+    let others: Vec<String> = t
+        .skill_by_step
+        .iter()
+        .filter(|s| s.skill.verdict != pooled.verdict)
+        .map(|s| format!("{} at {}", s.skill.verdict.as_str(), s.step))
+        .collect();
+    if others.is_empty() {
+        pooled.verdict.as_str().to_string()
+    } else {
+        format!("{} ({})", pooled.verdict.as_str(), others.join(", "))
+    }
 }
 
 /// One point of the learning curve: a number of wells and the skill over repeated subsets.

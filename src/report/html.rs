@@ -3,11 +3,15 @@
 //! [`render_html`] turns a [`ReportInput`] into a single page that travels by e-mail: every picture
 //! is a `data:image/png;base64` URI (map files are read from the results folder and checked to be
 //! PNG; the diagnostic plots are drawn here from the numbers), the style sheet is inline, there are
-//! no scripts and no network references. Sections: 1 summary and cautions, 2 maps per target and
-//! step (and applicability, infill targets), 3 cross-plots before and after the end-bias
-//! correction, 4 calibration (coverage by decile of the truth, reliability per threshold, PIT
-//! histogram), 5 learning curve, 6 importance by family and the ablation, 7 errors against truth.
-//! Anything missing is reported as "not computed" rather than failing.
+//! no scripts and no network references. Sections: 1 summary (opening with the skill verdicts of
+//! [`super::verdicts`]; advice where the band misses the extremes) and cautions, 2 maps per target
+//! and step (and applicability, infill targets; pictures of a target and step without
+//! demonstrated skill say so in their caption), 3 cross-plots before and after the end-bias
+//! correction (one series when it was not kept, with the reason), 4 calibration (coverage by
+//! decile of the truth, reliability per threshold, PIT histogram, the band away from the wells and
+//! the "no change" decision of [`super::spread`]), 5 learning curve, 6 importance by family and
+//! the ablation, 7 errors against truth. Anything missing is reported as "not computed" rather
+//! than failing.
 //!
 //! The PIT histogram follows Dawid (1984, JRSS A 147) and Gneiting, Balabdaoui & Raftery (2007,
 //! JRSS B 69): a calibrated forecast gives a flat histogram. The reliability diagram plots the
@@ -157,6 +161,7 @@ pub fn render_html(input: &ReportInput, results_dir: &Path) -> Result<String, Re
 
 fn summary_section(h: &mut String, input: &ReportInput) {
     h.push_str("<section id=\"summary\"><h2>1. Summary</h2>\n");
+    super::verdicts::verdict_block(h, input);
     h.push_str("<div class=\"cautions\"><h3>Cautions</h3><ul>");
     let cautions: Vec<String> = if input.cautions.is_empty() {
         DEFAULT_CAUTIONS.iter().map(|s| s.to_string()).collect()
@@ -221,12 +226,17 @@ fn summary_section(h: &mut String, input: &ReportInput) {
                 num(s.bias),
                 pct(s.coverage),
                 pct(s.nominal_coverage),
-                pct(s.coverage_bottom_decile),
-                pct(s.coverage_top_decile),
+                super::verdicts::decile_cell(s.coverage_bottom_decile),
+                super::verdicts::decile_cell(s.coverage_top_decile),
                 num(s.mean_width),
             );
         }
         h.push_str("</table>\n");
+        for t in &input.targets {
+            for note in super::verdicts::extreme_notes(t, &input.band_labels) {
+                let _ = writeln!(h, "<p class=\"warn\">* {}</p>", escape(&note));
+            }
+        }
         for t in &input.targets {
             for w in &t.summary.warnings {
                 let _ = writeln!(
@@ -301,7 +311,7 @@ fn ordered(declared: &[String], found: impl Iterator<Item = String>) -> Vec<Stri
     out
 }
 
-fn map_figures(h: &mut String, entries: &[&MapEntry], results_dir: &Path) {
+fn map_figures(h: &mut String, input: &ReportInput, entries: &[&MapEntry], results_dir: &Path) {
     h.push_str("<div class=\"figs\">");
     for e in entries {
         let alt = match &e.target {
@@ -311,7 +321,7 @@ fn map_figures(h: &mut String, entries: &[&MapEntry], results_dir: &Path) {
         h.push_str(&figure_png(
             load_picture(&e.picture, results_dir),
             &alt,
-            &e.caption,
+            &super::verdicts::picture_caption(input, e),
         ));
     }
     h.push_str("</div>\n");
@@ -353,7 +363,7 @@ fn maps_section(h: &mut String, input: &ReportInput, results_dir: &Path) {
                 if entries.is_empty() {
                     h.push_str("<p class=\"nc\">No maps for this step: not computed.</p>\n");
                 } else {
-                    map_figures(h, &entries, results_dir);
+                    map_figures(h, input, &entries, results_dir);
                 }
             }
         }
@@ -372,7 +382,7 @@ fn maps_section(h: &mut String, input: &ReportInput, results_dir: &Path) {
                     step_wide.iter().copied().filter(|m| &m.step == s).collect();
                 if !entries.is_empty() {
                     let _ = writeln!(h, "<h4>step {}</h4>", escape(s));
-                    map_figures(h, &entries, results_dir);
+                    map_figures(h, input, &entries, results_dir);
                 }
             }
         }
@@ -463,26 +473,11 @@ fn crossplot_block(h: &mut String, t: &TargetReport, c: &CrossplotData) {
         );
         return;
     }
-    let pair =
-        |p: &[f64]| -> Vec<(f64, f64)> { c.truth.iter().copied().zip(p.iter().copied()).collect() };
     // When the correction was not kept the corrected values are the raw ones: one series, and
     // a sentence saying why.
     let not_kept = t.summary.end_correction_kept == Some(false);
     let show_corrected = !c.corrected.is_empty() && !not_kept;
-    let mut series = vec![PointSeries {
-        name: if not_kept {
-            "out-of-fold P50 (no end-bias correction)".to_string()
-        } else {
-            "out-of-fold P50, raw".to_string()
-        },
-        points: pair(&c.raw),
-    }];
-    if show_corrected {
-        series.push(PointSeries {
-            name: "after end-bias correction".to_string(),
-            points: pair(&c.corrected),
-        });
-    }
+    let series = crossplot_series(t, c);
     let u = if t.unit.is_empty() {
         String::new()
     } else {
@@ -504,12 +499,7 @@ fn crossplot_block(h: &mut String, t: &TargetReport, c: &CrossplotData) {
     ));
     h.push_str("</div>\n");
     if not_kept {
-        let _ = writeln!(
-            h,
-            "<p class=\"note\">The end-bias correction was not kept for {}: on held-out wells it \
-             did not lower the mean squared error, so the maps use the raw prediction.</p>",
-            escape(&t.name)
-        );
+        let _ = writeln!(h, "<p class=\"note\">{}</p>", escape(&not_kept_sentence(t)));
     }
     let uu = unit_suffix(&t.unit);
     let _ = writeln!(
@@ -535,6 +525,54 @@ fn crossplot_block(h: &mut String, t: &TargetReport, c: &CrossplotData) {
         "</table><p class=\"note\">A slope below 1 is the regression to the mean: high changes \
          predicted too low and low ones too high.</p>\n",
     );
+}
+
+/// Why the cross-plot of a target whose end-bias correction was not kept draws one series, in
+/// one sentence, from the correction's diagnostics.
+pub fn not_kept_sentence(t: &TargetReport) -> String {
+    let why = t
+        .summary
+        .end_correction_reason
+        .trim()
+        .trim_start_matches("not kept")
+        .trim_start_matches([':', ' '])
+        .trim_end_matches('.');
+    if why.is_empty() {
+        format!(
+            "The end-bias correction was not kept for {}, so the maps use the uncorrected \
+             prediction and one series is drawn.",
+            t.name
+        )
+    } else {
+        format!(
+            "The end-bias correction was not kept for {}, so the maps use the uncorrected \
+             prediction and one series is drawn: {why}.",
+            t.name
+        )
+    }
+}
+
+/// The series of a target's cross-plot: the out-of-fold P50, and the corrected one only when
+/// the correction was kept (otherwise the two are the same points).
+pub fn crossplot_series(t: &TargetReport, c: &CrossplotData) -> Vec<PointSeries> {
+    let pair =
+        |p: &[f64]| -> Vec<(f64, f64)> { c.truth.iter().copied().zip(p.iter().copied()).collect() };
+    let not_kept = t.summary.end_correction_kept == Some(false);
+    let mut series = vec![PointSeries {
+        name: if not_kept {
+            "out-of-fold P50 (no end-bias correction)".to_string()
+        } else {
+            "out-of-fold P50, raw".to_string()
+        },
+        points: pair(&c.raw),
+    }];
+    if !c.corrected.is_empty() && !not_kept {
+        series.push(PointSeries {
+            name: "after end-bias correction".to_string(),
+            points: pair(&c.corrected),
+        });
+    }
+    series
 }
 
 fn crossplot_section(h: &mut String, input: &ReportInput) {
@@ -621,6 +659,9 @@ fn calibration_section(h: &mut String, input: &ReportInput) {
         match &t.coverage_by_decile {
             Some(d) if !d.rows.is_empty() => decile_block(h, t, d),
             _ => h.push_str("<p class=\"nc\">Coverage by decile: not computed.</p>\n"),
+        }
+        for note in super::verdicts::extreme_notes(t, &input.band_labels) {
+            let _ = writeln!(h, "<p class=\"warn\">{}</p>", escape(&note));
         }
 
         h.push_str("<h4>Reliability of the exceedance probabilities</h4>\n");
@@ -719,6 +760,8 @@ fn calibration_section(h: &mut String, input: &ReportInput) {
             }
             _ => h.push_str("<p class=\"nc\">PIT histogram: not computed.</p>\n"),
         }
+        super::spread::spread_block(h, t);
+        super::spread::zero_block(h, t);
     }
     h.push_str("</section>\n");
 }
@@ -1133,7 +1176,7 @@ fn truth_block(h: &mut String, tr: &TruthSection, input: &ReportInput, results_d
                 escape(t)
             }
         );
-        map_figures(h, &entries, results_dir);
+        map_figures(h, input, &entries, results_dir);
     }
 }
 

@@ -20,6 +20,8 @@ pub mod input;
 pub mod labels;
 pub mod markup;
 pub mod picture;
+pub mod spread;
+pub mod verdicts;
 
 pub use colormap::{Colormap, ColourScale};
 pub use html::{render_html, write_html};
