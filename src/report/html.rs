@@ -760,7 +760,7 @@ fn calibration_section(h: &mut String, input: &ReportInput) {
             }
             _ => h.push_str("<p class=\"nc\">PIT histogram: not computed.</p>\n"),
         }
-        super::spread::spread_block(h, t);
+        super::spread::spread_block(h, t, &input.xy_unit);
         super::spread::zero_block(h, t);
     }
     h.push_str("</section>\n");

@@ -42,7 +42,7 @@ pub fn chart_curves(p: &SpreadProfile) -> (Vec<(f64, f64)>, Vec<(f64, f64)>, f64
 }
 
 /// The spread chart of one target with one sentence on how to read it, and a small table.
-pub fn spread_block(h: &mut String, t: &TargetReport) {
+pub fn spread_block(h: &mut String, t: &TargetReport, xy_unit: &str) {
     h.push_str("<h4>The band away from the wells</h4>\n");
     let Some(p) = &t.spread else {
         h.push_str("<p class=\"nc\">Spread profile: not computed.</p>\n");
@@ -55,10 +55,7 @@ pub fn spread_block(h: &mut String, t: &TargetReport) {
         band: None,
         markers: false,
     }];
-    let mut references = vec![Reference::Horizontal {
-        y: 1.0,
-        label: "band as calibrated at held-out wells".to_string(),
-    }];
+    let mut references = Vec::new();
     if let Some(e) = p.di_edge.filter(|e| e.is_finite() && *e > 0.0) {
         series.push(Curve {
             name: "pull towards the wells' range (0 to 1)".to_string(),
@@ -68,7 +65,7 @@ pub fn spread_block(h: &mut String, t: &TargetReport) {
         });
         references.push(Reference::Vertical {
             x: e,
-            label: "edge: largest at held-out wells".to_string(),
+            label: "edge of the ground held-out wells span".to_string(),
         });
     }
     let plot = LinePicture {
@@ -92,9 +89,14 @@ pub fn spread_block(h: &mut String, t: &TargetReport) {
         .filter(|d| d.is_finite())
         .map_or_else(String::new, |d| {
             format!(
-                " The same pull applies where a node lies farther from the nearest well than {} \
+                " The same pull applies where a node lies farther from the nearest well than {}{} \
                  (the farthest any held-out well was from its training wells), in proportion.",
-                super::markup::format_sig(d)
+                super::markup::format_sig(d),
+                if xy_unit.is_empty() {
+                    String::new()
+                } else {
+                    format!(" {xy_unit}")
+                }
             )
         });
     let range = match p.envelope {
@@ -108,7 +110,8 @@ pub fn spread_block(h: &mut String, t: &TargetReport) {
     let _ = writeln!(
         h,
         "<p class=\"note\">How to read it: at a node whose dissimilarity to the wells is x, the \
-         band is the band calibrated at held-out wells times the profile's scale at x; beyond the \
+         band is the band calibrated at held-out wells times the profile's scale at x (1: as \
+         calibrated); beyond the \
          edge, the largest dissimilarity any held-out well had, the band is also pulled towards \
          the range of all wells' values{}, fully at twice the edge.{}</p>",
         escape(&range),
@@ -158,8 +161,9 @@ pub fn zero_sentence(target: &str, z: &ZeroDecision) -> String {
         }
         (false, false) => "modelled as a continuous change",
     };
+    // The automatic rule's reason gives the share itself; a manifest setting does not.
     let share = match (z.zero_share, z.tolerance) {
-        (Some(s), Some(tol)) => format!(
+        (Some(s), Some(tol)) if z.enabled && !z.reason.contains("of well values") => format!(
             " {:.0} % of well values lie within {} of zero.",
             s * 100.0,
             super::markup::format_sig(tol)
