@@ -11,9 +11,12 @@ use super::input::{SpreadProfile, TargetReport, ZeroDecision};
 use super::markup::{drawn, escape, figure_png, num, pct};
 use super::picture::{Curve, LinePicture, Reference, line_png};
 
+/// Points `(x, y)` of one curve.
+pub type Points = Vec<(f64, f64)>;
+
 /// The points of the chart: the profile (flat outside its knots) and the weight of the wells'
-/// range in the band (0 up to the edge, 1 from twice the edge), over `[0, x_max]`.
-pub fn chart_curves(p: &SpreadProfile) -> (Vec<(f64, f64)>, Vec<(f64, f64)>, f64) {
+/// range in the band (0 up to the edge, 1 from twice the edge), over `[0, x_max]`; and `x_max`.
+pub fn chart_curves(p: &SpreadProfile) -> (Points, Points, f64) {
     let knots: Vec<(f64, f64)> =
         p.di.iter()
             .zip(&p.scale)
