@@ -309,20 +309,34 @@ fn spread_profile(s: &Spread) -> ri::SpreadProfile {
     }
 }
 
-/// Band coverage by decile of the truth at the wells (out-of-fold rows).
+/// Band coverage by decile of the truth at the wells (out-of-fold rows). The deciles follow the
+/// summary's metrics (`docs/summary-schema.md`): the bottom one holds every row with truth at or
+/// below the 10th percentile, the top one every row at or above the 90th, so an atom of equal
+/// values at a cut falls wholly in the outer decile and the table's first and last rows give the
+/// summary's decile coverage; deciles 2-9 hold `q((k-1)/10) < truth <= q(k/10)` (below the 90th
+/// percentile for the 9th).
 fn decile_coverage(d: &TargetDiagnostics) -> ri::DecileCoverage {
     let mut truth: Vec<f64> = d.rows.iter().map(|r| r.truth).collect();
     truth.sort_by(f64::total_cmp);
     let cuts: Vec<f64> = (0..=10)
         .map(|k| quantile_sorted(&truth, k as f64 / 10.0))
         .collect();
+    let decile_of = |y: f64| -> usize {
+        if y <= cuts[1] {
+            0
+        } else if y >= cuts[9] {
+            9
+        } else {
+            (1..9).find(|&k| y <= cuts[k + 1]).unwrap_or(8)
+        }
+    };
     let rows = (0..10)
         .map(|k| {
             let (a, b) = (cuts[k], cuts[k + 1]);
             let inn: Vec<&OofRow> = d
                 .rows
                 .iter()
-                .filter(|r| r.truth >= a && (r.truth < b || (k == 9 && r.truth <= b)))
+                .filter(|r| r.truth.is_finite() && decile_of(r.truth) == k)
                 .collect();
             let n = inn.len();
             let cov = inn

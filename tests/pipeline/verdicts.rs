@@ -300,3 +300,36 @@ fn a_quiet_run_prints_the_none_verdicts_first() {
     );
     assert!(!lines[nones..].iter().any(|l| l.contains(NO_SKILL)));
 }
+
+#[test]
+fn nothing_on_the_page_contradicts_the_figures_beneath() {
+    let f = fixture();
+    let input = ReportInput::load(&f.out.join("report-data.json")).unwrap();
+    let close = |a: Option<f64>, b: Option<f64>, what: &str| match (a, b) {
+        (Some(a), Some(b)) => assert!((a - b).abs() <= 1e-9 * (1.0 + b.abs()), "{what}: {a} {b}"),
+        _ => assert_eq!(a.is_some(), b.is_some(), "{what}: {a:?} {b:?}"),
+    };
+    for t in &input.targets {
+        let s = &t.summary;
+        // The verdict's R2 is the summary table's R2 (both from the out-of-fold rows).
+        close(
+            t.skill.as_ref().and_then(|v| v.r2),
+            s.r2,
+            &format!("{} R2", t.name),
+        );
+        // The decile table's outer rows are the summary's decile coverage.
+        let d = t.coverage_by_decile.as_ref().unwrap();
+        close(
+            d.rows[0].coverage,
+            s.coverage_bottom_decile,
+            &format!("{} bottom decile", t.name),
+        );
+        close(
+            d.rows[9].coverage,
+            s.coverage_top_decile,
+            &format!("{} top decile", t.name),
+        );
+        let rows: usize = d.rows.iter().map(|r| r.count).sum();
+        assert_eq!(Some(rows), s.rows, "{}: every row in one decile", t.name);
+    }
+}
