@@ -616,6 +616,7 @@ fn decile_block(h: &mut String, t: &TargetReport, d: &DecileCoverage) {
         references: refs,
         x_range: Some((0.5, 10.5)),
         y_range: Some((0.0, 1.05)),
+        legend_top_left: false,
     };
     h.push_str("<div class=\"figs\">");
     h.push_str(&figure_png(
@@ -695,6 +696,7 @@ fn calibration_section(h: &mut String, input: &ReportInput) {
                 }],
                 x_range: Some((0.0, 1.0)),
                 y_range: Some((0.0, 1.0)),
+                legend_top_left: false,
             };
             let cap = match r.brier {
                 Some(b) if b.is_finite() => format!("Brier score {}", format_sig(b)),
@@ -806,6 +808,7 @@ fn learning_block(h: &mut String, t: &TargetReport, lc: &LearningCurve) {
         references: refs,
         x_range: None,
         y_range: None,
+        legend_top_left: false,
     };
     h.push_str("<div class=\"figs\">");
     h.push_str(&figure_png(

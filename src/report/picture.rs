@@ -1512,6 +1512,8 @@ pub struct LinePicture {
     pub x_range: Option<(f64, f64)>,
     /// Fixed y range; `None` spans the data and the reference lines.
     pub y_range: Option<(f64, f64)>,
+    /// Put the legend in the upper left corner instead of the lower right.
+    pub legend_top_left: bool,
 }
 
 /// Draws a line plot (learning curve, reliability diagram, coverage by decile) and returns the PNG
@@ -1647,7 +1649,11 @@ pub fn line_png(p: &LinePicture, width: u32, height: u32) -> Result<Vec<u8>, Rep
         }
         chart
             .configure_series_labels()
-            .position(SeriesLabelPosition::LowerRight)
+            .position(if p.legend_top_left {
+                SeriesLabelPosition::UpperLeft
+            } else {
+                SeriesLabelPosition::LowerRight
+            })
             .background_style(WHITE.mix(0.85))
             .border_style(RGBColor(0x99, 0x99, 0x99))
             .label_font((FAMILY, 12))

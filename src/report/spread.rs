@@ -52,6 +52,11 @@ pub fn spread_block(h: &mut String, t: &TargetReport, xy_unit: &str) {
         return;
     };
     let (profile, weight, x_max) = chart_curves(p);
+    let top = profile
+        .iter()
+        .map(|q| q.1)
+        .filter(|v| v.is_finite())
+        .fold(1.0_f64, f64::max);
     let mut series = vec![Curve {
         name: "band scale (monotone profile)".to_string(),
         points: profile,
@@ -78,7 +83,9 @@ pub fn spread_block(h: &mut String, t: &TargetReport, xy_unit: &str) {
         series,
         references,
         x_range: Some((0.0, x_max)),
-        y_range: None,
+        // Room above the curves for the legend.
+        y_range: Some((0.0, 1.6 * top)),
+        legend_top_left: true,
     };
     h.push_str("<div class=\"figs\">");
     h.push_str(&figure_png(
