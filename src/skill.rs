@@ -154,8 +154,8 @@ impl Verdict {
                 format!("{NO_SKILL} (the {pct:.0} % interval of R2 or of CRPS skill reaches 0)")
             }
             Verdict::Weak => format!(
-                "some skill beyond the wells' average (both {pct:.0} % intervals lie above 0), \
-                 but not clearly useful: read the map's patterns, not its values"
+                "skill beyond the wells' average is shown (both {pct:.0} % intervals lie above \
+                 0) but stays below the bars of useful: lean on the band more than on the P50"
             ),
             Verdict::Useful => format!(
                 "useful: even the low ends of the {pct:.0} % intervals clear R2 {} and CRPS skill \
