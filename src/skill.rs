@@ -144,6 +144,45 @@ impl Verdict {
             Verdict::Useful => "useful",
         }
     }
+
+    /// What the verdict means for the maps, in plain words, with the bars of `s` (the rule of
+    /// [`verdict`]).
+    pub fn meaning(&self, s: &SkillSettings) -> String {
+        let pct = (s.level * 100.0).round();
+        match self {
+            Verdict::None => {
+                format!("{NO_SKILL} (the {pct:.0} % interval of R2 or of CRPS skill reaches 0)")
+            }
+            Verdict::Weak => format!(
+                "skill beyond the wells' average is shown (both {pct:.0} % intervals lie above \
+                 0) but stays below the bars of useful: lean on the band more than on the P50"
+            ),
+            Verdict::Useful => format!(
+                "useful: even the low ends of the {pct:.0} % intervals clear R2 {} and CRPS skill \
+                 {:.3}",
+                s.useful_r2, s.useful_crps_skill
+            ),
+        }
+    }
+}
+
+/// What a `none` verdict means for the maps of that target and step: the warning of `run.json`
+/// and the caption of every picture they have.
+pub const NO_SKILL: &str =
+    "no demonstrated skill at wells held out: this map shows little more than the wells' average";
+
+/// The verdict rule in plain words, with the bars of `s`.
+pub fn rule_text(s: &SkillSettings) -> String {
+    let pct = (s.level * 100.0).round();
+    format!(
+        "Both skills are measured on wells held out of training, against climatology (the other \
+         wells' values at the same step), with {pct:.0} % intervals from resampling whole wells. \
+         none: the interval of R2 or of CRPS skill reaches 0 or below, so the wells cannot show \
+         that the map beats their average. useful: the low end of the R2 interval is at least {} \
+         and that of CRPS skill at least {:.3} (the CRPS skill of a calibrated Gaussian forecast \
+         at R2 {}). weak: skill shown, below those bars.",
+        s.useful_r2, s.useful_crps_skill, s.useful_r2
+    )
 }
 
 fn pair_or_nan<'de, D: Deserializer<'de>>(d: D) -> Result<[f64; 2], D::Error> {

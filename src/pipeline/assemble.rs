@@ -10,11 +10,13 @@ use super::model::{SavedModel, convention_text};
 use super::stages::Timing;
 use super::studies::{Infill, Sensitivity, Summary, TargetSummary};
 use crate::calibrate::shift::ShiftSummary;
+use crate::calibrate::stages::spread::Spread;
 use crate::calibrate::{OofRow, TargetDiagnostics};
 use crate::metrics::quantile_sorted;
 use crate::project::Project;
 use crate::report::input as ri;
 use crate::report::{PictureRef, ReportInput};
+use crate::skill::Skill;
 
 /// Everything [`build_report`] needs.
 pub struct ReportParts<'a> {
@@ -52,6 +54,11 @@ pub fn build_report(p: ReportParts) -> ReportInput {
         maps: p.maps,
         infill: p.infill,
         truth: None,
+        skill_rule: crate::skill::rule_text(&super::studies::skill_settings()),
+        band_labels: {
+            let (lo, hi) = model.band_labels();
+            [lo.to_uppercase(), hi.to_uppercase()]
+        },
     }
 }
 
@@ -228,6 +235,7 @@ fn target_report(t: &TargetSummary, studies: &Sensitivity) -> ri::TargetReport {
             rows: Some(d.n_rows),
             learner: Some(d.learner.chosen.clone()),
             end_correction_kept: Some(d.end_correction.kept),
+            end_correction_reason: d.end_correction.reason.clone(),
             r2: opt(m.r2),
             rmse: opt(m.rmse),
             bias: opt(m.bias),
@@ -255,23 +263,80 @@ fn target_report(t: &TargetSummary, studies: &Sensitivity) -> ri::TargetReport {
         learning_curve: learning_curve(&t.name, studies),
         importance: Some(importance(t)),
         ablation: ablation(&t.name, studies),
+        skill: t.skill.as_ref().map(|s| skill_verdict(None, s)),
+        skill_by_step: t
+            .skill_by_step
+            .iter()
+            .map(|s| skill_verdict(Some(&s.step), &s.skill))
+            .collect(),
+        spread: d.spread.as_ref().map(spread_profile),
+        zero_change: d.zero.as_ref().map(|z| ri::ZeroDecision {
+            enabled: z.enabled,
+            applied: d.hurdle.is_some(),
+            reason: z.reason.clone(),
+            tolerance: opt(z.tolerance),
+            zero_share: opt(z.zero_share),
+        }),
     }
 }
 
-/// Band coverage by decile of the truth at the wells (out-of-fold rows).
+/// A skill and its verdict as the page shows them, with the meaning of the verdict.
+fn skill_verdict(step: Option<&str>, s: &Skill) -> ri::SkillVerdict {
+    let settings = super::studies::skill_settings();
+    ri::SkillVerdict {
+        step: step.map(str::to_string),
+        r2: opt(s.r2),
+        r2_interval: s.r2_interval.map(opt),
+        crps_skill: opt(s.crps_skill),
+        crps_skill_interval: s.crps_skill_interval.map(opt),
+        level: Some(settings.level),
+        verdict: s.verdict.as_str().to_string(),
+        meaning: s.verdict.meaning(&settings),
+    }
+}
+
+/// The spread profile and the rule beyond the spanned ground, as the page shows them.
+fn spread_profile(s: &Spread) -> ri::SpreadProfile {
+    let (p, b) = (&s.profile, &s.beyond);
+    ri::SpreadProfile {
+        di: p.di.clone(),
+        scale: p.scale.clone(),
+        di_edge: opt(b.di_max).or(opt(p.di_max)),
+        distance_edge: opt(b.distance_max),
+        envelope: [opt(b.envelope_lo), opt(b.envelope_hi)],
+        spearman: opt(p.spearman),
+        coverage: [opt(p.coverage_plain), opt(p.coverage_scaled)],
+    }
+}
+
+/// Band coverage by decile of the truth at the wells (out-of-fold rows). The deciles follow the
+/// summary's metrics (`docs/summary-schema.md`): the bottom one holds every row with truth at or
+/// below the 10th percentile, the top one every row at or above the 90th, so an atom of equal
+/// values at a cut falls wholly in the outer decile and the table's first and last rows give the
+/// summary's decile coverage; deciles 2-9 hold `q((k-1)/10) < truth <= q(k/10)` (below the 90th
+/// percentile for the 9th).
 fn decile_coverage(d: &TargetDiagnostics) -> ri::DecileCoverage {
     let mut truth: Vec<f64> = d.rows.iter().map(|r| r.truth).collect();
     truth.sort_by(f64::total_cmp);
     let cuts: Vec<f64> = (0..=10)
         .map(|k| quantile_sorted(&truth, k as f64 / 10.0))
         .collect();
+    let decile_of = |y: f64| -> usize {
+        if y <= cuts[1] {
+            0
+        } else if y >= cuts[9] {
+            9
+        } else {
+            (1..9).find(|&k| y <= cuts[k + 1]).unwrap_or(8)
+        }
+    };
     let rows = (0..10)
         .map(|k| {
             let (a, b) = (cuts[k], cuts[k + 1]);
             let inn: Vec<&OofRow> = d
                 .rows
                 .iter()
-                .filter(|r| r.truth >= a && (r.truth < b || (k == 9 && r.truth <= b)))
+                .filter(|r| r.truth.is_finite() && decile_of(r.truth) == k)
                 .collect();
             let n = inn.len();
             let cov = inn

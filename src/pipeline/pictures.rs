@@ -6,7 +6,8 @@
 //! and the survey dates, and nodes outside the area of applicability hatched; the infill targets
 //! over the chance of remaining oil; error maps against a synthetic truth. The P10/P50/P90
 //! convention is stated once per figure set (on the review page), not under every map. The review
-//! page that shows them is assembled in [`super::assemble`].
+//! page that shows them is assembled in [`super::assemble`]. Pictures of a target and step without
+//! demonstrated skill at held-out wells (verdict `none`) carry that sentence as their caption.
 
 use super::PipelineError;
 use super::model::{SavedModel, StepMaps};
@@ -18,6 +19,7 @@ use crate::report::PictureRef;
 use crate::report::colormap::ColourScale;
 use crate::report::input as ri;
 use crate::report::picture::{MapGeometry, MapLine, MapPicture, MapWell, WellSymbol, map_png};
+use crate::skill::{NO_SKILL, Verdict};
 use rayon::prelude::*;
 
 /// Size in pixels of every map picture: wide enough for a slide, with text sized to it.
@@ -37,6 +39,10 @@ pub struct MapSetting {
     pub lines: Vec<MapLine>,
     /// Per step name: base and monitor survey dates, when the manifest gives them.
     pub dates: Vec<(String, Option<String>, Option<String>)>,
+    /// Targets and steps (by name) whose maps lack demonstrated skill at held-out wells (a skill
+    /// verdict `none`, [`crate::skill`]); their pictures say so in the caption. A target with no
+    /// skill pooled over steps lists every step.
+    pub no_skill: Vec<(String, String)>,
 }
 
 /// The coordinate system of `grid` in words: its EPSG code, or the local engineering system the
@@ -86,6 +92,7 @@ impl MapSetting {
                 })
                 .collect(),
             lines: Vec::new(),
+            no_skill: Vec::new(),
             dates: steps
                 .iter()
                 .map(|s| (s.name.clone(), s.base_date.clone(), s.monitor_date.clone()))
@@ -107,6 +114,42 @@ impl MapSetting {
     pub fn of_survey(survey: &crate::project::Survey, model: &SavedModel) -> Self {
         let p = &survey.project;
         Self::new(&p.grid, model, &p.steps, &survey.wells)
+    }
+
+    /// The setting with the skill verdicts of a run's summary: every step of a target whose
+    /// pooled verdict is `none`, and each step whose own verdict is.
+    pub fn with_verdicts(mut self, summary: &super::studies::Summary) -> Self {
+        let steps: Vec<String> = self.dates.iter().map(|d| d.0.clone()).collect();
+        for t in &summary.targets {
+            let pooled = t.skill.as_ref().is_some_and(|s| s.verdict == Verdict::None);
+            for s in &t.skill_by_step {
+                if pooled || s.skill.verdict == Verdict::None {
+                    self.no_skill.push((t.name.clone(), s.step.clone()));
+                }
+            }
+            if pooled {
+                for s in &steps {
+                    if !self.lacks_skill(&t.name, s) {
+                        self.no_skill.push((t.name.clone(), s.clone()));
+                    }
+                }
+            }
+        }
+        self
+    }
+
+    /// Whether the maps of `target` at `step` lack demonstrated skill.
+    pub fn lacks_skill(&self, target: &str, step: &str) -> bool {
+        self.no_skill.iter().any(|(t, s)| t == target && s == step)
+    }
+
+    /// The caption of a picture of `target` at `step`: the no-skill sentence, or nothing.
+    pub fn caption(&self, target: &str, step: &str) -> String {
+        if self.lacks_skill(target, step) {
+            format!("Caution: {NO_SKILL}.")
+        } else {
+            String::new()
+        }
     }
 
     /// The line under a map's title: the step and its survey dates when known.
@@ -159,6 +202,7 @@ struct Job {
     scale: ColourScale,
     values: Vec<f64>,
     hatch: bool,
+    caption: String,
 }
 
 /// Draws the map pictures of one step into `pictures/<step>/` and returns their report entries.
@@ -182,6 +226,7 @@ pub fn step_pictures(
             scale: ColourScale::diverging_from(&tm.mid),
             values: tm.mid.clone(),
             hatch: true,
+            caption: setting.caption(&spec.name, step),
         });
         let width: Vec<f64> = tm.hi.iter().zip(&tm.lo).map(|(h, l)| h - l).collect();
         let (lo_l, hi_l) = model.band_labels();
@@ -200,6 +245,7 @@ pub fn step_pictures(
             scale: ColourScale::sequential_from(&width),
             values: width,
             hatch: true,
+            caption: setting.caption(&spec.name, step),
         });
         for (th, p) in model.thresholds_of(t).iter().zip(&tm.exceed) {
             let dir = match th.direction {
@@ -219,6 +265,7 @@ pub fn step_pictures(
                 scale: ColourScale::Probability,
                 values: p.clone(),
                 hatch: true,
+                caption: setting.caption(&spec.name, step),
             });
         }
     }
@@ -235,6 +282,7 @@ pub fn step_pictures(
         scale: ColourScale::sequential_from(&maps.applicability.di),
         values: maps.applicability.di.clone(),
         hatch: true,
+        caption: String::new(),
     });
     draw(w, setting, jobs, &maps.applicability.inside)
 }
@@ -257,6 +305,7 @@ fn draw(
                 j.scale,
             );
             p.outside = (j.hatch && outside.len() == j.values.len()).then_some(&outside[..]);
+            p.caption = j.caption.clone();
             map_png(&p, MAP_SIZE.0, MAP_SIZE.1)
         })
         .collect();
@@ -268,7 +317,7 @@ fn draw(
             target: j.target,
             kind: j.kind,
             picture: PictureRef::File(j.rel),
-            caption: String::new(),
+            caption: j.caption,
         });
     }
     Ok(entries)

@@ -140,7 +140,7 @@ pub fn run(opts: &RunOptions) -> Result<RunOutcome, PipelineError> {
     stages.done("summary and model");
 
     if opts.pictures {
-        let setting = pictures::MapSetting::of_survey(&survey, &model);
+        let setting = pictures::MapSetting::of_survey(&survey, &model).with_verdicts(&summary);
         let maps = step_pictures(&mut w, &model, &setting, project, &kept)?;
         let infill_section = infill_section(&mut w, &setting, project, &kept, infill.as_ref())?;
         stages.done("pictures");

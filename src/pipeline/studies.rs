@@ -158,8 +158,13 @@ pub struct TargetSummary {
     pub bounds: [f64; 2],
     /// Permutation importance per feature.
     pub importance: Vec<FeatureImportance>,
-    /// Leave-wells-out diagnostics from calibration (schema in docs/summary-schema.md).
+    /// Leave-wells-out diagnostics from calibration (schema in docs/summary-schema.md); written
+    /// as [`named_steps`] gives them.
+    #[serde(skip)]
     pub diagnostics: crate::calibrate::TargetDiagnostics,
+    /// `diagnostics` as written in `summary.json`: each `metrics_by_step` entry names its step.
+    #[serde(rename = "diagnostics")]
+    pub diagnostics_json: serde_json::Value,
     /// Leave-wells-out skill against the wells' climatology, steps pooled, with its verdict.
     pub skill: Option<Skill>,
     /// The same per step, by name.
@@ -222,6 +227,7 @@ pub fn summary(
                 })
                 .collect(),
             diagnostics: cal.diagnostics.clone(),
+            diagnostics_json: named_steps(&cal.diagnostics, &model.step_names),
             skill,
             skill_by_step,
         })
@@ -241,6 +247,33 @@ pub fn summary(
     }
 }
 
+/// A target's diagnostics as JSON with steps by name: each `metrics_by_step` entry becomes
+/// `{"step": name, "step_index": index, "metrics": ...}` (the calibration knows steps by their
+/// index, the step feature; `step_names[index]` is the manifest's name, or the index as text when
+/// there is none).
+pub fn named_steps(
+    d: &crate::calibrate::TargetDiagnostics,
+    step_names: &[String],
+) -> serde_json::Value {
+    let mut v = serde_json::to_value(d).unwrap_or(serde_json::Value::Null);
+    if let Some(list) = v
+        .get_mut("metrics_by_step")
+        .and_then(serde_json::Value::as_array_mut)
+    {
+        for (entry, sm) in list.iter_mut().zip(&d.metrics_by_step) {
+            let name = step_names
+                .get(sm.step)
+                .cloned()
+                .unwrap_or_else(|| sm.step.to_string());
+            if let Some(o) = entry.as_object_mut() {
+                o.insert("step".into(), name.into());
+                o.insert("step_index".into(), sm.step.into());
+            }
+        }
+    }
+    v
+}
+
 /// Prints the leave-wells-out table of a summary.
 pub fn print_table(summary: &Summary) {
     let pct = (summary.level * 100.0).round();
@@ -249,13 +282,13 @@ pub fn print_table(summary: &Summary) {
         summary.wells, summary.rows
     );
     eprintln!(
-        "  {:<8} {:>7} {:>9} {:>9} {:>9} {:>9} {:>9} {:>9}  learner",
-        "target", "R2", "RMSE", "bias", "coverage", "cov.low", "cov.high", "width"
+        "  {:<8} {:>7} {:>9} {:>9} {:>9} {:>9} {:>9} {:>9}  {:<8} skill",
+        "target", "R2", "RMSE", "bias", "coverage", "cov.low", "cov.high", "width", "learner"
     );
     for t in &summary.targets {
         let m = &t.diagnostics.metrics;
         eprintln!(
-            "  {:<8} {:>7.3} {:>9.4} {:>9.4} {:>9.3} {:>9.3} {:>9.3} {:>9.4}  {}",
+            "  {:<8} {:>7.3} {:>9.4} {:>9.4} {:>9.3} {:>9.3} {:>9.3} {:>9.4}  {:<8} {}",
             t.name,
             m.r2,
             m.rmse,
@@ -264,10 +297,30 @@ pub fn print_table(summary: &Summary) {
             m.coverage_bottom_decile,
             m.coverage_top_decile,
             m.mean_width,
-            t.diagnostics.learner.chosen
+            t.diagnostics.learner.chosen,
+            skill_words(t)
         );
     }
     eprintln!();
+}
+
+/// A target's verdicts in a few words: the pooled verdict, then the steps whose own verdict
+/// differs from it (e.g. `weak (none at m1)`).
+pub fn skill_words(t: &TargetSummary) -> String {
+    let Some(pooled) = &t.skill else {
+        return "not computed".to_string();
+    };
+    let others: Vec<String> = t
+        .skill_by_step
+        .iter()
+        .filter(|s| s.skill.verdict != pooled.verdict)
+        .map(|s| format!("{} at {}", s.skill.verdict.as_str(), s.step))
+        .collect();
+    if others.is_empty() {
+        pooled.verdict.as_str().to_string()
+    } else {
+        format!("{} ({})", pooled.verdict.as_str(), others.join(", "))
+    }
 }
 
 /// One point of the learning curve: a number of wells and the skill over repeated subsets.
@@ -457,6 +510,12 @@ pub fn curve_rows(
         .collect()
 }
 
+/// Settings of the skill verdicts of a run (the defaults of [`SkillSettings`]); the report states
+/// the rule with the same bars.
+pub fn skill_settings() -> SkillSettings {
+    SkillSettings::default()
+}
+
 /// Skill of a calibrated target's held-out rows against climatology (the other wells' values at the
 /// same step), pooled and per step, with well-bootstrap intervals and verdicts ([`crate::skill`]).
 /// Both CRPS are the three-quantile CRPS at the band's levels (`metrics::crps_from_quantiles`), so
@@ -500,7 +559,7 @@ pub fn target_skill(
         well: &well,
         weight: &weight,
     };
-    let settings = SkillSettings::default();
+    let settings = skill_settings();
     let step_names: Vec<String> = step_names.to_vec();
     (
         assess(&input, &settings).ok(),

@@ -67,8 +67,7 @@ impl RunWarning {
 }
 
 /// What a `none` skill verdict means for the maps.
-pub const NO_SKILL: &str = "no demonstrated skill at wells held out: this map shows little more \
-                            than the wells' average";
+pub const NO_SKILL: &str = crate::skill::NO_SKILL;
 
 impl fmt::Display for RunWarning {
     /// `stage, target T, well W, step S: message` (the parts it has).

@@ -3,11 +3,15 @@
 //! [`render_html`] turns a [`ReportInput`] into a single page that travels by e-mail: every picture
 //! is a `data:image/png;base64` URI (map files are read from the results folder and checked to be
 //! PNG; the diagnostic plots are drawn here from the numbers), the style sheet is inline, there are
-//! no scripts and no network references. Sections: 1 summary and cautions, 2 maps per target and
-//! step (and applicability, infill targets), 3 cross-plots before and after the end-bias
-//! correction, 4 calibration (coverage by decile of the truth, reliability per threshold, PIT
-//! histogram), 5 learning curve, 6 importance by family and the ablation, 7 errors against truth.
-//! Anything missing is reported as "not computed" rather than failing.
+//! no scripts and no network references. Sections: 1 summary (opening with the skill verdicts of
+//! [`super::verdicts`]; advice where the band misses the extremes) and cautions, 2 maps per target
+//! and step (and applicability, infill targets; pictures of a target and step without
+//! demonstrated skill say so in their caption), 3 cross-plots before and after the end-bias
+//! correction (one series when it was not kept, with the reason), 4 calibration (coverage by
+//! decile of the truth, reliability per threshold, PIT histogram, the band away from the wells and
+//! the "no change" decision of [`super::spread`]), 5 learning curve, 6 importance by family and
+//! the ablation, 7 errors against truth. Anything missing is reported as "not computed" rather
+//! than failing.
 //!
 //! The PIT histogram follows Dawid (1984, JRSS A 147) and Gneiting, Balabdaoui & Raftery (2007,
 //! JRSS B 69): a calibrated forecast gives a flat histogram. The reliability diagram plots the
@@ -23,6 +27,8 @@ use super::input::{
     CrossplotData, DecileCoverage, InfillSection, LearningCurve, MapEntry, PAGE_FILE, PictureRef,
     ReportInput, TargetReport, TruthSection,
 };
+use super::markup::{NOT_COMPUTED, drawn, figure_png, format_sig, unit_suffix};
+pub use super::markup::{escape, num, pct};
 use super::picture::{
     BarPicture, BarSeries, CrossPlot, Curve, LinePicture, PointSeries, Reference, bars_png,
     crossplot_png, line_png,
@@ -37,8 +43,6 @@ pub const DEFAULT_CAUTIONS: [&str; 3] = [
      inform a drilling decision or any public disclosure.",
     "Reporting and disclosure follow the rules and standards that apply where the field lies.",
 ];
-
-const NOT_COMPUTED: &str = "<span class=\"nc\">not computed</span>";
 
 const STYLE: &str = r#"
 :root { --ink: #1d2327; --muted: #5b6770; --rule: #d5dade; --band: #f4f6f7; --accent: #0072b2; }
@@ -80,111 +84,6 @@ footer { margin-top: 30px; padding: 12px 32px; border-top: 1px solid var(--rule)
   figure, table { break-inside: avoid; }
 }
 "#;
-
-/// Escapes text for HTML content and attribute values.
-pub fn escape(text: &str) -> String {
-    let mut out = String::with_capacity(text.len());
-    for c in text.chars() {
-        match c {
-            '&' => out.push_str("&amp;"),
-            '<' => out.push_str("&lt;"),
-            '>' => out.push_str("&gt;"),
-            '"' => out.push_str("&quot;"),
-            '\'' => out.push_str("&#39;"),
-            _ => out.push(c),
-        }
-    }
-    out
-}
-
-/// Formats a number with about three significant digits; `None` and non-finite values read
-/// "not computed".
-pub fn num(v: Option<f64>) -> String {
-    match v {
-        Some(x) if x.is_finite() => format_sig(x),
-        _ => NOT_COMPUTED.to_string(),
-    }
-}
-
-fn format_sig(x: f64) -> String {
-    if x == 0.0 {
-        return "0".to_string();
-    }
-    let mag = x.abs().log10().floor();
-    let decimals = (2.0 - mag).clamp(0.0, 6.0) as usize;
-    let s = format!("{x:.decimals$}");
-    if s.trim_start_matches('-')
-        .chars()
-        .all(|c| c == '0' || c == '.')
-    {
-        format!("{x:.2e}")
-    } else {
-        s
-    }
-}
-
-/// Formats a fraction as a percentage with one decimal.
-pub fn pct(v: Option<f64>) -> String {
-    match v {
-        Some(x) if x.is_finite() => format!("{:.1}&nbsp;%", x * 100.0),
-        _ => NOT_COMPUTED.to_string(),
-    }
-}
-
-fn unit_suffix(unit: &str) -> String {
-    if unit.is_empty() {
-        String::new()
-    } else {
-        format!(" ({})", escape(unit))
-    }
-}
-
-fn data_uri(png: &[u8]) -> String {
-    format!(
-        "data:image/png;base64,{}",
-        base64::engine::general_purpose::STANDARD.encode(png)
-    )
-}
-
-/// Checks that `bytes` are a PNG that decodes to a non-empty image.
-fn check_png(bytes: &[u8]) -> Result<(u32, u32), String> {
-    let decoder = png::Decoder::new(std::io::Cursor::new(bytes));
-    let reader = decoder
-        .read_info()
-        .map_err(|e| format!("not a readable PNG ({e})"))?;
-    let info = reader.info();
-    if info.width == 0 || info.height == 0 {
-        return Err("empty PNG".to_string());
-    }
-    Ok((info.width, info.height))
-}
-
-/// A figure from PNG bytes, or a note saying why there is none.
-fn figure_png(png: Result<Vec<u8>, String>, alt: &str, caption: &str) -> String {
-    match png.and_then(|b| check_png(&b).map(|_| b)) {
-        Ok(bytes) => {
-            let mut s = format!(
-                "<figure><img src=\"{}\" alt=\"{}\">",
-                data_uri(&bytes),
-                escape(alt)
-            );
-            if !caption.is_empty() {
-                let _ = write!(s, "<figcaption>{}</figcaption>", escape(caption));
-            }
-            s.push_str("</figure>");
-            s
-        }
-        Err(why) => format!(
-            "<figure><p class=\"nc\">{}: picture not available ({}).</p></figure>",
-            escape(alt),
-            escape(&why)
-        ),
-    }
-}
-
-fn drawn(r: Result<Vec<u8>, ReportError>) -> Result<Vec<u8>, String> {
-    r.map_err(|e| e.to_string())
-}
 
 /// Reads a picture reference into PNG bytes.
 fn load_picture(p: &PictureRef, results_dir: &Path) -> Result<Vec<u8>, String> {
@@ -262,6 +161,7 @@ pub fn render_html(input: &ReportInput, results_dir: &Path) -> Result<String, Re
 
 fn summary_section(h: &mut String, input: &ReportInput) {
     h.push_str("<section id=\"summary\"><h2>1. Summary</h2>\n");
+    super::verdicts::verdict_block(h, input);
     h.push_str("<div class=\"cautions\"><h3>Cautions</h3><ul>");
     let cautions: Vec<String> = if input.cautions.is_empty() {
         DEFAULT_CAUTIONS.iter().map(|s| s.to_string()).collect()
@@ -326,12 +226,17 @@ fn summary_section(h: &mut String, input: &ReportInput) {
                 num(s.bias),
                 pct(s.coverage),
                 pct(s.nominal_coverage),
-                pct(s.coverage_bottom_decile),
-                pct(s.coverage_top_decile),
+                super::verdicts::decile_cell(s.coverage_bottom_decile),
+                super::verdicts::decile_cell(s.coverage_top_decile),
                 num(s.mean_width),
             );
         }
         h.push_str("</table>\n");
+        for t in &input.targets {
+            for note in super::verdicts::extreme_notes(t, &input.band_labels) {
+                let _ = writeln!(h, "<p class=\"warn\">* {}</p>", escape(&note));
+            }
+        }
         for t in &input.targets {
             for w in &t.summary.warnings {
                 let _ = writeln!(
@@ -406,7 +311,7 @@ fn ordered(declared: &[String], found: impl Iterator<Item = String>) -> Vec<Stri
     out
 }
 
-fn map_figures(h: &mut String, entries: &[&MapEntry], results_dir: &Path) {
+fn map_figures(h: &mut String, input: &ReportInput, entries: &[&MapEntry], results_dir: &Path) {
     h.push_str("<div class=\"figs\">");
     for e in entries {
         let alt = match &e.target {
@@ -416,7 +321,7 @@ fn map_figures(h: &mut String, entries: &[&MapEntry], results_dir: &Path) {
         h.push_str(&figure_png(
             load_picture(&e.picture, results_dir),
             &alt,
-            &e.caption,
+            &super::verdicts::picture_caption(input, e),
         ));
     }
     h.push_str("</div>\n");
@@ -458,7 +363,7 @@ fn maps_section(h: &mut String, input: &ReportInput, results_dir: &Path) {
                 if entries.is_empty() {
                     h.push_str("<p class=\"nc\">No maps for this step: not computed.</p>\n");
                 } else {
-                    map_figures(h, &entries, results_dir);
+                    map_figures(h, input, &entries, results_dir);
                 }
             }
         }
@@ -477,7 +382,7 @@ fn maps_section(h: &mut String, input: &ReportInput, results_dir: &Path) {
                     step_wide.iter().copied().filter(|m| &m.step == s).collect();
                 if !entries.is_empty() {
                     let _ = writeln!(h, "<h4>step {}</h4>", escape(s));
-                    map_figures(h, &entries, results_dir);
+                    map_figures(h, input, &entries, results_dir);
                 }
             }
         }
@@ -568,26 +473,11 @@ fn crossplot_block(h: &mut String, t: &TargetReport, c: &CrossplotData) {
         );
         return;
     }
-    let pair =
-        |p: &[f64]| -> Vec<(f64, f64)> { c.truth.iter().copied().zip(p.iter().copied()).collect() };
     // When the correction was not kept the corrected values are the raw ones: one series, and
     // a sentence saying why.
     let not_kept = t.summary.end_correction_kept == Some(false);
     let show_corrected = !c.corrected.is_empty() && !not_kept;
-    let mut series = vec![PointSeries {
-        name: if not_kept {
-            "out-of-fold P50 (no end-bias correction)".to_string()
-        } else {
-            "out-of-fold P50, raw".to_string()
-        },
-        points: pair(&c.raw),
-    }];
-    if show_corrected {
-        series.push(PointSeries {
-            name: "after end-bias correction".to_string(),
-            points: pair(&c.corrected),
-        });
-    }
+    let series = crossplot_series(t, c);
     let u = if t.unit.is_empty() {
         String::new()
     } else {
@@ -609,12 +499,7 @@ fn crossplot_block(h: &mut String, t: &TargetReport, c: &CrossplotData) {
     ));
     h.push_str("</div>\n");
     if not_kept {
-        let _ = writeln!(
-            h,
-            "<p class=\"note\">The end-bias correction was not kept for {}: on held-out wells it \
-             did not lower the mean squared error, so the maps use the raw prediction.</p>",
-            escape(&t.name)
-        );
+        let _ = writeln!(h, "<p class=\"note\">{}</p>", escape(&not_kept_sentence(t)));
     }
     let uu = unit_suffix(&t.unit);
     let _ = writeln!(
@@ -640,6 +525,54 @@ fn crossplot_block(h: &mut String, t: &TargetReport, c: &CrossplotData) {
         "</table><p class=\"note\">A slope below 1 is the regression to the mean: high changes \
          predicted too low and low ones too high.</p>\n",
     );
+}
+
+/// Why the cross-plot of a target whose end-bias correction was not kept draws one series, in
+/// one sentence, from the correction's diagnostics.
+pub fn not_kept_sentence(t: &TargetReport) -> String {
+    let why = t
+        .summary
+        .end_correction_reason
+        .trim()
+        .trim_start_matches("not kept")
+        .trim_start_matches([':', ' '])
+        .trim_end_matches('.');
+    if why.is_empty() {
+        format!(
+            "The end-bias correction was not kept for {}, so the maps use the uncorrected \
+             prediction and one series is drawn.",
+            t.name
+        )
+    } else {
+        format!(
+            "The end-bias correction was not kept for {}, so the maps use the uncorrected \
+             prediction and one series is drawn: {why}.",
+            t.name
+        )
+    }
+}
+
+/// The series of a target's cross-plot: the out-of-fold P50, and the corrected one only when
+/// the correction was kept (otherwise the two are the same points).
+pub fn crossplot_series(t: &TargetReport, c: &CrossplotData) -> Vec<PointSeries> {
+    let pair =
+        |p: &[f64]| -> Vec<(f64, f64)> { c.truth.iter().copied().zip(p.iter().copied()).collect() };
+    let not_kept = t.summary.end_correction_kept == Some(false);
+    let mut series = vec![PointSeries {
+        name: if not_kept {
+            "out-of-fold P50 (no end-bias correction)".to_string()
+        } else {
+            "out-of-fold P50, raw".to_string()
+        },
+        points: pair(&c.raw),
+    }];
+    if !c.corrected.is_empty() && !not_kept {
+        series.push(PointSeries {
+            name: "after end-bias correction".to_string(),
+            points: pair(&c.corrected),
+        });
+    }
+    series
 }
 
 fn crossplot_section(h: &mut String, input: &ReportInput) {
@@ -683,6 +616,7 @@ fn decile_block(h: &mut String, t: &TargetReport, d: &DecileCoverage) {
         references: refs,
         x_range: Some((0.5, 10.5)),
         y_range: Some((0.0, 1.05)),
+        legend_top_left: false,
     };
     h.push_str("<div class=\"figs\">");
     h.push_str(&figure_png(
@@ -727,6 +661,9 @@ fn calibration_section(h: &mut String, input: &ReportInput) {
             Some(d) if !d.rows.is_empty() => decile_block(h, t, d),
             _ => h.push_str("<p class=\"nc\">Coverage by decile: not computed.</p>\n"),
         }
+        for note in super::verdicts::extreme_notes(t, &input.band_labels) {
+            let _ = writeln!(h, "<p class=\"warn\">{}</p>", escape(&note));
+        }
 
         h.push_str("<h4>Reliability of the exceedance probabilities</h4>\n");
         if t.reliability.is_empty() {
@@ -759,6 +696,7 @@ fn calibration_section(h: &mut String, input: &ReportInput) {
                 }],
                 x_range: Some((0.0, 1.0)),
                 y_range: Some((0.0, 1.0)),
+                legend_top_left: false,
             };
             let cap = match r.brier {
                 Some(b) if b.is_finite() => format!("Brier score {}", format_sig(b)),
@@ -824,6 +762,8 @@ fn calibration_section(h: &mut String, input: &ReportInput) {
             }
             _ => h.push_str("<p class=\"nc\">PIT histogram: not computed.</p>\n"),
         }
+        super::spread::spread_block(h, t, &input.xy_unit);
+        super::spread::zero_block(h, t);
     }
     h.push_str("</section>\n");
 }
@@ -868,6 +808,7 @@ fn learning_block(h: &mut String, t: &TargetReport, lc: &LearningCurve) {
         references: refs,
         x_range: None,
         y_range: None,
+        legend_top_left: false,
     };
     h.push_str("<div class=\"figs\">");
     h.push_str(&figure_png(
@@ -1238,7 +1179,7 @@ fn truth_block(h: &mut String, tr: &TruthSection, input: &ReportInput, results_d
                 escape(t)
             }
         );
-        map_figures(h, &entries, results_dir);
+        map_figures(h, input, &entries, results_dir);
     }
 }
 

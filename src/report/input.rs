@@ -42,6 +42,11 @@ pub struct ReportInput {
     pub infill: Option<InfillSection>,
     /// Scores against truth maps (synthetic projects), when computed.
     pub truth: Option<TruthSection>,
+    /// The skill-verdict rule in plain words (shown under the verdict table); empty: not stated.
+    pub skill_rule: String,
+    /// Names of the band's lower and upper edges in the convention in force (e.g. "P10",
+    /// "P90"); empty: the page says "lower edge" and "upper edge".
+    pub band_labels: [String; 2],
 }
 
 /// Run metadata.
@@ -110,6 +115,80 @@ pub struct TargetReport {
     pub importance: Option<Importance>,
     /// Skill with and without the angle-dependent attributes.
     pub ablation: Option<Ablation>,
+    /// Leave-wells-out skill against the wells' average, steps pooled, with its verdict.
+    pub skill: Option<SkillVerdict>,
+    /// The same per step, by step name.
+    pub skill_by_step: Vec<SkillVerdict>,
+    /// The band away from the wells: scale against dissimilarity and the rule beyond.
+    pub spread: Option<SpreadProfile>,
+    /// Whether the target was modelled with a "no change" atom at zero, and why.
+    pub zero_change: Option<ZeroDecision>,
+}
+
+/// Leave-wells-out skill of a target (steps pooled, or one step) with its verdict.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct SkillVerdict {
+    /// Step name; `None` for all steps pooled.
+    pub step: Option<String>,
+    /// R2 of the out-of-fold P50.
+    pub r2: Option<f64>,
+    /// Interval of the R2 from resampling whole wells, `[low, high]`.
+    pub r2_interval: [Option<f64>; 2],
+    /// CRPS skill against climatology.
+    pub crps_skill: Option<f64>,
+    /// Interval of the CRPS skill, `[low, high]`.
+    pub crps_skill_interval: [Option<f64>; 2],
+    /// Level of both intervals (e.g. 0.9).
+    pub level: Option<f64>,
+    /// `none`, `weak` or `useful`.
+    pub verdict: String,
+    /// What the verdict means, in plain words.
+    pub meaning: String,
+}
+
+/// The band away from the wells: a monotone band scale against dissimilarity, and the widening
+/// beyond the ground cross-validation spans.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct SpreadProfile {
+    /// Knots of the profile: dissimilarity index (ascending).
+    #[serde(with = "nan_as_null")]
+    pub di: Vec<f64>,
+    /// Band scale at each knot (non-decreasing); flat outside the knots.
+    #[serde(with = "nan_as_null")]
+    pub scale: Vec<f64>,
+    /// Largest dissimilarity of a held-out well row to its training folds: the edge of the
+    /// ground cross-validation spans.
+    pub di_edge: Option<f64>,
+    /// Largest distance from a held-out well to the nearest well of its training folds (map
+    /// units).
+    pub distance_edge: Option<f64>,
+    /// Lowest and highest value measured at any well: what the band widens towards beyond the
+    /// edges.
+    pub envelope: [Option<f64>; 2],
+    /// Spearman rank correlation of the band scale held-out rows needed with their
+    /// dissimilarity.
+    pub spearman: Option<f64>,
+    /// Held-out-well coverage of the band before and after scaling.
+    pub coverage: [Option<f64>; 2],
+}
+
+/// The "no change" decision of a target.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct ZeroDecision {
+    /// Whether the rule asked for the atom.
+    pub enabled: bool,
+    /// Whether the maps were made with it (a rule that asked for it can still fall back to a
+    /// continuous model when too few wells changed; the target's warnings say so).
+    pub applied: bool,
+    /// The decision in words (the manifest setting, or what `auto` saw).
+    pub reason: String,
+    /// Tolerance around zero that counts as "no change", in the target's unit.
+    pub tolerance: Option<f64>,
+    /// Share of well values within the tolerance.
+    pub zero_share: Option<f64>,
 }
 
 /// Summary metrics of one target, from held-out wells.
@@ -124,6 +203,8 @@ pub struct TargetSummary {
     pub learner: Option<String>,
     /// Whether the end-bias (isotonic) correction was kept.
     pub end_correction_kept: Option<bool>,
+    /// Why it was or was not kept, from the correction's diagnostics (empty: not recorded).
+    pub end_correction_reason: String,
     /// Coefficient of determination of the out-of-fold P50.
     pub r2: Option<f64>,
     /// Root mean square error, in the target's unit.

@@ -5,6 +5,7 @@
 //! - [`picture`]: PNG maps (rasterised by inverse mapping, rotated grids included), cross-plots,
 //!   line plots and bar charts, returned as PNG bytes.
 //! - [`labels`]: point labels placed clear of each other and of the symbols.
+//! - [`markup`]: escaping, number formats and embedded figures shared by the page's parts.
 //! - [`input`]: [`ReportInput`], the plain serialisable data the page is built from.
 //! - [`html`]: [`render_html`], one self-contained HTML page (pictures as data URIs, inline CSS, no
 //!   scripts, no network), and [`write_html`] (temporary file + rename).
@@ -17,7 +18,10 @@ pub mod font;
 pub mod html;
 pub mod input;
 pub mod labels;
+pub mod markup;
 pub mod picture;
+pub mod spread;
+pub mod verdicts;
 
 pub use colormap::{Colormap, ColourScale};
 pub use html::{render_html, write_html};

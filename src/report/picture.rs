@@ -1486,6 +1486,13 @@ pub enum Reference {
         /// Legend name.
         label: String,
     },
+    /// A vertical line at `x` (e.g. the edge of the ground cross-validation spans).
+    Vertical {
+        /// Position of the line.
+        x: f64,
+        /// Legend name.
+        label: String,
+    },
 }
 
 /// A plot of lines against a shared x axis.
@@ -1505,6 +1512,8 @@ pub struct LinePicture {
     pub x_range: Option<(f64, f64)>,
     /// Fixed y range; `None` spans the data and the reference lines.
     pub y_range: Option<(f64, f64)>,
+    /// Put the legend in the upper left corner instead of the lower right.
+    pub legend_top_left: bool,
 }
 
 /// Draws a line plot (learning curve, reliability diagram, coverage by decile) and returns the PNG
@@ -1512,7 +1521,7 @@ pub struct LinePicture {
 pub fn line_png(p: &LinePicture, width: u32, height: u32) -> Result<Vec<u8>, ReportError> {
     check_size(width, height)?;
     ensure_registered()?;
-    let xs: Vec<f64> = p
+    let mut xs: Vec<f64> = p
         .series
         .iter()
         .flat_map(|s| s.points.iter().map(|q| q.0))
@@ -1528,8 +1537,10 @@ pub fn line_png(p: &LinePicture, width: u32, height: u32) -> Result<Vec<u8>, Rep
         }
     }
     for r in &p.references {
-        if let Reference::Horizontal { y, .. } = r {
-            ys.push(*y);
+        match r {
+            Reference::Horizontal { y, .. } => ys.push(*y),
+            Reference::Vertical { x, .. } => xs.push(*x),
+            Reference::Diagonal { .. } => {}
         }
     }
     let (x0, x1) = p
@@ -1581,6 +1592,7 @@ pub fn line_png(p: &LinePicture, width: u32, height: u32) -> Result<Vec<u8>, Rep
                     (vec![(a, a), (b, b)], label)
                 }
                 Reference::Horizontal { y, label } => (vec![(x0, *y), (x1, *y)], label),
+                Reference::Vertical { x, label } => (vec![(*x, y0), (*x, y1)], label),
             };
             chart
                 .draw_series(DashedLineSeries::new(pts, 6, 4, grey.stroke_width(1)))
@@ -1637,7 +1649,11 @@ pub fn line_png(p: &LinePicture, width: u32, height: u32) -> Result<Vec<u8>, Rep
         }
         chart
             .configure_series_labels()
-            .position(SeriesLabelPosition::LowerRight)
+            .position(if p.legend_top_left {
+                SeriesLabelPosition::UpperLeft
+            } else {
+                SeriesLabelPosition::LowerRight
+            })
             .background_style(WHITE.mix(0.85))
             .border_style(RGBColor(0x99, 0x99, 0x99))
             .label_font((FAMILY, 12))

@@ -4,4 +4,5 @@ mod end_to_end;
 mod infill;
 mod report;
 mod truth;
+mod verdicts;
 mod warnings;

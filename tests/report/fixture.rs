@@ -225,6 +225,7 @@ pub fn sample_input(dir: &Path) -> ReportInput {
                     coverage_top_decile: None,
                     mean_width: Some(0.13),
                     warnings: vec!["only 3 wells in the top decile".to_string()],
+                    ..Default::default()
                 },
                 crossplot: Some(CrossplotData {
                     truth,
@@ -326,6 +327,7 @@ pub fn sample_input(dir: &Path) -> ReportInput {
                         mean_width: Some(0.18),
                     },
                 }),
+                ..Default::default()
             }
         })
         .collect();
@@ -403,5 +405,6 @@ pub fn sample_input(dir: &Path) -> ReportInput {
                 caption: String::new(),
             }],
         }),
+        ..Default::default()
     }
 }

@@ -5,3 +5,4 @@ mod colormap;
 mod fixture;
 pub(crate) mod html;
 mod picture;
+mod verdicts;

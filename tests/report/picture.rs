@@ -440,6 +440,7 @@ fn plots_have_size_and_content() {
         ],
         x_range: Some((0.0, 1.0)),
         y_range: Some((0.0, 1.0)),
+        legend_top_left: false,
     };
     let d = decode(&line_png(&lp, 500, 400).unwrap());
     assert_eq!((d.width, d.height), (500, 400));
@@ -509,6 +510,7 @@ fn empty_plots_still_draw() {
         references: vec![],
         x_range: None,
         y_range: None,
+        legend_top_left: false,
     };
     assert_eq!(decode(&line_png(&lp, 300, 200).unwrap()).height, 200);
     let bp = BarPicture {
