@@ -145,16 +145,31 @@ fn check(l: &Loaded) -> Checked {
     }
 }
 
-/// Recall, precision and near-well inside share of a flag rule `flag(step, node)`.
-fn rates(c: &Checked, lobe: &[bool], steps: usize, flag: &dyn Fn(usize, usize) -> bool) -> String {
-    let (mut tp, mut fp, mut ln, mut near, mut near_in) = (0usize, 0usize, 0usize, 0usize, 0usize);
+/// Recall, precision and near-well inside share of a flag rule `flag(step, node)`, pooled over
+/// steps, for each region: recall is the share of the region's nodes flagged; precision the share
+/// of flagged nodes that lie in the region among those in the region or outside every region (a
+/// flag in the other region counts neither for nor against); `all` pools the regions.
+fn rates(
+    c: &Checked,
+    regions: &[(String, Vec<bool>)],
+    steps: usize,
+    flag: &dyn Fn(usize, usize) -> bool,
+) -> String {
+    let n = c.distance.len();
+    let in_any = |i: usize| regions.iter().any(|r| r.1[i]);
+    let (mut fp, mut near, mut near_in) = (0usize, 0usize, 0usize);
+    let mut tp = vec![0usize; regions.len()];
+    let mut size = vec![0usize; regions.len()];
     for s in 0..steps {
-        for (i, &in_lobe) in lobe.iter().enumerate() {
+        for i in 0..n {
             let f = flag(s, i);
-            if in_lobe {
-                ln += 1;
-                tp += usize::from(f);
-            } else {
+            for (k, r) in regions.iter().enumerate() {
+                if r.1[i] {
+                    size[k] += 1;
+                    tp[k] += usize::from(f);
+                }
+            }
+            if !in_any(i) {
                 fp += usize::from(f);
             }
             if c.distance[i] <= 1.0 {
@@ -163,66 +178,76 @@ fn rates(c: &Checked, lobe: &[bool], steps: usize, flag: &dyn Fn(usize, usize) -
             }
         }
     }
-    format!(
-        "recall {:.3}  precision {:.3}  near-well inside {:.3}",
-        tp as f64 / ln.max(1) as f64,
-        tp as f64 / (tp + fp).max(1) as f64,
+    let mut out = String::new();
+    for (k, r) in regions.iter().enumerate() {
+        out.push_str(&format!(
+            "{} {:.2}/{:.2}  ",
+            r.0,
+            tp[k] as f64 / size[k].max(1) as f64,
+            tp[k] as f64 / (tp[k] + fp).max(1) as f64
+        ));
+    }
+    let (ta, sa): (usize, usize) = (tp.iter().sum(), size.iter().sum());
+    out.push_str(&format!(
+        "all {:.2}/{:.2}  near-well inside {:.3}",
+        ta as f64 / sa.max(1) as f64,
+        ta as f64 / (ta + fp).max(1) as f64,
         near_in as f64 / near.max(1) as f64
-    )
+    ));
+    out
 }
 
-fn seed_report(seed: u64, wells: usize, cache: &Path) {
+fn seed_report(seed: u64, wells: usize, cache: &Path, gas_cap: bool) {
     let settings = SynthSettings {
         seed,
         wells,
+        gas_cap,
         ..SynthSettings::default()
     };
-    let dir = cache.join(format!("seed-{seed}-wells-{wells}"));
+    let dir = cache.join(format!(
+        "seed-{seed}-wells-{wells}{}",
+        if gas_cap { "-gas-cap" } else { "" }
+    ));
     if !dir.join("project.toml").exists() {
         let f = generate(&settings).expect("generate the field");
         write_project(&f, &settings, &dir).expect("write the field");
     }
     let l = load(&dir);
     let model = SynthModel::build(&settings).expect("synthetic model");
-    let lobe: Vec<bool> = model.reservoir.lobe.iter().map(|&w| w >= 0.5).collect();
+    // The regions as `truth/masks/<region>.tif` holds them (weight >= 0.5).
+    let regions: Vec<(String, Vec<bool>)> = model
+        .reservoir
+        .masks()
+        .into_iter()
+        .map(|(name, m)| (name, m.iter().map(|&v| v == 1.0).collect()))
+        .collect();
     let c = check(&l);
     let steps = l.survey.maps.len();
     println!(
-        "seed {seed}: {} wells, spacing {:.0} m, row threshold {:.3}, ground threshold {:.3}",
+        "seed {seed}: {} wells, spacing {:.0} m, row threshold {:.3}, ground threshold {:.3}; \
+         recall/precision per region",
         c.n_wells, c.spacing, c.row_threshold, c.ground_threshold
     );
     println!(
         "  rows (DI + range)   {}",
-        rates(&c, &lobe, steps, &|s, i| c.codes_rows[s][i]
+        rates(&c, &regions, steps, &|s, i| c.codes_rows[s][i]
             != REASON_INSIDE)
     );
     println!(
         "  ground              {}",
-        rates(&c, &lobe, steps, &|_, i| c.ground[i])
+        rates(&c, &regions, steps, &|_, i| c.ground[i])
     );
     println!(
         "  rows + ground       {}",
-        rates(&c, &lobe, steps, &|s, i| c.codes_both[s][i]
+        rates(&c, &regions, steps, &|s, i| c.codes_both[s][i]
             != REASON_INSIDE)
     );
-    print!("  per step (rows + ground) recall/precision:");
     for s in 0..steps {
-        let (mut tp, mut fl, mut ln) = (0, 0, 0);
-        for (i, &in_lobe) in lobe.iter().enumerate() {
-            let f = c.codes_both[s][i] != REASON_INSIDE;
-            fl += usize::from(f);
-            if in_lobe {
-                ln += 1;
-                tp += usize::from(f);
-            }
-        }
-        print!(
-            " {:.2}/{:.2}",
-            tp as f64 / ln as f64,
-            tp as f64 / fl.max(1) as f64
+        println!(
+            "    step {s} (rows + ground) {}",
+            rates(&c, &regions, 1, &|_, i| c.codes_both[s][i] != REASON_INSIDE)
         );
     }
-    println!();
 }
 
 fn demo_report(dir: &Path) {
@@ -282,20 +307,22 @@ fn main() {
     let mut wells = SynthSettings::default().wells;
     let mut cache = PathBuf::from("target/applicability_probe");
     let mut demo: Option<PathBuf> = None;
+    let mut gas_cap = true;
     let mut args = std::env::args().skip(1);
     while let Some(a) = args.next() {
         match a.as_str() {
             "--cache" => cache = PathBuf::from(args.next().expect("--cache FOLDER")),
             "--demo" => demo = Some(PathBuf::from(args.next().expect("--demo FOLDER"))),
+            "--no-gas-cap" => gas_cap = false,
             "--wells" => wells = args.next().and_then(|v| v.parse().ok()).expect("--wells N"),
             s => seeds.push(s.parse().expect("a seed, --wells N, --cache or --demo")),
         }
     }
     if seeds.is_empty() && demo.is_none() {
-        seeds = vec![1, 2, 3];
+        seeds = vec![1, 2, 3, 4, 5];
     }
     for seed in seeds {
-        seed_report(seed, wells, &cache);
+        seed_report(seed, wells, &cache, gas_cap);
     }
     if let Some(d) = demo {
         demo_report(&d);
