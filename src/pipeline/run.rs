@@ -92,6 +92,8 @@ pub struct RunRecord {
     pub cautions: Vec<String>,
     /// Files written, relative to the results folder.
     pub files: Vec<String>,
+    /// The codes of the `maps/<step>/area_reason` maps, in words.
+    pub area_reason_codes: String,
 }
 
 /// What a run returns to its caller.
@@ -184,9 +186,13 @@ fn predict_and_write(
     let mut kept: Vec<StepMaps> = Vec::new();
     let bar = stages.bar(project.steps.len() as u64, "predict and write maps");
     let node_xy = project.grid.node_coordinates();
+    // The ground check looks at each node's whole attribute history: once for every step.
+    let ground = model
+        .ground_flags(survey, 0..project.grid.len())
+        .map_err(PipelineError::Invalid)?;
     for (s, step) in project.steps.iter().enumerate() {
         let x = sample::node_features(survey, s);
-        let maps = model.predict(x.view(), &node_xy)?;
+        let maps = model.predict(x.view(), &node_xy, ground.as_deref())?;
         metadata.extend(write_step_maps(w, model, &project.grid, &step.name, &maps)?);
         kept.push(maps);
         bar.inc(1);
@@ -304,6 +310,7 @@ fn run_record(
         warnings: warnings.iter().map(ToString::to_string).collect(),
         cautions: super::CAUTIONS.iter().map(|s| s.to_string()).collect(),
         files: written.to_vec(),
+        area_reason_codes: super::outputs::AREA_REASON_CODES.to_string(),
     }
 }
 
