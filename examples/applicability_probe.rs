@@ -1,24 +1,27 @@
-//! Probe of the area of applicability on generated fields with the well-free lobe.
+//! Probe of the area of applicability on generated fields with ground no well samples.
 //!
-//! For each seed: generate the default synthetic field (kept in a cache folder and reused), load it
-//! as a project, extract the training rows, weigh the features by permutation importance as the
-//! main job does, fit the area of applicability (`Applicability`, one row per node and step) and
-//! the ground check (`Ground`, one history per location), and assess every node of every step.
-//! Prints, per seed and pooled over steps, for the row check alone, the ground check alone and
-//! both: recall (share of lobe nodes flagged), precision (share of flagged nodes inside the lobe)
-//! and the share of nodes within one well spacing of a well that lie inside the area. The lobe is
-//! the synthetic model's lobe weight >= 0.5 (the same as `truth/masks/lobe.tif` where a project
-//! has it).
+//! For each seed: generate the default synthetic field with the well-free lobe and (unless
+//! `--no-gas-cap`) the drained culmination (kept in a cache folder and reused), load it as a
+//! project, extract the training rows, weigh the features by permutation importance as the main
+//! job does, fit the row check (`Applicability` with the main job's range tolerance, one row per
+//! node and step) and the ground check (`Ground`, one history per location), and assess every node
+//! of every step. Prints, pooled over steps, for the row check alone, the ground check alone and
+//! both (the area the main job writes), per region (`truth/masks/<region>.tif`: lobe, gas_cap):
+//! recall (share of the region's nodes flagged) / precision (flagged nodes in the region over
+//! those plus flagged nodes outside every region), and the share of nodes within one well spacing
+//! of a well that lie inside the area; then the same for other range tolerances and per step.
+//! `--diag` adds, per region and for other ground, quantiles of the distance to wells (in
+//! spacings), of the history dissimilarity and of the row DI, and per attribute and step the
+//! share of nodes outside the wells' range and their mean standardised value.
 //!
 //! With `--demo FOLDER` (a `tidemark synth` project, e.g. demo-data) it also reports the swept
 //! cores next to injectors: nodes within one well spacing of an injector whose true dSw gain
 //! exceeds 0.1, the share of them flagged and why (reason codes).
 //!
 //! Run: `cargo run --release --example applicability_probe -- [SEEDS...] [--wells N]
-//! [--cache FOLDER] [--demo FOLDER]` (default seeds 1 2 3, 45 wells, cache
-//! target/applicability_probe).
+//! [--no-gas-cap] [--diag] [--cache FOLDER] [--demo FOLDER]` (default seeds 1 to 5, 45 wells,
+//! cache target/applicability_probe).
 use ndarray::{Array2, Axis};
-use rayon::prelude::*;
 use std::path::{Path, PathBuf};
 use tidemark::applicability::{
     self, Applicability, Ground, REASON_BOTH, REASON_INSIDE, REASON_RANGE, REASON_UNLIKE,
@@ -73,9 +76,6 @@ fn importance(l: &Loaded) -> Vec<f64> {
 
 /// Both checks fitted on a project, and the per-step reason codes of every node.
 struct Checked {
-    wells_xy: Vec<[f64; 2]>,
-    well_fold: Vec<usize>,
-    nodes_xy: Vec<[f64; 2]>,
     /// `codes_rows[step][node]`: the row check alone.
     codes_rows: Vec<Vec<u8>>,
     /// `codes_both[step][node]`: rows and ground.
@@ -111,8 +111,10 @@ fn check(l: &Loaded) -> Checked {
     let fold = folds::assign(&ts.group, &ts.xy, method, c.folds, seed);
     let p = ts.x.ncols();
     let imp = importance(l);
+    // The row check as the main job fits it: the range check with its tolerance.
     let aoa = Applicability::fit(&ts.feature_names, ts.x.view(), &imp, &fold, &vec![true; p])
-        .expect("fit the area of applicability");
+        .expect("fit the area of applicability")
+        .with_range_margin(applicability::RANGE_MARGIN);
     // one position, history and fold per well (its first row)
     let mut wells_xy: Vec<[f64; 2]> = Vec::new();
     let mut well_fold = Vec::new();
@@ -152,6 +154,7 @@ fn check(l: &Loaded) -> Checked {
             let mut o = [false; 3];
             for (k, m) in [0.05, 0.1, 0.2].iter().enumerate() {
                 o[k] = (0..p).any(|c| {
+                    // widths beyond the plain range (the run's tolerance is 10 %)
                     let w = m * (aoa.max[c] - aoa.min[c]);
                     let v = xf[[r, c]];
                     v < aoa.min[c] - w || v > aoa.max[c] + w
@@ -174,9 +177,6 @@ fn check(l: &Loaded) -> Checked {
         node_hist,
         spacing: ground.spacing,
         n_wells: wells_xy.len(),
-        wells_xy: wells_xy.clone(),
-        well_fold: well_fold.clone(),
-        nodes_xy: nodes.clone(),
         row_threshold: aoa.threshold,
         ground_threshold: ground.threshold,
     }
@@ -234,7 +234,7 @@ fn rates(
     out
 }
 
-fn seed_report(seed: u64, wells: usize, cache: &Path, gas_cap: bool) {
+fn seed_report(seed: u64, wells: usize, cache: &Path, gas_cap: bool, show_diag: bool) {
     let settings = SynthSettings {
         seed,
         wells,
@@ -281,11 +281,13 @@ fn seed_report(seed: u64, wells: usize, cache: &Path, gas_cap: bool) {
     );
     println!(
         "  ground + DI only    {}",
-        rates(&c, &regions, steps, &|s, i| c.ground[i] || c.codes_rows[s][i] & 1 == 1)
+        rates(&c, &regions, steps, &|s, i| c.ground[i]
+            || c.codes_rows[s][i] & 1 == 1)
     );
     println!(
         "  ground + range only {}",
-        rates(&c, &regions, steps, &|s, i| c.ground[i] || c.codes_rows[s][i] & 2 == 2)
+        rates(&c, &regions, steps, &|s, i| c.ground[i]
+            || c.codes_rows[s][i] & 2 == 2)
     );
     let nn = c.distance.len();
     for (k, m) in ["5%", "10%", "20%"].iter().enumerate() {
@@ -296,15 +298,8 @@ fn seed_report(seed: u64, wells: usize, cache: &Path, gas_cap: bool) {
                 || c.range_margin[s * nn + i][k])
         );
     }
-    if std::env::var_os("PROBE_DIAG").is_some() {
+    if show_diag {
         diag(&c, &regions, &l.survey.project.attribute_names);
-        pca_experiment(&c, &regions);
-        knn_share(&c, &regions);
-        for v in variants(&c, &regions) {
-            println!("VAR seed {seed} {} {:.3} {:.3} {:.3} {:.3}", v.0, v.1, v.2, v.3, v.4);
-        }
-        let g = &l.survey.project.grid;
-        picture(&c, &regions, g.nx, g.ny, &PathBuf::from(format!("/tmp/area/seed{seed}.png")));
     }
     for s in 0..steps {
         println!(
@@ -313,7 +308,6 @@ fn seed_report(seed: u64, wells: usize, cache: &Path, gas_cap: bool) {
         );
     }
 }
-
 
 fn quant(mut v: Vec<f64>) -> String {
     v.retain(|x| x.is_finite());
@@ -336,27 +330,50 @@ fn diag(c: &Checked, regions: &[(String, Vec<bool>)], names: &[String]) {
         .collect();
     groups.push((
         "other g>1.5".into(),
-        (0..n).filter(|&i| !in_any(i) && c.distance[i] > 1.5).collect(),
+        (0..n)
+            .filter(|&i| !in_any(i) && c.distance[i] > 1.5)
+            .collect(),
     ));
     groups.push((
         "other g<=1".into(),
-        (0..n).filter(|&i| !in_any(i) && c.distance[i] <= 1.0).collect(),
+        (0..n)
+            .filter(|&i| !in_any(i) && c.distance[i] <= 1.0)
+            .collect(),
     ));
     let q = c.well_hist.ncols();
     let lo: Vec<f64> = (0..q)
-        .map(|k| c.well_hist.column(k).iter().copied().fold(f64::INFINITY, f64::min))
+        .map(|k| {
+            c.well_hist
+                .column(k)
+                .iter()
+                .copied()
+                .fold(f64::INFINITY, f64::min)
+        })
         .collect();
     let hi: Vec<f64> = (0..q)
-        .map(|k| c.well_hist.column(k).iter().copied().fold(f64::NEG_INFINITY, f64::max))
+        .map(|k| {
+            c.well_hist
+                .column(k)
+                .iter()
+                .copied()
+                .fold(f64::NEG_INFINITY, f64::max)
+        })
         .collect();
-    let mean: Vec<f64> = (0..q).map(|k| c.well_hist.column(k).mean().unwrap()).collect();
+    let mean: Vec<f64> = (0..q)
+        .map(|k| c.well_hist.column(k).mean().unwrap())
+        .collect();
     let sd: Vec<f64> = (0..q).map(|k| c.well_hist.column(k).std(1.0)).collect();
     for (name, idx) in &groups {
         let g: Vec<f64> = idx.iter().map(|&i| c.distance[i]).collect();
         let h: Vec<f64> = idx.iter().map(|&i| c.history[i]).collect();
         let r: Vec<f64> = idx
             .iter()
-            .map(|&i| c.row_di.iter().map(|d| d[i]).fold(f64::NEG_INFINITY, f64::max))
+            .map(|&i| {
+                c.row_di
+                    .iter()
+                    .map(|d| d[i])
+                    .fold(f64::NEG_INFINITY, f64::max)
+            })
             .collect();
         println!(
             "  {name:12} n {:5}  g {}  h {}  max row DI {}",
@@ -380,306 +397,17 @@ fn diag(c: &Checked, regions: &[(String, Vec<bool>)], names: &[String]) {
                 .map(|&i| (c.node_hist[[i, k]] - mean[k]) / sd[k])
                 .sum::<f64>()
                 / idx.len().max(1) as f64;
-            line.push_str(&format!(" {}:{:.2}/{:+.1}", names[k % names.len()], out, mz));
+            line.push_str(&format!(
+                " {}:{:.2}/{:+.1}",
+                names[k % names.len()],
+                out,
+                mz
+            ));
             if k % names.len() == names.len() - 1 {
                 println!("{line}");
                 line = String::from("               ");
             }
         }
-    }
-}
-
-
-/// Eigen-decomposition of a symmetric matrix by cyclic Jacobi rotations; returns (values, vectors
-/// as columns), sorted by decreasing value.
-fn jacobi(mut a: Array2<f64>) -> (Vec<f64>, Array2<f64>) {
-    let n = a.nrows();
-    let mut v = Array2::<f64>::eye(n);
-    for _ in 0..100 {
-        let off: f64 = (0..n)
-            .flat_map(|i| (0..n).filter(move |&j| j != i).map(move |j| (i, j)))
-            .map(|(i, j)| a[[i, j]] * a[[i, j]])
-            .sum();
-        if off < 1e-22 {
-            break;
-        }
-        for p in 0..n {
-            for q in p + 1..n {
-                if a[[p, q]].abs() < 1e-300 {
-                    continue;
-                }
-                let theta = (a[[q, q]] - a[[p, p]]) / (2.0 * a[[p, q]]);
-                let t = theta.signum() / (theta.abs() + (theta * theta + 1.0).sqrt());
-                let t = if theta == 0.0 { 1.0 } else { t };
-                let c = 1.0 / (t * t + 1.0).sqrt();
-                let s = t * c;
-                for k in 0..n {
-                    let (akp, akq) = (a[[k, p]], a[[k, q]]);
-                    a[[k, p]] = c * akp - s * akq;
-                    a[[k, q]] = s * akp + c * akq;
-                }
-                for k in 0..n {
-                    let (apk, aqk) = (a[[p, k]], a[[q, k]]);
-                    a[[p, k]] = c * apk - s * aqk;
-                    a[[q, k]] = s * apk + c * aqk;
-                }
-                for k in 0..n {
-                    let (vkp, vkq) = (v[[k, p]], v[[k, q]]);
-                    v[[k, p]] = c * vkp - s * vkq;
-                    v[[k, q]] = s * vkp + c * vkq;
-                }
-            }
-        }
-    }
-    let mut idx: Vec<usize> = (0..n).collect();
-    idx.sort_by(|&i, &j| a[[j, j]].total_cmp(&a[[i, i]]));
-    let vals = idx.iter().map(|&i| a[[i, i]]).collect();
-    let vecs = v.select(Axis(1), &idx);
-    (vals, vecs)
-}
-
-/// Experiment: PCA of the node histories (standardised by the wells), k components whitened by
-/// the nodes' variance; nearest-well distance over mean well distance, per group.
-fn pca_experiment(c: &Checked, regions: &[(String, Vec<bool>)]) {
-    let q = c.well_hist.ncols();
-    let mean: Vec<f64> = (0..q).map(|k| c.well_hist.column(k).mean().unwrap()).collect();
-    let sd: Vec<f64> = (0..q).map(|k| c.well_hist.column(k).std(1.0).max(1e-12)).collect();
-    let z = |m: &Array2<f64>| {
-        let mut o = m.clone();
-        for mut r in o.rows_mut() {
-            for k in 0..q {
-                r[k] = (r[k] - mean[k]) / sd[k];
-            }
-        }
-        o
-    };
-    let wz = z(&c.well_hist);
-    let nz_all = z(&c.node_hist);
-    let ok: Vec<usize> = (0..nz_all.nrows())
-        .filter(|&i| nz_all.row(i).iter().all(|v| v.is_finite()))
-        .collect();
-    let nz = nz_all.select(Axis(0), &ok);
-    let nm = nz.mean_axis(Axis(0)).unwrap();
-    let cen = &nz - &nm;
-    let cov = cen.t().dot(&cen) / (cen.nrows() as f64 - 1.0);
-    let (vals, vecs) = jacobi(cov);
-    let total: f64 = vals.iter().sum();
-    let mut cum = 0.0;
-    let shares: Vec<String> = vals.iter().take(10).map(|v| { cum += v / total; format!("{:.2}", cum) }).collect();
-    println!("  PCA cumulative shares: {}", shares.join(" "));
-    let n = c.distance.len();
-    let in_any = |i: usize| regions.iter().any(|r| r.1[i]);
-    for k in [2usize, 3, 4, 6, 8, 12] {
-        let proj = |m: &Array2<f64>| {
-            let mut p = (m - &nm).dot(&vecs.slice(ndarray::s![.., 0..k]));
-            for j in 0..k {
-                let s = vals[j].sqrt();
-                p.column_mut(j).mapv_inplace(|v| v / s);
-            }
-            p
-        };
-        let wp = proj(&wz);
-        let np = proj(&nz);
-        let nw = wp.nrows();
-        let d = |a: ndarray::ArrayView1<f64>, b: ndarray::ArrayView1<f64>| {
-            a.iter().zip(b).map(|(x, y)| (x - y) * (x - y)).sum::<f64>().sqrt()
-        };
-        let mut sum = 0.0;
-        let mut pairs = 0;
-        for a in 0..nw { for b in a + 1..nw { sum += d(wp.row(a), wp.row(b)); pairs += 1; } }
-        let md = sum / pairs as f64;
-        let mut h = vec![f64::NAN; n];
-        for (r, &i) in ok.iter().enumerate() {
-            h[i] = (0..nw).map(|w| d(np.row(r), wp.row(w))).fold(f64::INFINITY, f64::min) / md;
-        }
-        // well CV (leave one out)
-        let wcv: Vec<f64> = (0..nw).map(|a| (0..nw).filter(|&b| b != a).map(|b| d(wp.row(a), wp.row(b))).fold(f64::INFINITY, f64::min) / md).collect();
-        let mut line = format!("  k {k:2}: wells-LOO {}", quant(wcv.clone()));
-        for r in regions {
-            line.push_str(&format!("  {} {}", r.0, quant((0..n).filter(|&i| r.1[i]).map(|i| h[i]).collect())));
-        }
-        line.push_str(&format!("  other>1.5 {}", quant((0..n).filter(|&i| !in_any(i) && c.distance[i] > 1.5).map(|i| h[i]).collect())));
-        line.push_str(&format!("  other<=1 {}", quant((0..n).filter(|&i| !in_any(i) && c.distance[i] <= 1.0).map(|i| h[i]).collect())));
-        println!("{line}");
-    }
-}
-
-
-/// Experiment: a PNG of the distance to wells (grey), the regions (red lobe, green cap) and flags
-/// (blue) of the combined check at the last step.
-fn picture(c: &Checked, regions: &[(String, Vec<bool>)], nx: usize, ny: usize, path: &Path) {
-    let scale = 4;
-    let (w, h) = (nx * scale, ny * scale);
-    let mut buf = vec![0u8; w * h * 3];
-    let last = c.codes_both.len() - 1;
-    for j in 0..ny {
-        for i in 0..nx {
-            let k = j * nx + i;
-            let g = (c.distance[k] / 3.0).min(1.0);
-            let mut px = [(g * 200.0) as u8; 3];
-            let edge = |r: &Vec<bool>| {
-                r[k] && ((i > 0 && !r[k - 1]) || (i + 1 < nx && !r[k + 1]) || (j > 0 && !r[k - nx]) || (j + 1 < ny && !r[k + nx]))
-            };
-            if c.codes_both[last][k] != 0 {
-                px[2] = 255;
-            }
-            if regions.first().is_some_and(|r| edge(&r.1)) {
-                px = [255, 0, 0];
-            }
-            if regions.get(1).is_some_and(|r| edge(&r.1)) {
-                px = [0, 255, 0];
-            }
-            if c.distance[k] < 0.08 {
-                px = [255, 255, 0];
-            }
-            for dy in 0..scale {
-                for dx in 0..scale {
-                    let (x, y) = (i * scale + dx, (ny - 1 - j) * scale + dy);
-                    let o = (y * w + x) * 3;
-                    buf[o..o + 3].copy_from_slice(&px);
-                }
-            }
-        }
-    }
-    let f = std::fs::File::create(path).unwrap();
-    let mut e = png::Encoder::new(std::io::BufWriter::new(f), w as u32, h as u32);
-    e.set_color(png::ColorType::Rgb);
-    e.write_header().unwrap().write_image_data(&buf).unwrap();
-}
-
-
-/// Experiment: ground-check variants (space, neighbours, exponent), ground flag only; returns
-/// per variant (name, lobe recall, lobe precision, cap recall, near-well inside).
-fn variants(c: &Checked, regions: &[(String, Vec<bool>)]) -> Vec<(String, f64, f64, f64, f64)> {
-    let q = c.well_hist.ncols();
-    let mean: Vec<f64> = (0..q).map(|k| c.well_hist.column(k).mean().unwrap()).collect();
-    let sd: Vec<f64> = (0..q).map(|k| c.well_hist.column(k).std(1.0).max(1e-12)).collect();
-    let z = |m: &Array2<f64>| {
-        let mut o = m.clone();
-        for mut r in o.rows_mut() {
-            for k in 0..q {
-                r[k] = (r[k] - mean[k]) / sd[k];
-            }
-        }
-        o
-    };
-    let wz = z(&c.well_hist);
-    let nz = z(&c.node_hist);
-    let ok: Vec<usize> = (0..nz.nrows())
-        .filter(|&i| nz.row(i).iter().all(|v| v.is_finite()))
-        .collect();
-    let nzo = nz.select(Axis(0), &ok);
-    let nm = nzo.mean_axis(Axis(0)).unwrap();
-    let cen = &nzo - &nm;
-    let cov = cen.t().dot(&cen) / (cen.nrows() as f64 - 1.0);
-    let (vals, vecs) = jacobi(cov);
-    let nw = wz.nrows();
-    let n = nz.nrows();
-    let spacing = c.spacing;
-    let planar = |a: [f64; 2], b: [f64; 2]| ((a[0] - b[0]).powi(2) + (a[1] - b[1]).powi(2)).sqrt();
-    let g_well: Vec<f64> = (0..nw)
-        .map(|a| (0..nw).filter(|&b| c.well_fold[b] != c.well_fold[a]).map(|b| planar(c.wells_xy[a], c.wells_xy[b])).fold(f64::INFINITY, f64::min) / spacing)
-        .collect();
-    let mut out = Vec::new();
-    let lobe = &regions[0].1;
-    let cap = regions.get(1).map(|r| &r.1);
-    for space in [0usize, 3, 4, 6, 8] {
-        let (wp, np) = if space == 0 {
-            (wz.clone(), nz.clone())
-        } else {
-            let proj = |m: &Array2<f64>| {
-                let mut p = (m - &nm).dot(&vecs.slice(ndarray::s![.., 0..space]));
-                for j in 0..space {
-                    let s = vals[j].sqrt();
-                    p.column_mut(j).mapv_inplace(|v| v / s);
-                }
-                p
-            };
-            (proj(&wz), proj(&nz))
-        };
-        let d = |a: ndarray::ArrayView1<f64>, b: ndarray::ArrayView1<f64>| {
-            a.iter().zip(b).map(|(x, y)| (x - y) * (x - y)).sum::<f64>().sqrt()
-        };
-        let mut sum = 0.0;
-        let mut pairs = 0;
-        for a in 0..nw { for b in a + 1..nw { sum += d(wp.row(a), wp.row(b)); pairs += 1; } }
-        let md = sum / pairs as f64;
-        for kn in [1usize, 3] {
-            let knn = |mut v: Vec<f64>| {
-                v.sort_by(f64::total_cmp);
-                v.iter().take(kn).sum::<f64>() / kn as f64
-            };
-            let h_well: Vec<f64> = (0..nw)
-                .map(|a| knn((0..nw).filter(|&b| c.well_fold[b] != c.well_fold[a]).map(|b| d(wp.row(a), wp.row(b))).collect()) / md)
-                .collect();
-            let h_node: Vec<f64> = (0..n)
-                .map(|i| if np.row(i).iter().all(|v| v.is_finite()) { knn((0..nw).map(|w| d(np.row(i), wp.row(w))).collect()) / md } else { f64::NAN })
-                .collect();
-            for e in [1.0f64, 2.0, 3.0] {
-                let sw: Vec<f64> = (0..nw).map(|a| g_well[a] * h_well[a].powf(e)).collect();
-                let th = applicability::upper_whisker(&sw);
-                let flag: Vec<bool> = (0..n).map(|i| c.distance[i] * h_node[i].powf(e) > th).collect();
-                let (mut tp, mut fp, mut ln, mut ctp, mut cn, mut near, mut near_in) = (0, 0, 0, 0, 0, 0, 0);
-                for i in 0..n {
-                    let in_cap = cap.is_some_and(|r| r[i]);
-                    if lobe[i] { ln += 1; tp += usize::from(flag[i]); }
-                    else if in_cap { cn += 1; ctp += usize::from(flag[i]); }
-                    else { fp += usize::from(flag[i]); }
-                    if c.distance[i] <= 1.0 { near += 1; near_in += usize::from(!flag[i]); }
-                }
-                out.push((
-                    format!("pca{space} k{kn} e{e}"),
-                    tp as f64 / ln.max(1) as f64,
-                    tp as f64 / (tp + fp).max(1) as f64,
-                    ctp as f64 / cn.max(1) as f64,
-                    near_in as f64 / near.max(1) as f64,
-                ));
-            }
-        }
-    }
-    let _ = &c.nodes_xy;
-    out
-}
-
-
-/// Experiment: share of a node's nearest reference nodes in history space (not within one
-/// spacing of it) that lie within one spacing of a well.
-fn knn_share(c: &Checked, regions: &[(String, Vec<bool>)]) {
-    let q = c.well_hist.ncols();
-    let mean: Vec<f64> = (0..q).map(|k| c.well_hist.column(k).mean().unwrap()).collect();
-    let sd: Vec<f64> = (0..q).map(|k| c.well_hist.column(k).std(1.0).max(1e-12)).collect();
-    let n = c.node_hist.nrows();
-    let z: Vec<Vec<f64>> = (0..n).map(|i| (0..q).map(|k| (c.node_hist[[i, k]] - mean[k]) / sd[k]).collect()).collect();
-    let refs: Vec<usize> = (0..n).step_by(3).filter(|&i| z[i].iter().all(|v| v.is_finite())).collect();
-    let kn = 40;
-    let sp = c.spacing;
-    let share: Vec<f64> = (0..n).into_par_iter().map(|i| {
-        if !z[i].iter().all(|v| v.is_finite()) { return f64::NAN; }
-        let mut d: Vec<(f64, usize)> = refs.iter().filter(|&&r| {
-            let (a, b) = (c.nodes_xy[i], c.nodes_xy[r]);
-            ((a[0]-b[0]).powi(2) + (a[1]-b[1]).powi(2)).sqrt() > sp
-        }).map(|&r| (z[i].iter().zip(&z[r]).map(|(x, y)| (x-y)*(x-y)).sum::<f64>(), r)).collect();
-        d.select_nth_unstable_by(kn, |a, b| a.0.total_cmp(&b.0));
-        d[..kn].iter().filter(|(_, r)| c.distance[*r] <= 1.0).count() as f64 / kn as f64
-    }).collect();
-    let in_any = |i: usize| regions.iter().any(|r| r.1[i]);
-    let mut line = String::from("  knn near-well share:");
-    for r in regions {
-        line.push_str(&format!("  {} {}", r.0, quant((0..n).filter(|&i| r.1[i]).map(|i| share[i]).collect())));
-    }
-    line.push_str(&format!("  other>1.5 {}", quant((0..n).filter(|&i| !in_any(i) && c.distance[i] > 1.5).map(|i| share[i]).collect())));
-    line.push_str(&format!("  other<=1 {}", quant((0..n).filter(|&i| !in_any(i) && c.distance[i] <= 1.0).map(|i| share[i]).collect())));
-    println!("{line}");
-    for th in [0.1, 0.2, 0.3] {
-        let f: Vec<bool> = share.iter().map(|&s| s < th).collect();
-        let (mut tp, mut fp, mut ln, mut ctp, mut cn, mut near, mut nin) = (0, 0, 0, 0, 0, 0, 0);
-        for i in 0..n {
-            if regions[0].1[i] { ln += 1; tp += usize::from(f[i]); }
-            else if regions.get(1).is_some_and(|r| r.1[i]) { cn += 1; ctp += usize::from(f[i]); }
-            else { fp += usize::from(f[i]); }
-            if c.distance[i] <= 1.0 { near += 1; nin += usize::from(!f[i]); }
-        }
-        println!("   share < {th}: lobe {:.2}/{:.2} cap {:.2} near {:.3}", tp as f64 / ln as f64, tp as f64 / (tp + fp).max(1) as f64, ctp as f64 / cn.max(1) as f64, nin as f64 / near as f64);
     }
 }
 
@@ -741,12 +469,14 @@ fn main() {
     let mut cache = PathBuf::from("target/applicability_probe");
     let mut demo: Option<PathBuf> = None;
     let mut gas_cap = true;
+    let mut show_diag = false;
     let mut args = std::env::args().skip(1);
     while let Some(a) = args.next() {
         match a.as_str() {
             "--cache" => cache = PathBuf::from(args.next().expect("--cache FOLDER")),
             "--demo" => demo = Some(PathBuf::from(args.next().expect("--demo FOLDER"))),
             "--no-gas-cap" => gas_cap = false,
+            "--diag" => show_diag = true,
             "--wells" => wells = args.next().and_then(|v| v.parse().ok()).expect("--wells N"),
             s => seeds.push(s.parse().expect("a seed, --wells N, --cache or --demo")),
         }
@@ -755,7 +485,7 @@ fn main() {
         seeds = vec![1, 2, 3, 4, 5];
     }
     for seed in seeds {
-        seed_report(seed, wells, &cache, gas_cap);
+        seed_report(seed, wells, &cache, gas_cap, show_diag);
     }
     if let Some(d) = demo {
         demo_report(&d);

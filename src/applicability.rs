@@ -277,8 +277,7 @@ impl Applicability {
                         }
                         z[c] = (v - self.mean[c]) / self.scale[c] * self.weight[c];
                         let tol = m * (self.max[c] - self.min[c]);
-                        if self.range_checked[c]
-                            && (v < self.min[c] - tol || v > self.max[c] + tol)
+                        if self.range_checked[c] && (v < self.min[c] - tol || v > self.max[c] + tol)
                         {
                             outside += 1;
                         }

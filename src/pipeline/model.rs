@@ -261,6 +261,67 @@ impl SavedModel {
     }
 }
 
+/// Per step, the nodes with data within one well spacing (of the ground check, else the median
+/// nearest-neighbour distance of the model's wells) of an injector (wells CSV `kind`), and how
+/// many of them are flagged for each reason; empty without injectors.
+pub fn injector_cores(
+    survey: &crate::project::Survey,
+    model: &SavedModel,
+    steps: &[StepMaps],
+) -> Vec<crate::report::area::InjectorCores> {
+    use crate::applicability::{REASON_BOTH, REASON_NO_DATA, REASON_RANGE, REASON_UNLIKE};
+    let mut injectors: Vec<(f64, f64)> = survey
+        .wells
+        .iter()
+        .filter(|w| w.kind == Some(crate::io::wells::WellKind::Injector))
+        .map(|w| (w.x, w.y))
+        .collect();
+    injectors.dedup();
+    if injectors.is_empty() {
+        return Vec::new();
+    }
+    let spacing = model.ground.as_ref().map_or_else(
+        || {
+            let xy: Vec<[f64; 2]> = model.wells.iter().map(|w| [w.1, w.2]).collect();
+            crate::applicability::well_spacing(&xy)
+        },
+        |g| g.spacing,
+    );
+    let near: Vec<bool> = survey
+        .project
+        .grid
+        .node_coordinates()
+        .iter()
+        .map(|&(x, y)| {
+            injectors
+                .iter()
+                .any(|w| (w.0 - x).hypot(w.1 - y) <= spacing)
+        })
+        .collect();
+    model
+        .step_names
+        .iter()
+        .zip(steps)
+        .map(|(name, maps)| {
+            let codes: Vec<u8> = maps
+                .reasons
+                .iter()
+                .zip(&near)
+                .filter(|(c, n)| **n && **c != REASON_NO_DATA)
+                .map(|(c, _)| *c)
+                .collect();
+            let count = |code: u8| codes.iter().filter(|&&c| c == code).count();
+            crate::report::area::InjectorCores {
+                step: name.clone(),
+                nodes: codes.len(),
+                unlike: count(REASON_UNLIKE),
+                range: count(REASON_RANGE),
+                both: count(REASON_BOTH),
+            }
+        })
+        .collect()
+}
+
 /// File-name labels (`pNN`) of the lower and upper band edges for a convention and level.
 pub fn band_labels(convention: Convention, level: f64) -> (String, String) {
     let tail = (100.0 * (1.0 - level) / 2.0).round() as i64;

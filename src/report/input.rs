@@ -42,6 +42,9 @@ pub struct ReportInput {
     pub infill: Option<InfillSection>,
     /// Scores against truth maps (synthetic projects), when computed.
     pub truth: Option<TruthSection>,
+    /// Nodes next to injectors outside the area of applicability, per step.
+    #[serde(default)]
+    pub injector_cores: Vec<super::area::InjectorCores>,
 }
 
 /// Run metadata.

@@ -20,13 +20,16 @@ fn reason_maps_agree_with_the_area_and_say_what_the_codes_mean() {
     let grid = project::Project::load(&f.project).unwrap().grid;
     let run: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(f.out.join("run.json")).unwrap()).unwrap();
-    let codes_text = run["area_reason_codes"].as_str().expect("codes in run.json");
+    let codes_text = run["area_reason_codes"]
+        .as_str()
+        .expect("codes in run.json");
     assert!(codes_text.contains("1 unlike every well") && codes_text.contains("3 both"));
     for step in ["m1", "m2", "m3"] {
         let tif = f.out.join(format!("maps/{step}/area_reason.tif"));
         let codes = geotiff::read_on_grid(&tif, &grid).unwrap();
-        let inside = geotiff::read_on_grid(&f.out.join(format!("maps/{step}/applicable.tif")), &grid)
-            .unwrap();
+        let inside =
+            geotiff::read_on_grid(&f.out.join(format!("maps/{step}/applicable.tif")), &grid)
+                .unwrap();
         // GDAL's nodata (255) reads back as NaN; inside exactly where the code is 0.
         for (c, a) in codes.iter().zip(&inside) {
             assert!(c.is_nan() || [0.0, 1.0, 2.0, 3.0].contains(c), "code {c}");
@@ -59,11 +62,9 @@ fn reason_maps_agree_with_the_area_and_say_what_the_codes_mean() {
         );
         let text = String::from_utf8_lossy(&out.stdout);
         assert!(text.contains("unlike every well"), "codes in the metadata");
-        let aux = std::fs::read_to_string(
-            f.out
-                .join(format!("maps/{step}/area_reason.xyz.aux.xml")),
-        )
-        .unwrap();
+        let aux =
+            std::fs::read_to_string(f.out.join(format!("maps/{step}/area_reason.xyz.aux.xml")))
+                .unwrap();
         assert!(aux.contains("outside the training range"));
     }
 }
@@ -102,7 +103,10 @@ fn saved_models_carry_the_ground_check_and_old_ones_still_load() {
     v["format"] = 99.into();
     std::fs::write(&old, serde_json::to_string(&v).unwrap()).unwrap();
     let e = SavedModel::load(&old).unwrap_err().to_string();
-    assert!(e.contains("model format 99") && e.contains("model.json"), "{e}");
+    assert!(
+        e.contains("model format 99") && e.contains("model.json"),
+        "{e}"
+    );
 }
 
 /// Recall and precision of the run's area (every step pooled) in each region, and the share of
@@ -152,7 +156,9 @@ fn run_area(settings: &SynthSettings, dir: &Path) -> (Vec<(String, f64, f64)>, f
         .iter()
         .map(|(name, m)| {
             let size = (0..flagged.len()).filter(|&k| m[k % n]).count();
-            let hit = (0..flagged.len()).filter(|&k| m[k % n] && flagged[k]).count();
+            let hit = (0..flagged.len())
+                .filter(|&k| m[k % n] && flagged[k])
+                .count();
             (
                 name.clone(),
                 hit as f64 / size as f64,

@@ -403,5 +403,6 @@ pub fn sample_input(dir: &Path) -> ReportInput {
                 caption: String::new(),
             }],
         }),
+        injector_cores: Vec::new(),
     }
 }
