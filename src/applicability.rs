@@ -38,6 +38,17 @@
 //! is the upper whisker of the scores the wells get in cross-validation: each well against the
 //! wells outside its fold.
 //!
+//! # The area the main job writes
+//!
+//! A node is outside the area when its row DI exceeds the threshold, when [`Ground`] flags its
+//! location, or when an attribute lies beyond the wells' range by more than [`RANGE_MARGIN`] of
+//! that range's width ([`Applicability::with_range_margin`]; the plain range flagged scattered
+//! nodes next to wells for the ends of a range that a few hundred noisy rows set). Density-based
+//! alternatives on the histories (whitened principal components, k nearest wells, the share of
+//! a node's nearest nodes in history space that lie near wells, after the local outlier factor
+//! of Breunig, Kriegel, Ng & Sander 2000, "LOF: identifying density-based local outliers", ACM
+//! SIGMOD) were measured and not kept (DEVELOPERS.md).
+//!
 //! # Why a node is flagged ([`Applicability::reasons`])
 //!
 //! Each node gets one code: [`REASON_INSIDE`] (0) inside the area; [`REASON_UNLIKE`] (1) unlike

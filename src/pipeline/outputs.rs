@@ -497,49 +497,7 @@ pub fn write_step_maps(
         ),
         "count",
     )?;
-    // The reason codes: an 8-bit GeoTIFF; XYZ text like the other maps (no data as null).
-    let reason_name = format!("maps/{step}/{AREA_REASON_MAP}");
-    let reason_desc = serde_json::json!({
-        "tidemark": env!("CARGO_PKG_VERSION"),
-        "step": step,
-        "quantity": "why a node is outside the area of applicability",
-        "unit": "code",
-        "codes": AREA_REASON_CODES,
-    })
-    .to_string();
-    let mut reason_tif = None;
-    for path in w.reserve_map(&reason_name)? {
-        if io::is_geotiff(&path) {
-            reason_tif = Some(path);
-        } else {
-            let values = maps
-                .reasons
-                .iter()
-                .map(|&c| {
-                    if c == crate::applicability::REASON_NO_DATA {
-                        f64::NAN
-                    } else {
-                        f64::from(c)
-                    }
-                })
-                .collect();
-            jobs.push((path, values, reason_desc.clone()));
-        }
-    }
-    entries.push(MapEntry {
-        name: reason_name,
-        quantity: format!("why a node is outside the area of applicability: {AREA_REASON_CODES}"),
-        unit: "code".into(),
-    });
-    if let Some(path) = reason_tif {
-        io::geotiff::write_u8(
-            &path,
-            grid,
-            &maps.reasons,
-            crate::applicability::REASON_NO_DATA,
-            Some(&reason_desc),
-        )?;
-    }
+    entries.push(write_reason_map(w, grid, step, &maps.reasons)?);
     let coords = jobs
         .iter()
         .any(|(path, _, _)| !io::is_geotiff(path))
@@ -550,6 +508,48 @@ pub fn write_step_maps(
         })
         .collect::<Result<Vec<()>, _>>()?;
     Ok(entries)
+}
+
+/// Writes the reason codes of one step (`maps/<step>/area_reason`): an 8-bit GeoTIFF, XYZ text
+/// like the other maps (no data as the grid's null value); returns its metadata entry.
+fn write_reason_map(
+    w: &mut Writer,
+    grid: &Grid,
+    step: &str,
+    reasons: &[u8],
+) -> Result<MapEntry, PipelineError> {
+    use crate::applicability::REASON_NO_DATA;
+    let name = format!("maps/{step}/{AREA_REASON_MAP}");
+    let desc = serde_json::json!({
+        "tidemark": env!("CARGO_PKG_VERSION"),
+        "step": step,
+        "quantity": "why a node is outside the area of applicability",
+        "unit": "code",
+        "codes": AREA_REASON_CODES,
+    })
+    .to_string();
+    for path in w.reserve_map(&name)? {
+        if io::is_geotiff(&path) {
+            io::geotiff::write_u8(&path, grid, reasons, REASON_NO_DATA, Some(&desc))?;
+        } else {
+            let values: Vec<f64> = reasons
+                .iter()
+                .map(|&c| {
+                    if c == REASON_NO_DATA {
+                        f64::NAN
+                    } else {
+                        f64::from(c)
+                    }
+                })
+                .collect();
+            io::write_map(&path, grid, &values, Some(&desc))?;
+        }
+    }
+    Ok(MapEntry {
+        name,
+        quantity: format!("why a node is outside the area of applicability: {AREA_REASON_CODES}"),
+        unit: "code".into(),
+    })
 }
 
 /// The area-of-applicability flag (1 inside, 0 outside) and the count of attributes outside the
