@@ -1,22 +1,26 @@
-//! Probe of the area of applicability on generated fields with the well-free lobe.
+//! Probe of the area of applicability on generated fields with ground no well samples.
 //!
-//! For each seed: generate the default synthetic field (kept in a cache folder and reused), load it
-//! as a project, extract the training rows, weigh the features by permutation importance as the
-//! main job does, fit the area of applicability (`Applicability`, one row per node and step) and
-//! the ground check (`Ground`, one history per location), and assess every node of every step.
-//! Prints, per seed and pooled over steps, for the row check alone, the ground check alone and
-//! both: recall (share of lobe nodes flagged), precision (share of flagged nodes inside the lobe)
-//! and the share of nodes within one well spacing of a well that lie inside the area. The lobe is
-//! the synthetic model's lobe weight >= 0.5 (the same as `truth/masks/lobe.tif` where a project
-//! has it).
+//! For each seed: generate the default synthetic field with the well-free lobe and (unless
+//! `--no-gas-cap`) the drained culmination (kept in a cache folder and reused), load it as a
+//! project, extract the training rows, weigh the features by permutation importance as the main
+//! job does, fit the row check (`Applicability` with the main job's range tolerance, one row per
+//! node and step) and the ground check (`Ground`, one history per location), and assess every node
+//! of every step. Prints, pooled over steps, for the row check alone, the ground check alone and
+//! both (the area the main job writes), per region (`truth/masks/<region>.tif`: lobe, gas_cap):
+//! recall (share of the region's nodes flagged) / precision (flagged nodes in the region over
+//! those plus flagged nodes outside every region), and the share of nodes within one well spacing
+//! of a well that lie inside the area; then the same for other range tolerances and per step.
+//! `--diag` adds, per region and for other ground, quantiles of the distance to wells (in
+//! spacings), of the history dissimilarity and of the row DI, and per attribute and step the
+//! share of nodes outside the wells' range and their mean standardised value.
 //!
 //! With `--demo FOLDER` (a `tidemark synth` project, e.g. demo-data) it also reports the swept
 //! cores next to injectors: nodes within one well spacing of an injector whose true dSw gain
 //! exceeds 0.1, the share of them flagged and why (reason codes).
 //!
 //! Run: `cargo run --release --example applicability_probe -- [SEEDS...] [--wells N]
-//! [--cache FOLDER] [--demo FOLDER]` (default seeds 1 2 3, 45 wells, cache
-//! target/applicability_probe).
+//! [--no-gas-cap] [--diag] [--cache FOLDER] [--demo FOLDER]` (default seeds 1 to 5, 45 wells,
+//! cache target/applicability_probe).
 use ndarray::{Array2, Axis};
 use std::path::{Path, PathBuf};
 use tidemark::applicability::{
@@ -76,10 +80,19 @@ struct Checked {
     codes_rows: Vec<Vec<u8>>,
     /// `codes_both[step][node]`: rows and ground.
     codes_both: Vec<Vec<u8>>,
+    /// Outside the range widened by 5 % / 10 % / 20 % of the range on each side, per step and node.
+    range_margin: Vec<[bool; 3]>,
     /// Ground flag per node.
     ground: Vec<bool>,
     /// Distance to the nearest well, in spacings, per node.
     distance: Vec<f64>,
+    /// History dissimilarity per node.
+    history: Vec<f64>,
+    /// Row DI per step and node.
+    row_di: Vec<Vec<f64>>,
+    /// Standardised well histories (wells x columns) and node histories (nodes x columns).
+    well_hist: Array2<f64>,
+    node_hist: Array2<f64>,
     spacing: f64,
     n_wells: usize,
     row_threshold: f64,
@@ -98,8 +111,10 @@ fn check(l: &Loaded) -> Checked {
     let fold = folds::assign(&ts.group, &ts.xy, method, c.folds, seed);
     let p = ts.x.ncols();
     let imp = importance(l);
+    // The row check as the main job fits it: the range check with its tolerance.
     let aoa = Applicability::fit(&ts.feature_names, ts.x.view(), &imp, &fold, &vec![true; p])
-        .expect("fit the area of applicability");
+        .expect("fit the area of applicability")
+        .with_range_margin(applicability::RANGE_MARGIN);
     // one position, history and fold per well (its first row)
     let mut wells_xy: Vec<[f64; 2]> = Vec::new();
     let mut well_fold = Vec::new();
@@ -128,8 +143,25 @@ fn check(l: &Loaded) -> Checked {
     );
     let mut codes_rows = Vec::new();
     let mut codes_both = Vec::new();
+    let mut row_di = Vec::new();
+    let mut range_margin = Vec::new();
+    let node_hist = applicability::node_histories(&l.survey.maps, grid.len());
     for step in 0..l.survey.maps.len() {
         let a = aoa.assess(sample::node_features(&l.survey, step).view());
+        row_di.push(a.di.clone());
+        let xf = sample::node_features(&l.survey, step);
+        for r in 0..xf.nrows() {
+            let mut o = [false; 3];
+            for (k, m) in [0.05, 0.1, 0.2].iter().enumerate() {
+                o[k] = (0..p).any(|c| {
+                    // widths beyond the plain range (the run's tolerance is 10 %)
+                    let w = m * (aoa.max[c] - aoa.min[c]);
+                    let v = xf[[r, c]];
+                    v < aoa.min[c] - w || v > aoa.max[c] + w
+                });
+            }
+            range_margin.push(o);
+        }
         codes_rows.push(aoa.reasons(&a, None));
         codes_both.push(aoa.reasons(&a, Some(&g.unlike)));
     }
@@ -138,6 +170,11 @@ fn check(l: &Loaded) -> Checked {
         codes_both,
         ground: g.unlike,
         distance: g.distance,
+        history: g.dissimilarity,
+        row_di,
+        range_margin,
+        well_hist: hist,
+        node_hist,
         spacing: ground.spacing,
         n_wells: wells_xy.len(),
         row_threshold: aoa.threshold,
@@ -145,16 +182,31 @@ fn check(l: &Loaded) -> Checked {
     }
 }
 
-/// Recall, precision and near-well inside share of a flag rule `flag(step, node)`.
-fn rates(c: &Checked, lobe: &[bool], steps: usize, flag: &dyn Fn(usize, usize) -> bool) -> String {
-    let (mut tp, mut fp, mut ln, mut near, mut near_in) = (0usize, 0usize, 0usize, 0usize, 0usize);
+/// Recall, precision and near-well inside share of a flag rule `flag(step, node)`, pooled over
+/// steps, for each region: recall is the share of the region's nodes flagged; precision the share
+/// of flagged nodes that lie in the region among those in the region or outside every region (a
+/// flag in the other region counts neither for nor against); `all` pools the regions.
+fn rates(
+    c: &Checked,
+    regions: &[(String, Vec<bool>)],
+    steps: usize,
+    flag: &dyn Fn(usize, usize) -> bool,
+) -> String {
+    let n = c.distance.len();
+    let in_any = |i: usize| regions.iter().any(|r| r.1[i]);
+    let (mut fp, mut near, mut near_in) = (0usize, 0usize, 0usize);
+    let mut tp = vec![0usize; regions.len()];
+    let mut size = vec![0usize; regions.len()];
     for s in 0..steps {
-        for (i, &in_lobe) in lobe.iter().enumerate() {
+        for i in 0..n {
             let f = flag(s, i);
-            if in_lobe {
-                ln += 1;
-                tp += usize::from(f);
-            } else {
+            for (k, r) in regions.iter().enumerate() {
+                if r.1[i] {
+                    size[k] += 1;
+                    tp[k] += usize::from(f);
+                }
+            }
+            if !in_any(i) {
                 fp += usize::from(f);
             }
             if c.distance[i] <= 1.0 {
@@ -163,66 +215,200 @@ fn rates(c: &Checked, lobe: &[bool], steps: usize, flag: &dyn Fn(usize, usize) -
             }
         }
     }
-    format!(
-        "recall {:.3}  precision {:.3}  near-well inside {:.3}",
-        tp as f64 / ln.max(1) as f64,
-        tp as f64 / (tp + fp).max(1) as f64,
+    let mut out = String::new();
+    for (k, r) in regions.iter().enumerate() {
+        out.push_str(&format!(
+            "{} {:.2}/{:.2}  ",
+            r.0,
+            tp[k] as f64 / size[k].max(1) as f64,
+            tp[k] as f64 / (tp[k] + fp).max(1) as f64
+        ));
+    }
+    let (ta, sa): (usize, usize) = (tp.iter().sum(), size.iter().sum());
+    out.push_str(&format!(
+        "all {:.2}/{:.2}  near-well inside {:.3}",
+        ta as f64 / sa.max(1) as f64,
+        ta as f64 / (ta + fp).max(1) as f64,
         near_in as f64 / near.max(1) as f64
-    )
+    ));
+    out
 }
 
-fn seed_report(seed: u64, wells: usize, cache: &Path) {
+fn seed_report(seed: u64, wells: usize, cache: &Path, gas_cap: bool, show_diag: bool) {
     let settings = SynthSettings {
         seed,
         wells,
+        gas_cap,
         ..SynthSettings::default()
     };
-    let dir = cache.join(format!("seed-{seed}-wells-{wells}"));
+    let dir = cache.join(format!(
+        "seed-{seed}-wells-{wells}{}",
+        if gas_cap { "-gas-cap" } else { "" }
+    ));
     if !dir.join("project.toml").exists() {
         let f = generate(&settings).expect("generate the field");
         write_project(&f, &settings, &dir).expect("write the field");
     }
     let l = load(&dir);
     let model = SynthModel::build(&settings).expect("synthetic model");
-    let lobe: Vec<bool> = model.reservoir.lobe.iter().map(|&w| w >= 0.5).collect();
+    // The regions as `truth/masks/<region>.tif` holds them (weight >= 0.5).
+    let regions: Vec<(String, Vec<bool>)> = model
+        .reservoir
+        .masks()
+        .into_iter()
+        .map(|(name, m)| (name, m.iter().map(|&v| v == 1.0).collect()))
+        .collect();
     let c = check(&l);
     let steps = l.survey.maps.len();
     println!(
-        "seed {seed}: {} wells, spacing {:.0} m, row threshold {:.3}, ground threshold {:.3}",
+        "seed {seed}: {} wells, spacing {:.0} m, row threshold {:.3}, ground threshold {:.3}; \
+         recall/precision per region",
         c.n_wells, c.spacing, c.row_threshold, c.ground_threshold
     );
     println!(
         "  rows (DI + range)   {}",
-        rates(&c, &lobe, steps, &|s, i| c.codes_rows[s][i]
+        rates(&c, &regions, steps, &|s, i| c.codes_rows[s][i]
             != REASON_INSIDE)
     );
     println!(
         "  ground              {}",
-        rates(&c, &lobe, steps, &|_, i| c.ground[i])
+        rates(&c, &regions, steps, &|_, i| c.ground[i])
     );
     println!(
         "  rows + ground       {}",
-        rates(&c, &lobe, steps, &|s, i| c.codes_both[s][i]
+        rates(&c, &regions, steps, &|s, i| c.codes_both[s][i]
             != REASON_INSIDE)
     );
-    print!("  per step (rows + ground) recall/precision:");
-    for s in 0..steps {
-        let (mut tp, mut fl, mut ln) = (0, 0, 0);
-        for (i, &in_lobe) in lobe.iter().enumerate() {
-            let f = c.codes_both[s][i] != REASON_INSIDE;
-            fl += usize::from(f);
-            if in_lobe {
-                ln += 1;
-                tp += usize::from(f);
-            }
-        }
-        print!(
-            " {:.2}/{:.2}",
-            tp as f64 / ln as f64,
-            tp as f64 / fl.max(1) as f64
+    println!(
+        "  ground + DI only    {}",
+        rates(&c, &regions, steps, &|s, i| c.ground[i]
+            || c.codes_rows[s][i] & 1 == 1)
+    );
+    println!(
+        "  ground + range only {}",
+        rates(&c, &regions, steps, &|s, i| c.ground[i]
+            || c.codes_rows[s][i] & 2 == 2)
+    );
+    let nn = c.distance.len();
+    for (k, m) in ["5%", "10%", "20%"].iter().enumerate() {
+        println!(
+            "  ground+DI+range{m:3} {}",
+            rates(&c, &regions, steps, &|s, i| c.ground[i]
+                || c.codes_rows[s][i] & 1 == 1
+                || c.range_margin[s * nn + i][k])
         );
     }
-    println!();
+    if show_diag {
+        diag(&c, &regions, &l.survey.project.attribute_names);
+    }
+    for s in 0..steps {
+        println!(
+            "    step {s} (rows + ground) {}",
+            rates(&c, &regions, 1, &|_, i| c.codes_both[s][i] != REASON_INSIDE)
+        );
+    }
+}
+
+fn quant(mut v: Vec<f64>) -> String {
+    v.retain(|x| x.is_finite());
+    v.sort_by(f64::total_cmp);
+    if v.is_empty() {
+        return "-".into();
+    }
+    let q = |p: f64| v[((v.len() - 1) as f64 * p).round() as usize];
+    format!("{:.2}/{:.2}/{:.2}", q(0.1), q(0.5), q(0.9))
+}
+
+/// Diagnostics: per group of nodes, quantiles of distance, history DI and row DI, and per
+/// history column the share outside the wells' range.
+fn diag(c: &Checked, regions: &[(String, Vec<bool>)], names: &[String]) {
+    let n = c.distance.len();
+    let in_any = |i: usize| regions.iter().any(|r| r.1[i]);
+    let mut groups: Vec<(String, Vec<usize>)> = regions
+        .iter()
+        .map(|r| (r.0.clone(), (0..n).filter(|&i| r.1[i]).collect()))
+        .collect();
+    groups.push((
+        "other g>1.5".into(),
+        (0..n)
+            .filter(|&i| !in_any(i) && c.distance[i] > 1.5)
+            .collect(),
+    ));
+    groups.push((
+        "other g<=1".into(),
+        (0..n)
+            .filter(|&i| !in_any(i) && c.distance[i] <= 1.0)
+            .collect(),
+    ));
+    let q = c.well_hist.ncols();
+    let lo: Vec<f64> = (0..q)
+        .map(|k| {
+            c.well_hist
+                .column(k)
+                .iter()
+                .copied()
+                .fold(f64::INFINITY, f64::min)
+        })
+        .collect();
+    let hi: Vec<f64> = (0..q)
+        .map(|k| {
+            c.well_hist
+                .column(k)
+                .iter()
+                .copied()
+                .fold(f64::NEG_INFINITY, f64::max)
+        })
+        .collect();
+    let mean: Vec<f64> = (0..q)
+        .map(|k| c.well_hist.column(k).mean().unwrap())
+        .collect();
+    let sd: Vec<f64> = (0..q).map(|k| c.well_hist.column(k).std(1.0)).collect();
+    for (name, idx) in &groups {
+        let g: Vec<f64> = idx.iter().map(|&i| c.distance[i]).collect();
+        let h: Vec<f64> = idx.iter().map(|&i| c.history[i]).collect();
+        let r: Vec<f64> = idx
+            .iter()
+            .map(|&i| {
+                c.row_di
+                    .iter()
+                    .map(|d| d[i])
+                    .fold(f64::NEG_INFINITY, f64::max)
+            })
+            .collect();
+        println!(
+            "  {name:12} n {:5}  g {}  h {}  max row DI {}",
+            idx.len(),
+            quant(g),
+            quant(h),
+            quant(r)
+        );
+        let mut line = String::from("     out/meanz:");
+        for k in 0..q {
+            let out = idx
+                .iter()
+                .filter(|&&i| {
+                    let v = c.node_hist[[i, k]];
+                    v < lo[k] || v > hi[k]
+                })
+                .count() as f64
+                / idx.len().max(1) as f64;
+            let mz = idx
+                .iter()
+                .map(|&i| (c.node_hist[[i, k]] - mean[k]) / sd[k])
+                .sum::<f64>()
+                / idx.len().max(1) as f64;
+            line.push_str(&format!(
+                " {}:{:.2}/{:+.1}",
+                names[k % names.len()],
+                out,
+                mz
+            ));
+            if k % names.len() == names.len() - 1 {
+                println!("{line}");
+                line = String::from("               ");
+            }
+        }
+    }
 }
 
 fn demo_report(dir: &Path) {
@@ -282,20 +468,24 @@ fn main() {
     let mut wells = SynthSettings::default().wells;
     let mut cache = PathBuf::from("target/applicability_probe");
     let mut demo: Option<PathBuf> = None;
+    let mut gas_cap = true;
+    let mut show_diag = false;
     let mut args = std::env::args().skip(1);
     while let Some(a) = args.next() {
         match a.as_str() {
             "--cache" => cache = PathBuf::from(args.next().expect("--cache FOLDER")),
             "--demo" => demo = Some(PathBuf::from(args.next().expect("--demo FOLDER"))),
+            "--no-gas-cap" => gas_cap = false,
+            "--diag" => show_diag = true,
             "--wells" => wells = args.next().and_then(|v| v.parse().ok()).expect("--wells N"),
             s => seeds.push(s.parse().expect("a seed, --wells N, --cache or --demo")),
         }
     }
     if seeds.is_empty() && demo.is_none() {
-        seeds = vec![1, 2, 3];
+        seeds = vec![1, 2, 3, 4, 5];
     }
     for seed in seeds {
-        seed_report(seed, wells, &cache);
+        seed_report(seed, wells, &cache, gas_cap, show_diag);
     }
     if let Some(d) = demo {
         demo_report(&d);

@@ -124,9 +124,10 @@ fn perturbed_run(
     };
     let mut w = Writer::new(out, &project.input_paths(), formats)?;
     let node_xy = project.grid.node_coordinates();
+    let ground = model.ground_flags(&survey, 0..project.grid.len())?;
     for (s, step) in project.steps.iter().enumerate() {
         let x = sample::node_features(&survey, s);
-        let maps = model.predict(x.view(), &node_xy)?;
+        let maps = model.predict(x.view(), &node_xy, ground.as_deref())?;
         write_step_maps(&mut w, &model, &project.grid, &step.name, &maps)?;
     }
     model.save(&w.root.join("model.json"))?;

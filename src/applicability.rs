@@ -38,6 +38,17 @@
 //! is the upper whisker of the scores the wells get in cross-validation: each well against the
 //! wells outside its fold.
 //!
+//! # The area the main job writes
+//!
+//! A node is outside the area when its row DI exceeds the threshold, when [`Ground`] flags its
+//! location, or when an attribute lies beyond the wells' range by more than [`RANGE_MARGIN`] of
+//! that range's width ([`Applicability::with_range_margin`]; the plain range flagged scattered
+//! nodes next to wells for the ends of a range that a few hundred noisy rows set). Density-based
+//! alternatives on the histories (whitened principal components, k nearest wells, the share of
+//! a node's nearest nodes in history space that lie near wells, after the local outlier factor
+//! of Breunig, Kriegel, Ng & Sander 2000, "LOF: identifying density-based local outliers", ACM
+//! SIGMOD) were measured and not kept (DEVELOPERS.md).
+//!
 //! # Why a node is flagged ([`Applicability::reasons`])
 //!
 //! Each node gets one code: [`REASON_INSIDE`] (0) inside the area; [`REASON_UNLIKE`] (1) unlike
@@ -96,6 +107,11 @@ pub struct Applicability {
     pub max: Vec<f64>,
     /// Features that take part in the range check (e.g. not the step index).
     pub range_checked: Vec<bool>,
+    /// Tolerance of the range check as a fraction of each feature's training width: a value
+    /// counts as outside the training range only beyond `[min - m w, max + m w]` (`w = max -
+    /// min`). 0 (the default, and what models saved without it hold) is the plain range.
+    #[serde(default)]
+    pub range_margin: f64,
 }
 
 /// What the applicability model says about a set of locations.
@@ -222,7 +238,19 @@ impl Applicability {
             min,
             max,
             range_checked: range_checked.to_vec(),
+            range_margin: 0.0,
         })
+    }
+
+    /// The same model with a range-check tolerance of `margin` (a fraction of each feature's
+    /// training width, see [`Applicability::range_margin`]; negative or non-finite values give 0).
+    pub fn with_range_margin(mut self, margin: f64) -> Self {
+        self.range_margin = if margin.is_finite() && margin > 0.0 {
+            margin
+        } else {
+            0.0
+        };
+        self
     }
 
     /// Number of features.
@@ -249,6 +277,7 @@ impl Applicability {
                 let mut out = Vec::with_capacity(CHUNK);
                 for r in c * CHUNK..((c + 1) * CHUNK).min(n) {
                     let row = x.row(r);
+                    let m = self.range_margin;
                     let mut outside = 0u32;
                     let mut finite = true;
                     for c in 0..p {
@@ -258,7 +287,9 @@ impl Applicability {
                             break;
                         }
                         z[c] = (v - self.mean[c]) / self.scale[c] * self.weight[c];
-                        if self.range_checked[c] && (v < self.min[c] || v > self.max[c]) {
+                        let tol = m * (self.max[c] - self.min[c]);
+                        if self.range_checked[c] && (v < self.min[c] - tol || v > self.max[c] + tol)
+                        {
                             outside += 1;
                         }
                     }
@@ -308,6 +339,13 @@ impl Applicability {
         }
     }
 }
+
+/// Range-check tolerance the main job uses ([`Applicability::with_range_margin`]): a value counts
+/// as outside the training range when it lies beyond the wells' range by more than a tenth of that
+/// range's width.
+// common practice, no published source: a tolerance keeps the noise at the ends of a range of a
+// few hundred rows from flagging nodes next to the wells (measured in DEVELOPERS.md).
+pub const RANGE_MARGIN: f64 = 0.1;
 
 /// Reason code: inside the area of applicability.
 pub const REASON_INSIDE: u8 = 0;

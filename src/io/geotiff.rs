@@ -21,7 +21,8 @@ use crate::grid::Grid;
 use std::io::Cursor;
 use std::path::Path;
 use tiff::decoder::{Decoder, DecodingResult, Limits};
-use tiff::encoder::{TiffEncoder, colortype::Gray32Float};
+use tiff::encoder::colortype::{ColorType, Gray8, Gray32Float};
+use tiff::encoder::{TiffEncoder, TiffValue};
 use tiff::tags::Tag;
 
 /// GeoKey ids used here (OGC 19-008r4, section 7).
@@ -86,26 +87,75 @@ fn geotransform(grid: &Grid) -> [f64; 6] {
 pub fn encode(grid: &Grid, values: &[f64], description: Option<&str>) -> Result<Vec<u8>, IoError> {
     let label = Path::new("<GeoTIFF in memory>");
     check_len(label, grid, values)?;
-    let (nx, ny) = (grid.nx, grid.ny);
-    let width = u32::try_from(nx).map_err(|_| IoError::format(label, "grid too wide"))?;
-    let height = u32::try_from(ny).map_err(|_| IoError::format(label, "grid too tall"))?;
     let null = grid.null_value as f32;
+    let data = raster_rows(grid, values, |v| if v.is_nan() { null } else { v as f32 });
+    encode_samples::<Gray32Float>(grid, &data, &format!("{}", grid.null_value), description)
+}
+
+/// Encodes a map of byte codes (one per node) as an 8-bit unsigned GeoTIFF in memory, with
+/// `nodata` as its GDAL_NODATA value.
+pub fn encode_u8(
+    grid: &Grid,
+    codes: &[u8],
+    nodata: u8,
+    description: Option<&str>,
+) -> Result<Vec<u8>, IoError> {
+    let label = Path::new("<GeoTIFF in memory>");
+    if codes.len() != grid.len() {
+        return Err(IoError::format(
+            label,
+            format!("{} codes for a grid of {} nodes", codes.len(), grid.len()),
+        ));
+    }
+    let data = raster_rows(grid, codes, |v| v);
+    encode_samples::<Gray8>(grid, &data, &nodata.to_string(), description)
+}
+
+/// Writes a map of byte codes as an 8-bit unsigned GeoTIFF, atomically (see [`encode_u8`]).
+pub fn write_u8(
+    path: &Path,
+    grid: &Grid,
+    codes: &[u8],
+    nodata: u8,
+    description: Option<&str>,
+) -> Result<(), IoError> {
+    let bytes = encode_u8(grid, codes, nodata, description).map_err(|e| match e {
+        IoError::Format { message, .. } => IoError::format(path, message),
+        other => other,
+    })?;
+    atomic::write_bytes(path, &bytes)
+}
+
+/// Node values in raster order (image row 0 is `j = ny - 1`), each through `f`.
+fn raster_rows<T: Copy, S>(grid: &Grid, values: &[T], f: impl Fn(T) -> S) -> Vec<S> {
+    let (nx, ny) = (grid.nx, grid.ny);
     let mut data = Vec::with_capacity(nx * ny);
     for row in 0..ny {
         let j = ny - 1 - row;
-        data.extend(
-            values[j * nx..(j + 1) * nx]
-                .iter()
-                .map(|&v| if v.is_nan() { null } else { v as f32 }),
-        );
+        data.extend(values[j * nx..(j + 1) * nx].iter().map(|&v| f(v)));
     }
+    data
+}
+
+/// Encodes raster-ordered samples of colour type `C` with the georeferencing of `grid`.
+fn encode_samples<C: ColorType>(
+    grid: &Grid,
+    data: &[C::Inner],
+    nodata: &str,
+    description: Option<&str>,
+) -> Result<Vec<u8>, IoError>
+where
+    [C::Inner]: TiffValue,
+{
+    let label = Path::new("<GeoTIFF in memory>");
+    let (nx, ny) = (grid.nx, grid.ny);
+    let width = u32::try_from(nx).map_err(|_| IoError::format(label, "grid too wide"))?;
+    let height = u32::try_from(ny).map_err(|_| IoError::format(label, "grid too tall"))?;
     let tiff_err = |e: tiff::TiffError| IoError::format(label, format!("TIFF encoding: {e}"));
     let mut buf = Cursor::new(Vec::new());
     {
         let mut enc = TiffEncoder::new(&mut buf).map_err(tiff_err)?;
-        let mut image = enc
-            .new_image::<Gray32Float>(width, height)
-            .map_err(tiff_err)?;
+        let mut image = enc.new_image::<C>(width, height).map_err(tiff_err)?;
         let d = image.encoder();
         let g = geotransform(grid);
         if grid.rotation == 0.0 {
@@ -168,13 +218,12 @@ pub fn encode(grid: &Grid, values: &[f64], description: Option<&str>) -> Result<
             )
             .map_err(tiff_err)?;
         }
-        d.write_tag(Tag::GdalNodata, format!("{}", grid.null_value).as_str())
-            .map_err(tiff_err)?;
+        d.write_tag(Tag::GdalNodata, nodata).map_err(tiff_err)?;
         if let Some(text) = description {
             d.write_tag(Tag::ImageDescription, text).map_err(tiff_err)?;
         }
         // write_data (not write_strip): it sets up the uncompressed writer the tags announce.
-        image.write_data(&data).map_err(tiff_err)?;
+        image.write_data(data).map_err(tiff_err)?;
     }
     Ok(buf.into_inner())
 }

@@ -59,6 +59,7 @@ pub fn build_report(p: ReportParts) -> ReportInput {
             let (lo, hi) = model.band_labels();
             [lo.to_uppercase(), hi.to_uppercase()]
         },
+        injector_cores: Vec::new(),
     }
 }
 

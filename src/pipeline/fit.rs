@@ -11,7 +11,7 @@
 use super::PipelineError;
 use super::model::SavedModel;
 use super::stages::Stages;
-use crate::applicability::Applicability;
+use crate::applicability::{self, Applicability, Ground};
 use crate::calibrate::input::{Space, ZeroSetting};
 use crate::calibrate::shift::{self, CovariateShift, RowShift, ShiftSettings};
 use crate::calibrate::{self, CalibratedTarget, CalibrationSettings, TargetData, Threshold};
@@ -227,7 +227,9 @@ pub fn fit_model(
     // never saw is an extrapolation in time.
     let checked = vec![true; p];
     let applicability =
-        Applicability::fit(&ts.feature_names, ts.x.view(), &mean_imp, &folds, &checked)?;
+        Applicability::fit(&ts.feature_names, ts.x.view(), &mean_imp, &folds, &checked)?
+            .with_range_margin(applicability::RANGE_MARGIN);
+    let ground = fit_ground(survey, ts, &folds);
     stages.done("importance, applicability");
 
     let bar = stages.bar(project.targets.len() as u64, "calibrate targets");
@@ -260,10 +262,37 @@ pub fn fit_model(
         level: project.calibration.level,
         calibrated,
         applicability,
+        ground,
         wells: well_positions(survey),
         wells_vs_nodes,
     };
     Ok((model, imp))
+}
+
+/// The ground check ([`Ground`]) fitted on the wells of the training set: one position, one
+/// attribute history (every step's attributes at the well) and one cross-validation fold per well
+/// (its first row's; folds hold whole wells). `None` when fewer than two wells have a full history
+/// at distinct positions: the area is then the row check alone.
+pub fn fit_ground(survey: &Survey, ts: &TrainingSet, folds: &[usize]) -> Option<Ground> {
+    let grid = &survey.project.grid;
+    let mut xy: Vec<[f64; 2]> = Vec::new();
+    let mut fold = Vec::new();
+    let mut rows: Vec<f64> = Vec::new();
+    for g in 0..ts.n_wells() {
+        if let Some(r) = (0..ts.n_rows()).find(|&r| ts.group[r] == g) {
+            xy.push(ts.xy[r]);
+            fold.push(folds[r]);
+            rows.extend(applicability::history_at(
+                &survey.maps,
+                grid,
+                ts.xy[r][0],
+                ts.xy[r][1],
+            ));
+        }
+    }
+    let q = rows.len() / xy.len().max(1);
+    let hist = ndarray::Array2::from_shape_vec((xy.len(), q), rows).ok()?;
+    Ground::fit(&xy, hist.view(), &fold).ok()
 }
 
 /// Distinct (well, x, y) positions of the survey's well records, in file order.

@@ -1,7 +1,7 @@
 //! The saved, calibrated model (`model.json`) and prediction of every node of a step.
 
 use super::PipelineError;
-use crate::applicability::{Applicability, Assessment};
+use crate::applicability::{Applicability, Assessment, Ground, node_histories};
 use crate::calibrate::CalibratedTarget;
 use crate::calibrate::predict::NodeContext;
 use crate::calibrate::shift::ShiftSummary;
@@ -12,7 +12,14 @@ use serde::{Deserialize, Serialize};
 use std::path::Path;
 
 /// Format version of `model.json`; bumped whenever its layout changes.
-pub const MODEL_FORMAT: u32 = 1;
+///
+/// Version 2 added the ground check ([`SavedModel::ground`]) and the range tolerance of the area
+/// of applicability; version 1 models still load and map with the row check alone (no ground
+/// check, plain range).
+pub const MODEL_FORMAT: u32 = 2;
+
+/// Oldest `model.json` format this build reads.
+pub const OLDEST_MODEL_FORMAT: u32 = 1;
 
 /// Everything needed to map a project with the same attributes.
 #[derive(Clone, Debug, Serialize, Deserialize)]
@@ -35,8 +42,12 @@ pub struct SavedModel {
     pub level: f64,
     /// One calibrated model per target.
     pub calibrated: Vec<CalibratedTarget>,
-    /// Area of applicability.
+    /// Area of applicability (rows: one node at one step).
     pub applicability: Applicability,
+    /// Ground the wells do not sample (locations: attribute history over the training steps);
+    /// absent in models written before it was used, or when too few wells have a full history.
+    #[serde(default)]
+    pub ground: Option<Ground>,
     /// Training wells (name, x, y), one entry per distinct position, for pictures and scoring.
     pub wells: Vec<(String, f64, f64)>,
     /// How representative the wells' attributes are of the mapped nodes (absent in models
@@ -70,8 +81,12 @@ fn pick_rows(v: &[f64], rows: &[usize]) -> Vec<f64> {
 pub struct StepMaps {
     /// Per target, in model order.
     pub targets: Vec<TargetMaps>,
-    /// Applicability per node.
+    /// Applicability per node. `inside` is the area the run reports: the row check, the
+    /// widened range check and the ground check together (inside exactly where `reasons` is 0).
     pub applicability: Assessment,
+    /// Why each node is outside the area: [`crate::applicability::REASON_INSIDE`] (0),
+    /// `REASON_UNLIKE` (1), `REASON_RANGE` (2), `REASON_BOTH` (3), `REASON_NO_DATA` (255).
+    pub reasons: Vec<u8>,
 }
 
 impl SavedModel {
@@ -90,17 +105,84 @@ impl SavedModel {
         band_labels(self.convention, self.level)
     }
 
+    /// The ground check ([`Ground`]) at the nodes `nodes` (indices into the grid, in order) of a
+    /// survey: each node's attribute history over the model's training steps, matched by step
+    /// name, one flag per node (true: unlike the ground the wells sample). `Ok(None)` for a model
+    /// without a ground check; an error message when the survey lacks a training step or an
+    /// attribute (the caller warns and maps with the row check alone).
+    pub fn ground_flags(
+        &self,
+        survey: &crate::project::Survey,
+        nodes: std::ops::Range<usize>,
+    ) -> Result<Option<Vec<bool>>, String> {
+        let Some(ground) = &self.ground else {
+            return Ok(None);
+        };
+        let p = &survey.project;
+        let mut maps: Vec<&Vec<Vec<f64>>> = Vec::new();
+        for name in &self.step_names {
+            let Some(s) = p.steps.iter().position(|st| &st.name == name) else {
+                return Err(format!(
+                    "the project has no step {name}, which the model was trained on; the area of \
+                     applicability uses the row check alone (no check of the attribute history)"
+                ));
+            };
+            maps.push(&survey.maps[s]);
+        }
+        let q: usize = maps.iter().map(|m| m.len()).sum();
+        if q != ground.mean.len() {
+            return Err(format!(
+                "the project's attribute history has {q} columns, the model's {}; the area of \
+                 applicability uses the row check alone",
+                ground.mean.len()
+            ));
+        }
+        let grid = &p.grid;
+        let xy = grid.node_coordinates();
+        // Histories in chunks of nodes, so memory stays a few maps' worth on large grids.
+        const CHUNK: usize = 1 << 16;
+        let mut flags = Vec::with_capacity(nodes.len());
+        let mut start = nodes.start;
+        while start < nodes.end {
+            let end = (start + CHUNK).min(nodes.end);
+            let part: Vec<Vec<Vec<f64>>> = maps
+                .iter()
+                .map(|step| step.iter().map(|m| m[start..end].to_vec()).collect())
+                .collect();
+            let hist = node_histories(&part, end - start);
+            let pos: Vec<[f64; 2]> = xy[start..end].iter().map(|&(x, y)| [x, y]).collect();
+            flags.extend(ground.assess(&pos, hist.view()).unlike);
+            start = end;
+        }
+        Ok(Some(flags))
+    }
+
     /// Predicts every row of `x` located at `xy` (world coordinates, one per row; rows with a
     /// missing attribute give `NaN` everywhere and are not in the area of applicability). Bands
     /// widen with each row's dissimilarity to the training rows and with its distance to the
-    /// nearest well beyond what cross-validation spanned (each target's spread rule).
+    /// nearest well beyond what cross-validation spanned (each target's spread rule). `ground`,
+    /// one flag per row from [`SavedModel::ground_flags`], joins the area of applicability as
+    /// "unlike every well".
     pub fn predict(
         &self,
         x: ArrayView2<f64>,
         xy: &[(f64, f64)],
+        ground: Option<&[bool]>,
     ) -> Result<StepMaps, PipelineError> {
         let n = x.nrows();
-        let applicability = self.applicability.assess(x);
+        if let Some(g) = ground
+            && g.len() != n
+        {
+            return Err(PipelineError::Invalid(format!(
+                "{} ground flags for {n} nodes",
+                g.len()
+            )));
+        }
+        let mut applicability = self.applicability.assess(x);
+        let reasons = self.applicability.reasons(&applicability, ground);
+        for (inside, &code) in applicability.inside.iter_mut().zip(&reasons) {
+            *inside = code == crate::applicability::REASON_INSIDE;
+        }
         let n_attr = self.feature_names.len() - 1;
         let valid: Vec<usize> = (0..n)
             .filter(|&r| x.row(r).iter().take(n_attr).all(|v| v.is_finite()))
@@ -147,6 +229,7 @@ impl SavedModel {
         Ok(StepMaps {
             targets,
             applicability,
+            reasons,
         })
     }
 
@@ -158,10 +241,11 @@ impl SavedModel {
         let probe: serde_json::Value =
             serde_json::from_str(&text).map_err(|e| PipelineError::json(path, e))?;
         let format = probe.get("format").and_then(serde_json::Value::as_u64);
-        if format != Some(u64::from(MODEL_FORMAT)) {
+        if !format.is_some_and(|f| (OLDEST_MODEL_FORMAT.into()..=MODEL_FORMAT.into()).contains(&f))
+        {
             return Err(PipelineError::Invalid(format!(
-                "{}: model format {} is not the format this build reads ({MODEL_FORMAT}); \
-                 re-run `tidemark run` to save the model again",
+                "{}: model format {} is not a format this build reads ({OLDEST_MODEL_FORMAT} to \
+                 {MODEL_FORMAT}); re-run `tidemark run` to save the model again",
                 path.display(),
                 format.map_or("missing".to_string(), |f| f.to_string())
             )));
@@ -175,6 +259,67 @@ impl SavedModel {
         crate::io::atomic::write_bytes(path, text.as_bytes())?;
         Ok(())
     }
+}
+
+/// Per step, the nodes with data within one well spacing (of the ground check, else the median
+/// nearest-neighbour distance of the model's wells) of an injector (wells CSV `kind`), and how
+/// many of them are flagged for each reason; empty without injectors.
+pub fn injector_cores(
+    survey: &crate::project::Survey,
+    model: &SavedModel,
+    steps: &[StepMaps],
+) -> Vec<crate::report::area::InjectorCores> {
+    use crate::applicability::{REASON_BOTH, REASON_NO_DATA, REASON_RANGE, REASON_UNLIKE};
+    let mut injectors: Vec<(f64, f64)> = survey
+        .wells
+        .iter()
+        .filter(|w| w.kind == Some(crate::io::wells::WellKind::Injector))
+        .map(|w| (w.x, w.y))
+        .collect();
+    injectors.dedup();
+    if injectors.is_empty() {
+        return Vec::new();
+    }
+    let spacing = model.ground.as_ref().map_or_else(
+        || {
+            let xy: Vec<[f64; 2]> = model.wells.iter().map(|w| [w.1, w.2]).collect();
+            crate::applicability::well_spacing(&xy)
+        },
+        |g| g.spacing,
+    );
+    let near: Vec<bool> = survey
+        .project
+        .grid
+        .node_coordinates()
+        .iter()
+        .map(|&(x, y)| {
+            injectors
+                .iter()
+                .any(|w| (w.0 - x).hypot(w.1 - y) <= spacing)
+        })
+        .collect();
+    model
+        .step_names
+        .iter()
+        .zip(steps)
+        .map(|(name, maps)| {
+            let codes: Vec<u8> = maps
+                .reasons
+                .iter()
+                .zip(&near)
+                .filter(|(c, n)| **n && **c != REASON_NO_DATA)
+                .map(|(c, _)| *c)
+                .collect();
+            let count = |code: u8| codes.iter().filter(|&&c| c == code).count();
+            crate::report::area::InjectorCores {
+                step: name.clone(),
+                nodes: codes.len(),
+                unlike: count(REASON_UNLIKE),
+                range: count(REASON_RANGE),
+                both: count(REASON_BOTH),
+            }
+        })
+        .collect()
 }
 
 /// File-name labels (`pNN`) of the lower and upper band edges for a convention and level.

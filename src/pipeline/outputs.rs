@@ -7,8 +7,14 @@
 //! maps/<step>/dissimilarity.{tif,xyz}          dissimilarity index to the wells
 //! maps/<step>/applicable.{tif,xyz}             1 inside the area of applicability, 0 outside
 //! maps/<step>/outside_range.{tif,xyz}          attributes outside the training range
+//! maps/<step>/area_reason.{tif,xyz}            why a node is outside the area (codes below)
 //! maps/metadata.json                           what each map holds, units, convention
 //! ```
+//!
+//! `area_reason` is an 8-bit GeoTIFF (GDAL_NODATA 255) holding [`AREA_REASON_CODES`]: 0 inside
+//! the area of applicability, 1 unlike every well, 2 outside the training range, 3 both, 255 no
+//! data; in XYZ text 255 is written as the grid's null value. The codes are stated in the
+//! GeoTIFF's ImageDescription, the XYZ sidecar's metadata and `maps/metadata.json`.
 //!
 //! Run integrity. A results folder is written by one process at a time and never looks complete
 //! before it is:
@@ -352,6 +358,17 @@ fn same_file(_file: &File, path: &Path) -> bool {
     path.exists()
 }
 
+/// The reason codes of the `area_reason` maps, in words (metadata, `run.json`, documentation).
+pub const AREA_REASON_CODES: &str = "0 inside the area of applicability; 1 unlike every well \
+(the node's attributes at this step are farther from every training row than the cross-validated \
+threshold, or its location and attribute history are unlike the ground the wells sample); 2 \
+outside the training range (an attribute beyond the wells' range by more than a tenth of its \
+width, or a step the wells never saw); 3 both; 255 no data (an attribute is missing, nothing is \
+predicted)";
+
+/// Name of the reason-code map of a step (without extension).
+pub const AREA_REASON_MAP: &str = "area_reason";
+
 /// Writes every map of one step and returns their metadata entries.
 pub fn write_step_maps(
     w: &mut Writer,
@@ -467,16 +484,20 @@ pub fn write_step_maps(
         w,
         format!("maps/{step}/applicable"),
         &inside,
-        "1 inside the area of applicability, 0 outside".into(),
+        "1 inside the area of applicability, 0 outside (the reason is in area_reason)".into(),
         "flag",
     )?;
     put(
         w,
         format!("maps/{step}/outside_range"),
         &outside,
-        "number of attributes outside the range seen at the wells".into(),
+        format!(
+            "number of attributes beyond the range seen at the wells by more than {} of its width",
+            model.applicability.range_margin
+        ),
         "count",
     )?;
+    entries.push(write_reason_map(w, grid, step, &maps.reasons)?);
     let coords = jobs
         .iter()
         .any(|(path, _, _)| !io::is_geotiff(path))
@@ -487,6 +508,48 @@ pub fn write_step_maps(
         })
         .collect::<Result<Vec<()>, _>>()?;
     Ok(entries)
+}
+
+/// Writes the reason codes of one step (`maps/<step>/area_reason`): an 8-bit GeoTIFF, XYZ text
+/// like the other maps (no data as the grid's null value); returns its metadata entry.
+fn write_reason_map(
+    w: &mut Writer,
+    grid: &Grid,
+    step: &str,
+    reasons: &[u8],
+) -> Result<MapEntry, PipelineError> {
+    use crate::applicability::REASON_NO_DATA;
+    let name = format!("maps/{step}/{AREA_REASON_MAP}");
+    let desc = serde_json::json!({
+        "tidemark": env!("CARGO_PKG_VERSION"),
+        "step": step,
+        "quantity": "why a node is outside the area of applicability",
+        "unit": "code",
+        "codes": AREA_REASON_CODES,
+    })
+    .to_string();
+    for path in w.reserve_map(&name)? {
+        if io::is_geotiff(&path) {
+            io::geotiff::write_u8(&path, grid, reasons, REASON_NO_DATA, Some(&desc))?;
+        } else {
+            let values: Vec<f64> = reasons
+                .iter()
+                .map(|&c| {
+                    if c == REASON_NO_DATA {
+                        f64::NAN
+                    } else {
+                        f64::from(c)
+                    }
+                })
+                .collect();
+            io::write_map(&path, grid, &values, Some(&desc))?;
+        }
+    }
+    Ok(MapEntry {
+        name,
+        quantity: format!("why a node is outside the area of applicability: {AREA_REASON_CODES}"),
+        unit: "code".into(),
+    })
 }
 
 /// The area-of-applicability flag (1 inside, 0 outside) and the count of attributes outside the

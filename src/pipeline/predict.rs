@@ -76,6 +76,8 @@ pub struct PredictRecord {
     pub cautions: Vec<String>,
     /// Files written.
     pub files: Vec<String>,
+    /// The codes of the `maps/<step>/area_reason` maps, in words.
+    pub area_reason_codes: String,
 }
 
 /// Applies `model_path` to the project `project_path`, writing maps under `out`.
@@ -109,6 +111,13 @@ pub fn predict(
     let (j0, j1) = tile.map_or((0, p.grid.ny), |t| t.rows(p.grid.ny));
     let n_feat = model.feature_names.len();
     let xy = p.grid.node_coordinates();
+    let nodes = j0 * p.grid.nx..j1 * p.grid.nx;
+    let ground = model
+        .ground_flags(&survey, nodes.clone())
+        .unwrap_or_else(|message| {
+            warnings.push(message);
+            None
+        });
     for (s, step) in p.steps.iter().enumerate() {
         let step_value = match model.step_names.iter().position(|n| n == &step.name) {
             Some(k) => k as f64,
@@ -126,7 +135,7 @@ pub fn predict(
             .slice(s![j0 * p.grid.nx..j1 * p.grid.nx, ..])
             .to_owned();
         x.column_mut(n_feat - 1).fill(step_value);
-        let maps = model.predict(x.view(), &xy[j0 * p.grid.nx..j1 * p.grid.nx])?;
+        let maps = model.predict(x.view(), &xy[nodes.clone()], ground.as_deref())?;
         write_step_maps(&mut w, &model, &grid, &step.name, &maps)?;
     }
     let record = PredictRecord {
@@ -138,6 +147,7 @@ pub fn predict(
         warnings,
         cautions: super::CAUTIONS.iter().map(|s| s.to_string()).collect(),
         files: w.written.clone(),
+        area_reason_codes: super::outputs::AREA_REASON_CODES.to_string(),
     };
     w.finish(&record)?;
     Ok(record)

@@ -92,6 +92,8 @@ pub struct RunRecord {
     pub cautions: Vec<String>,
     /// Files written, relative to the results folder.
     pub files: Vec<String>,
+    /// The codes of the `maps/<step>/area_reason` maps, in words.
+    pub area_reason_codes: String,
 }
 
 /// What a run returns to its caller.
@@ -148,7 +150,7 @@ pub fn run(opts: &RunOptions) -> Result<RunOutcome, PipelineError> {
             let sensitivity = studies::sensitivity(&survey, &ts, seed, &mut stages)?;
             w.json("studies.json", &sensitivity)?;
             let texts = run_warnings.iter().map(ToString::to_string).collect();
-            let input = assemble::build_report(ReportParts {
+            let mut input = assemble::build_report(ReportParts {
                 summary: &summary,
                 model: &model,
                 maps,
@@ -156,6 +158,7 @@ pub fn run(opts: &RunOptions) -> Result<RunOutcome, PipelineError> {
                 studies: &sensitivity,
                 run: assemble::run_info(project, &model, seed, &stages.timings, texts),
             });
+            input.injector_cores = super::model::injector_cores(&survey, &model, &kept);
             input.save(&w.root)?;
             crate::report::write_html(&input, &w.root)?;
             w.written.push(crate::report::DATA_FILE.into());
@@ -184,9 +187,13 @@ fn predict_and_write(
     let mut kept: Vec<StepMaps> = Vec::new();
     let bar = stages.bar(project.steps.len() as u64, "predict and write maps");
     let node_xy = project.grid.node_coordinates();
+    // The ground check looks at each node's whole attribute history: once for every step.
+    let ground = model
+        .ground_flags(survey, 0..project.grid.len())
+        .map_err(PipelineError::Invalid)?;
     for (s, step) in project.steps.iter().enumerate() {
         let x = sample::node_features(survey, s);
-        let maps = model.predict(x.view(), &node_xy)?;
+        let maps = model.predict(x.view(), &node_xy, ground.as_deref())?;
         metadata.extend(write_step_maps(w, model, &project.grid, &step.name, &maps)?);
         kept.push(maps);
         bar.inc(1);
@@ -304,6 +311,7 @@ fn run_record(
         warnings: warnings.iter().map(ToString::to_string).collect(),
         cautions: super::CAUTIONS.iter().map(|s| s.to_string()).collect(),
         files: written.to_vec(),
+        area_reason_codes: super::outputs::AREA_REASON_CODES.to_string(),
     }
 }
 

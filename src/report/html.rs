@@ -387,6 +387,7 @@ fn maps_section(h: &mut String, input: &ReportInput, results_dir: &Path) {
             }
         }
     }
+    h.push_str(&super::area::injector_note(&input.injector_cores));
     infill_block(h, input.infill.as_ref(), &input.xy_unit, results_dir);
     h.push_str("</section>\n");
 }

@@ -47,6 +47,9 @@ pub struct ReportInput {
     /// Names of the band's lower and upper edges in the convention in force (e.g. "P10",
     /// "P90"); empty: the page says "lower edge" and "upper edge".
     pub band_labels: [String; 2],
+    /// Nodes next to injectors outside the area of applicability, per step.
+    #[serde(default)]
+    pub injector_cores: Vec<super::area::InjectorCores>,
 }
 
 /// Run metadata.

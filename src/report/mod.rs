@@ -13,6 +13,7 @@
 //! [`ReportError`] and [`write_atomic`], which every file above may use, live here; this file's
 //! own code uses none of its children, so no module of the report depends on another in a circle.
 
+pub mod area;
 pub mod colormap;
 pub mod font;
 pub mod html;

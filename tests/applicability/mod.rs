@@ -1,5 +1,6 @@
 //! Integration tests: the area of applicability (reason codes, the ground check, the well-free
-//! lobe of a generated field).
+//! lobe of a generated field, the area as the main job writes it).
 
+mod area;
 mod lobe;
 mod reasons;

@@ -87,3 +87,27 @@ fn ground_check_by_hand() {
     // Wrong lengths are errors.
     assert!(Ground::fit(&wells[..3], h.view(), &[0, 1, 0]).is_err());
 }
+
+#[test]
+fn range_tolerance_widens_the_range_by_a_share_of_its_width() {
+    // Training values 0, 0.1, 10, 10.1 (width 10.1). With a tolerance of 0.1 the range check
+    // starts at -1.01 and 11.11: -0.05 (outside the plain range) is inside it, -2 is not; 12 is
+    // beyond both. Threshold as in `each_flag_says_why` (0.1 / 6.7).
+    let names = vec!["a".to_string()];
+    let x = matrix(&[vec![0.0], vec![0.1], vec![10.0], vec![10.1]]);
+    let aoa = Applicability::fit(&names, x.view(), &[1.0], &[0, 1, 2, 3], &[true])
+        .unwrap()
+        .with_range_margin(0.1);
+    let q = matrix(&[vec![-0.05], vec![-2.0], vec![11.0], vec![12.0]]);
+    let a = aoa.assess(q.view());
+    assert_eq!(a.outside_range, vec![0, 1, 0, 1]);
+    // -0.05: DI 0.05 / 6.7, inside. -2: DI 2 / 6.7 above the threshold and beyond the widened
+    // range. 11: DI 0.9 / 6.7, unlike but within the widened range. 12: both.
+    assert_eq!(
+        aoa.reasons(&a, None),
+        vec![REASON_INSIDE, REASON_BOTH, REASON_UNLIKE, REASON_BOTH]
+    );
+    // Negative or undefined tolerances mean the plain range.
+    assert_eq!(aoa.clone().with_range_margin(-1.0).range_margin, 0.0);
+    assert_eq!(aoa.with_range_margin(f64::NAN).range_margin, 0.0);
+}

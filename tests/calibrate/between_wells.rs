@@ -94,9 +94,14 @@ fn perturbed_run(manifest: &Path, field: &Path, out: &Path, eps: f64) -> TruthSc
     };
     let mut w = Writer::new(out, &project.input_paths(), formats).expect("writer");
     let node_xy = project.grid.node_coordinates();
+    let ground = model
+        .ground_flags(&survey, 0..project.grid.len())
+        .expect("ground check");
     for (s, step) in project.steps.iter().enumerate() {
         let x = sample::node_features(&survey, s);
-        let maps = model.predict(x.view(), &node_xy).expect("predict");
+        let maps = model
+            .predict(x.view(), &node_xy, ground.as_deref())
+            .expect("predict");
         write_step_maps(&mut w, &model, &project.grid, &step.name, &maps).expect("write maps");
     }
     model.save(&w.root.join("model.json")).expect("save");

@@ -1,6 +1,6 @@
 //! End-to-end tests of the main job on small generated fields.
 
-mod end_to_end;
+pub(crate) mod end_to_end;
 mod infill;
 mod report;
 mod truth;

@@ -405,6 +405,7 @@ pub fn sample_input(dir: &Path) -> ReportInput {
                 caption: String::new(),
             }],
         }),
+        injector_cores: Vec::new(),
         ..Default::default()
     }
 }
