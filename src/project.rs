@@ -25,6 +25,8 @@ pub const ANGLE_MARKERS: [&str; 5] = ["near", "mid", "far", "intercept", "gradie
 /// manifest is loaded, so `check` and `run` refuse the same projects, and each message names the
 /// key and the limit. All are far above what a field study needs (docs/manifest.md lists them).
 pub mod limits;
+/// Checking of the `[totals]` section (field totals from spatially correlated realizations).
+pub mod totals;
 
 /// Which percentile label names the low end of a band.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
@@ -305,6 +307,8 @@ pub struct Project {
     pub infill: Option<InfillSection>,
     /// Report settings.
     pub report: ReportSection,
+    /// Field totals (`[totals]`), when asked for; map paths resolved.
+    pub totals: Option<crate::spatial::totals::TotalsSection>,
 }
 
 /// A problem with the manifest's settings; every variant names the key at fault.
@@ -496,6 +500,7 @@ struct RawManifest {
     calibration: Option<RawCalibration>,
     infill: Option<RawInfill>,
     report: Option<RawReport>,
+    totals: Option<crate::spatial::totals::TotalsSection>,
 }
 
 #[derive(Deserialize)]
@@ -813,6 +818,13 @@ impl Project {
         out.push(self.wells.file.clone());
         if let Some(v) = self.infill.as_ref().and_then(|i| i.volume_map.clone()) {
             out.push(v);
+        }
+        if let Some(t) = &self.totals {
+            for m in t.maps.values().map(PathBuf::from) {
+                if !out.contains(&m) {
+                    out.push(m);
+                }
+            }
         }
         out
     }
@@ -1420,6 +1432,12 @@ fn check(raw: RawManifest, manifest_path: PathBuf) -> Result<Project, ManifestEr
         }
     };
 
+    // [totals]
+    let totals = match raw.totals {
+        None => None,
+        Some(t) => Some(totals::check(t, &root, &targets, &steps)?),
+    };
+
     Ok(Project {
         manifest_path,
         root,
@@ -1437,6 +1455,7 @@ fn check(raw: RawManifest, manifest_path: PathBuf) -> Result<Project, ManifestEr
         calibration,
         infill,
         report,
+        totals,
     })
 }
 
