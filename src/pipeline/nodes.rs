@@ -223,6 +223,13 @@ impl<'a> CalibratedNodes<'a> {
 
 impl NodeDistribution for CalibratedNodes<'_> {
     fn quantile(&self, i: usize, u: f64) -> f64 {
+        // A level within rounding of a map level is that level (`(1 - 0.8) / 2` is not 0.1).
+        let u = self
+            .u
+            .iter()
+            .copied()
+            .find(|k| (u - k).abs() <= 1e-12)
+            .unwrap_or(u);
         let (lo, mid, hi) = (self.maps.lo[i], self.maps.mid[i], self.maps.hi[i]);
         if !(lo.is_finite() && mid.is_finite() && hi.is_finite()) {
             return f64::NAN;

@@ -3,5 +3,6 @@
 mod end_to_end;
 mod infill;
 mod report;
+mod totals;
 mod truth;
 mod warnings;
