@@ -52,6 +52,7 @@ pub fn build_report(p: ReportParts) -> ReportInput {
         maps: p.maps,
         infill: p.infill,
         truth: None,
+        totals: None,
     }
 }
 

@@ -157,7 +157,7 @@ pub fn run(opts: &RunOptions) -> Result<RunOutcome, PipelineError> {
             let sensitivity = studies::sensitivity(&survey, &ts, seed, &mut stages)?;
             w.json("studies.json", &sensitivity)?;
             let texts = run_warnings.iter().map(ToString::to_string).collect();
-            let input = assemble::build_report(ReportParts {
+            let mut input = assemble::build_report(ReportParts {
                 summary: &summary,
                 model: &model,
                 maps,
@@ -165,6 +165,9 @@ pub fn run(opts: &RunOptions) -> Result<RunOutcome, PipelineError> {
                 studies: &sensitivity,
                 run: assemble::run_info(project, &model, seed, &stages.timings, texts),
             });
+            input.totals = field_totals
+                .as_ref()
+                .map(|c| totals::report_section(&c.record));
             input.save(&w.root)?;
             crate::report::write_html(&input, &w.root)?;
             w.written.push(crate::report::DATA_FILE.into());

@@ -787,6 +787,15 @@ pub fn score_and_report_with(
                 rows.extend(row(Some(s.step.clone()), &s.scores.all));
             }
         }
+        if let Some(tot) = input.totals.as_mut() {
+            for q in &mut tot.quantities {
+                let hit = scores
+                    .totals
+                    .iter()
+                    .find(|t| t.quantity == q.quantity && t.step == q.step);
+                q.truth = hit.map(|t| t.truth);
+            }
+        }
         input.truth = Some(ri::TruthSection {
             scores: rows,
             error_maps: entries,

@@ -580,3 +580,58 @@ pub fn score_totals(
     }
     Ok(out)
 }
+
+/// The page's totals section from the record (the truth is added by `score`).
+pub fn report_section(record: &TotalsRecord) -> crate::report::totals::TotalsReport {
+    use crate::report::totals::{TotalEntry, TotalsReport, VariogramEntry};
+    let variograms = record
+        .correlations
+        .iter()
+        .map(|c| {
+            let lags: Vec<_> = c
+                .experimental
+                .lags
+                .iter()
+                .filter(|l| l.pairs > 0 && l.distance.is_finite())
+                .collect();
+            let last = c.experimental.lags.last().map_or(1.0, |l| l.upper);
+            let curve_distance: Vec<f64> = (1..=60).map(|k| last * k as f64 / 60.0).collect();
+            VariogramEntry {
+                target: c.target.clone(),
+                kind: c.kind.clone(),
+                nugget: c.nugget,
+                sill: c.sill,
+                range: c.range,
+                pairs: c.pairs,
+                fallback: c.fallback,
+                message: c.message.clone(),
+                distance: lags.iter().map(|l| l.distance).collect(),
+                gamma: lags.iter().map(|l| l.gamma).collect(),
+                curve_gamma: curve_distance
+                    .iter()
+                    .map(|&h| c.fit.model.gamma(h))
+                    .collect(),
+                curve_distance,
+            }
+        })
+        .collect();
+    TotalsReport {
+        convention: record.convention.clone(),
+        realizations: record.realizations,
+        quantities: record
+            .quantities
+            .iter()
+            .map(|q| TotalEntry {
+                quantity: q.quantity.clone(),
+                step: q.step.clone(),
+                unit: q.unit.clone(),
+                band: [q.summary.p10, q.summary.p50, q.summary.p90],
+                node_bands: [q.comonotone.p10, q.comonotone.p50, q.comonotone.p90],
+                independent: q.independent.map(|s| [s.p10, s.p50, s.p90]),
+                totals: q.totals.clone(),
+                truth: None,
+            })
+            .collect(),
+        variograms,
+    }
+}

@@ -42,6 +42,8 @@ pub struct ReportInput {
     pub infill: Option<InfillSection>,
     /// Scores against truth maps (synthetic projects), when computed.
     pub truth: Option<TruthSection>,
+    /// Field totals, when the manifest asks for them.
+    pub totals: Option<super::totals::TotalsReport>,
 }
 
 /// Run metadata.

@@ -18,6 +18,7 @@ pub mod html;
 pub mod input;
 pub mod labels;
 pub mod picture;
+pub mod totals;
 
 pub use colormap::{Colormap, ColourScale};
 pub use html::{render_html, write_html};
