@@ -35,7 +35,7 @@ pub const TOTALS_JSON: &str = "totals.json";
 /// The table of totals.
 pub const TOTALS_CSV: &str = "totals.csv";
 /// Seed stream of the totals (mixed with the run's seed).
-const STREAM_TOTALS: u64 = 0x7074_a15;
+const STREAM_TOTALS: u64 = 0x0707_4a15;
 
 /// One total at one step, as `totals.json` holds it.
 #[derive(Clone, Debug, Serialize, Deserialize)]
