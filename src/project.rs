@@ -21,32 +21,15 @@ pub const DEFAULT_SNAP_TOLERANCE: f64 = 0.01;
 /// Substrings that mark an attribute as angle-dependent when `report.angle_attributes` is absent.
 pub const ANGLE_MARKERS: [&str; 5] = ["near", "mid", "far", "intercept", "gradient"];
 
+/// The label convention and threshold directions, shared with the totals' manifest types.
+pub mod choices;
 /// Limits on every manifest value that sizes an allocation or a loop. They are checked when the
 /// manifest is loaded, so `check` and `run` refuse the same projects, and each message names the
 /// key and the limit. All are far above what a field study needs (docs/manifest.md lists them).
 pub mod limits;
 /// Checking of the `[totals]` section (field totals from spatially correlated realizations).
 pub mod totals;
-
-/// Which percentile label names the low end of a band.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
-#[serde(rename_all = "snake_case")]
-pub enum Convention {
-    /// P10 is the low value (the 10th percentile). The default.
-    Percentile,
-    /// P90 is the low value (90 % chance of exceeding it).
-    Exceedance,
-}
-
-/// Which side of a threshold counts as crossing it.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
-#[serde(rename_all = "snake_case")]
-pub enum Direction {
-    /// Crossed when the value is above the threshold.
-    Above,
-    /// Crossed when the value is below the threshold.
-    Below,
-}
+pub use choices::{Convention, Direction};
 
 /// How attribute maps are read at a well.
 #[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
@@ -1435,7 +1418,24 @@ fn check(raw: RawManifest, manifest_path: PathBuf) -> Result<Project, ManifestEr
     // [totals]
     let totals = match raw.totals {
         None => None,
-        Some(t) => Some(totals::check(t, &root, &targets, &steps)?),
+        Some(t) => {
+            let bounds: Vec<totals::TargetBounds> = targets
+                .iter()
+                .map(|t| totals::TargetBounds {
+                    name: &t.name,
+                    min: t.min,
+                    max: t.max,
+                })
+                .collect();
+            let names: Vec<&str> = steps.iter().map(|s| s.name.as_str()).collect();
+            let checked = totals::check(t, &root, &bounds, &names).map_err(|e| {
+                ManifestError::Inconsistent {
+                    key: e.key,
+                    message: e.message,
+                }
+            })?;
+            Some(checked)
+        }
     };
 
     Ok(Project {

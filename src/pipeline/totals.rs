@@ -24,7 +24,7 @@ use crate::sample::{self, TrainingSet};
 use crate::spatial::krige::WellScore;
 use crate::spatial::totals::{
     self as engine, Band, ErrorField, Layer, Measure, NodeDistribution, Quantity, Summary,
-    TotalRule, TotalsInput, TotalsOutput, TotalsSettings,
+    TotalDefinition, TotalRule, TotalsInput, TotalsOutput, TotalsSettings,
 };
 use crate::spatial::{Lattice, derive_seed};
 use serde::{Deserialize, Serialize};
@@ -216,58 +216,8 @@ pub fn compute(
             distribution: d as &dyn NodeDistribution,
         })
         .collect();
-    // Weight maps.
-    let mut weights: Vec<(String, String, Vec<f64>)> = Vec::new();
-    for (name, path) in &section.maps {
-        let used = definitions
-            .iter()
-            .any(|d| matches!(&d.rule, TotalRule::Sum { weight } if weight == name));
-        if used {
-            let v = io::read_map(Path::new(path), grid, project.snap_tolerance)?;
-            weights.push((name.clone(), path.clone(), v));
-        }
-    }
-    let mut quantities = Vec::new();
-    let mut meta = Vec::new();
-    for d in &definitions {
-        let Some(t) = model.targets.iter().position(|s| s.name == d.target) else {
-            continue;
-        };
-        for s in steps_of(project, &d.steps) {
-            let layer = layer_keys
-                .iter()
-                .position(|&k| k == (t, s))
-                .expect("layer of a quantity");
-            let (measure, weight_file) = match &d.rule {
-                TotalRule::Area {
-                    threshold,
-                    direction,
-                } => (
-                    Measure::Area {
-                        threshold: *threshold,
-                        direction: *direction,
-                    },
-                    None,
-                ),
-                TotalRule::Sum { weight } => {
-                    let w = weights
-                        .iter()
-                        .find(|w| &w.0 == weight)
-                        .expect("weight map checked at load");
-                    (Measure::Sum { weights: &w.2 }, Some(w.1.clone()))
-                }
-            };
-            quantities.push(Quantity {
-                name: d.quantity.clone(),
-                step: project.steps[s].name.clone(),
-                unit: d.unit.clone(),
-                layer,
-                measure,
-                scale: d.scale,
-            });
-            meta.push((d.clone(), weight_file));
-        }
-    }
+    let weights = read_weights(survey, &definitions)?;
+    let (quantities, meta) = build_quantities(survey, model, &definitions, &layer_keys, &weights);
     let settings = TotalsSettings {
         realizations: opts.realizations.unwrap_or(section.realizations),
         seed: derive_seed(seed, &[STREAM_TOTALS]),
@@ -319,6 +269,84 @@ pub fn compute(
         output,
         layers,
     }))
+}
+
+/// A weight map of `[totals.maps]`: name, file, values.
+type WeightMap = (String, String, Vec<f64>);
+
+/// The weight maps the `sum` totals use.
+fn read_weights(
+    survey: &Survey,
+    definitions: &[TotalDefinition],
+) -> Result<Vec<WeightMap>, PipelineError> {
+    let project = &survey.project;
+    let mut weights = Vec::new();
+    let Some(section) = &project.totals else {
+        return Ok(weights);
+    };
+    for (name, path) in &section.maps {
+        let used = definitions
+            .iter()
+            .any(|d| matches!(&d.rule, TotalRule::Sum { weight } if weight == name));
+        if used {
+            let v = io::read_map(Path::new(path), &project.grid, project.snap_tolerance)?;
+            weights.push((name.clone(), path.clone(), v));
+        }
+    }
+    Ok(weights)
+}
+
+/// Every total at every step it is asked for, with its definition and weight file.
+fn build_quantities<'w>(
+    survey: &Survey,
+    model: &SavedModel,
+    definitions: &[TotalDefinition],
+    layer_keys: &[(usize, usize)],
+    weights: &'w [WeightMap],
+) -> (Vec<Quantity<'w>>, Vec<(TotalDefinition, Option<String>)>) {
+    let project = &survey.project;
+    let mut quantities = Vec::new();
+    let mut meta = Vec::new();
+    for d in definitions {
+        let Some(t) = model.targets.iter().position(|s| s.name == d.target) else {
+            continue;
+        };
+        for s in steps_of(project, &d.steps) {
+            let layer = layer_keys
+                .iter()
+                .position(|&k| k == (t, s))
+                .expect("layer of a quantity");
+            let (measure, weight_file) = match &d.rule {
+                TotalRule::Area {
+                    threshold,
+                    direction,
+                } => (
+                    Measure::Area {
+                        threshold: *threshold,
+                        direction: *direction,
+                    },
+                    None,
+                ),
+                TotalRule::Sum { weight } => {
+                    let w = weights
+                        .iter()
+                        .find(|w| &w.0 == weight)
+                        .expect("weight map checked at load");
+                    (Measure::Sum { weights: &w.2 }, Some(w.1.clone()))
+                }
+            };
+            quantities.push(Quantity {
+                name: d.quantity.clone(),
+                step: project.steps[s].name.clone(),
+                unit: d.unit.clone(),
+                layer,
+                measure,
+                scale: d.scale,
+            });
+            meta.push((d.clone(), weight_file));
+        }
+    }
+    (quantities, meta)
 }
 
 /// `totals.csv`: one line per quantity and step with the realizations' P10/P50/P90 (run's

@@ -12,9 +12,40 @@ use base64::Engine as _;
 use serde::{Deserialize, Serialize};
 
 use super::ReportError;
-use super::html::escape;
-use super::input::nan_as_null;
 use super::picture::{Curve, LinePicture, Reference, line_png};
+
+/// HTML-escapes text (the page's own helper lives above this module in the page's layering).
+fn escape(text: &str) -> String {
+    let mut out = String::with_capacity(text.len());
+    for c in text.chars() {
+        match c {
+            '&' => out.push_str("&amp;"),
+            '<' => out.push_str("&lt;"),
+            '>' => out.push_str("&gt;"),
+            '"' => out.push_str("&quot;"),
+            '\'' => out.push_str("&#39;"),
+            c => out.push(c),
+        }
+    }
+    out
+}
+
+/// Number lists with `NaN` as JSON `null` (as the rest of the page input stores them).
+mod nan_as_null {
+    use serde::{Deserialize, Deserializer, Serialize, Serializer};
+
+    /// Non-finite values as `null`.
+    pub fn serialize<S: Serializer>(v: &[f64], s: S) -> Result<S::Ok, S::Error> {
+        let o: Vec<Option<f64>> = v.iter().map(|x| x.is_finite().then_some(*x)).collect();
+        o.serialize(s)
+    }
+
+    /// `null` as `NaN`.
+    pub fn deserialize<'de, D: Deserializer<'de>>(d: D) -> Result<Vec<f64>, D::Error> {
+        let o: Vec<Option<f64>> = Vec::deserialize(d)?;
+        Ok(o.into_iter().map(|x| x.unwrap_or(f64::NAN)).collect())
+    }
+}
 
 /// The totals of a run, for the page.
 #[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
@@ -318,4 +349,50 @@ pub fn section(h: &mut String, totals: Option<&TotalsReport>) {
         h.push_str(&figure(variogram_png(v, 900, 420), &v.target));
     }
     h.push_str("</section>\n");
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn entry() -> TotalEntry {
+        TotalEntry {
+            quantity: "swept <area>".into(),
+            step: "m4".into(),
+            unit: "km2".into(),
+            band: [1.0, 2.0, 3.0],
+            node_bands: [0.2, 2.1, 6.0],
+            independent: Some([1.9, 2.0, 2.1]),
+            totals: (0..200).map(|k| 1.0 + 2.0 * k as f64 / 199.0).collect(),
+            truth: Some(2.5),
+        }
+    }
+
+    #[test]
+    fn the_histogram_is_a_png_of_the_asked_size() {
+        let png = histogram_png(&entry(), 640, 320).unwrap();
+        let decoder = png::Decoder::new(std::io::Cursor::new(png));
+        let reader = decoder.read_info().unwrap();
+        assert_eq!((reader.info().width, reader.info().height), (640, 320));
+    }
+
+    #[test]
+    fn the_section_lists_every_total_and_says_when_there_is_none() {
+        let mut h = String::new();
+        section(&mut h, None);
+        assert!(h.contains("Not computed"));
+        let report = TotalsReport {
+            convention: "Percentile convention.".into(),
+            realizations: 200,
+            quantities: vec![entry()],
+            variograms: Vec::new(),
+        };
+        let mut h = String::new();
+        section(&mut h, Some(&report));
+        assert!(h.contains("swept &lt;area&gt; (km2)"), "{h}");
+        assert!(h.contains("<td>2.500</td>"), "the truth is shown");
+        assert_eq!(h.matches("data:image/png;base64,").count(), 1);
+        let json = serde_json::to_string(&report).unwrap();
+        assert_eq!(serde_json::from_str::<TotalsReport>(&json).unwrap(), report);
+    }
 }
