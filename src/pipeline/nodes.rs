@@ -64,7 +64,13 @@ fn lerp(a: f64, b: f64, f: f64) -> f64 {
 /// [`PredictiveSystem::quantile`], which recomputes each level inside its search.
 pub struct CpsLevels {
     levels: Vec<Vec<f64>>,
+    /// Per bin, `BUCKETS + 1` starts: entry `j` is the first residual whose level reaches
+    /// `j / BUCKETS`, so a search for level `v` scans one bucket only.
+    index: Vec<Vec<u32>>,
 }
+
+/// Buckets of the level index (a power of two, so `j / BUCKETS` is exact).
+const BUCKETS: usize = 1024;
 
 impl CpsLevels {
     /// The level table of `cps`.
@@ -86,8 +92,33 @@ impl CpsLevels {
                     })
                     .collect()
             })
+            .collect::<Vec<Vec<f64>>>();
+        let index = levels
+            .iter()
+            .map(|l| {
+                (0..=BUCKETS)
+                    .map(|j| {
+                        let at = j as f64 / BUCKETS as f64;
+                        l.partition_point(|&q| q < at) as u32
+                    })
+                    .collect()
+            })
             .collect();
-        Self { levels }
+        Self { levels, index }
+    }
+
+    /// The first residual of bin `b` whose level reaches `v` (`partition_point(q < v)`).
+    fn first_reaching(&self, b: usize, v: f64) -> usize {
+        let levels = &self.levels[b];
+        if !(v > 0.0 && v < 1.0) {
+            return levels.partition_point(|&q| q < v);
+        }
+        let j = ((v * BUCKETS as f64) as usize).min(BUCKETS - 1);
+        let (mut k, end) = (self.index[b][j] as usize, self.index[b][j + 1] as usize);
+        while k < end && levels[k] < v {
+            k += 1;
+        }
+        k
     }
 
     /// [`PredictiveSystem::quantile`] of `cps` (the system this table was made from).
@@ -103,7 +134,23 @@ impl CpsLevels {
             return f64::NAN;
         }
         let b = cps.bins.bin(mid).min(cps.residuals.len() - 1);
-        let k = self.levels[b].partition_point(|&q| q < v);
+        self.quantile_in_bin(cps, b, mid, scale, v, bounds)
+    }
+
+    /// As [`Self::quantile`] with the Mondrian bin `b` of `mid` already known.
+    pub fn quantile_in_bin(
+        &self,
+        cps: &PredictiveSystem,
+        b: usize,
+        mid: f64,
+        scale: f64,
+        v: f64,
+        bounds: (f64, f64),
+    ) -> f64 {
+        if !mid.is_finite() || scale.is_nan() || scale <= 0.0 || v.is_nan() {
+            return f64::NAN;
+        }
+        let k = self.first_reaching(b, v);
         let r = &cps.residuals[b];
         let t = if k == r.len() {
             bounds.1
@@ -122,6 +169,8 @@ pub struct CalibratedNodes<'a> {
     table: CpsLevels,
     /// Hurdle targets: `p G(0)` per node, the mixture's probability below the atom.
     below: Vec<f64>,
+    /// The predictive system's Mondrian bin of each node's conditional middle.
+    bin: Vec<u32>,
     /// Conditional middle and residual scale of the predictive system per node.
     cond: (Vec<f64>, Vec<f64>),
     /// Map levels of the lower edge, middle and upper edge.
@@ -162,11 +211,18 @@ impl<'a> CalibratedNodes<'a> {
                 .collect(),
             _ => Vec::new(),
         };
+        let last = cal.cps.residuals.len().saturating_sub(1);
+        let bin = cond
+            .0
+            .iter()
+            .map(|&m| cal.cps.bins.bin(m).min(last) as u32)
+            .collect();
         let mut out = Self {
             cal,
             maps,
             table: CpsLevels::new(&cal.cps),
             below,
+            bin,
             cond,
             u,
             v,
@@ -185,7 +241,11 @@ impl<'a> CalibratedNodes<'a> {
     fn base(&self, i: usize, level: f64) -> f64 {
         let (mid, scale) = (self.cond.0[i], self.cond.1[i]);
         let bounds = self.cal.bounds;
-        let g = |v: f64| self.table.quantile(&self.cal.cps, mid, scale, v, bounds);
+        let b = self.bin[i] as usize;
+        let g = |v: f64| {
+            self.table
+                .quantile_in_bin(&self.cal.cps, b, mid, scale, v, bounds)
+        };
         let p = match (&self.cal.hurdle, &self.maps.p_change) {
             (Some(_), Some(p)) => p[i],
             _ => return g(level),
@@ -381,8 +441,14 @@ mod tests {
         let units = Units::wells(&[0, 0, 1, 1, 2, 3, 4, 5]);
         let cps = PredictiveSystem::fit(&mid, &y, &units, MondrianBins::single());
         let table = CpsLevels::new(&cps);
-        for k in 0..=1000 {
-            let v = k as f64 / 1000.0;
+        let mut levels: Vec<f64> = (0..=1000).map(|k| k as f64 / 1000.0).collect();
+        // Levels on and next to the table's own steps and bucket edges.
+        for l in &table.levels[0] {
+            levels.extend([*l, l.next_down(), l.next_up()]);
+        }
+        levels.extend((0..=BUCKETS).map(|j| j as f64 / BUCKETS as f64));
+        levels.extend([-0.5, 1.5, f64::MIN_POSITIVE, 1.0 - f64::EPSILON]);
+        for v in levels {
             for (m, s) in [(0.0, 1.0), (1.5, 0.5), (-3.0, 2.0)] {
                 let a = cps.quantile(m, s, v, (-4.0, 6.0));
                 let b = table.quantile(&cps, m, s, v, (-4.0, 6.0));
