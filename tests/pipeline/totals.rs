@@ -374,3 +374,38 @@ fn manifest_errors_name_the_totals_key() {
         t.maps["hcpv"].ends_with("hcpv.tif") && std::path::Path::new(&t.maps["hcpv"]).is_absolute()
     );
 }
+
+#[test]
+fn kept_realizations_are_written_listed_and_change_no_total() {
+    let f = fixture();
+    let out = f.root.join("results-kept");
+    if out.exists() {
+        std::fs::remove_dir_all(&out).unwrap();
+    }
+    let opts = tidemark::pipeline::run::RunOptions {
+        pictures: false,
+        report: false,
+        keep_realizations: Some(2),
+        ..tidemark::pipeline::run::RunOptions::new(&f.project, &out)
+    };
+    let outcome = tidemark::pipeline::run::run(&opts).expect("run");
+    let files = &outcome.record.files;
+    for step in &loaded().model.step_names {
+        for target in ["dP", "dSw", "dSg"] {
+            for r in ["r001", "r002"] {
+                let rel = format!("realizations/{step}/{target}_{r}.tif");
+                assert!(files.contains(&rel), "{rel} listed in run.json");
+                let map = tidemark::io::geotiff::read(&out.join(&rel)).expect("GeoTIFF");
+                assert!(map.values.iter().any(|v| v.is_finite()));
+            }
+            let third = format!("realizations/{step}/{target}_r003.tif");
+            assert!(!out.join(third).exists());
+        }
+    }
+    for name in ["totals.csv", "totals.json"] {
+        assert!(files.contains(&name.to_string()), "{name} listed");
+    }
+    let a = std::fs::read(out.join("totals.csv")).unwrap();
+    let b = std::fs::read(f.out.join("totals.csv")).unwrap();
+    assert_eq!(a, b, "keeping maps changes no total");
+}
