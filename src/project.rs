@@ -21,30 +21,15 @@ pub const DEFAULT_SNAP_TOLERANCE: f64 = 0.01;
 /// Substrings that mark an attribute as angle-dependent when `report.angle_attributes` is absent.
 pub const ANGLE_MARKERS: [&str; 5] = ["near", "mid", "far", "intercept", "gradient"];
 
+/// The label convention and threshold directions, shared with the totals' manifest types.
+pub mod choices;
 /// Limits on every manifest value that sizes an allocation or a loop. They are checked when the
 /// manifest is loaded, so `check` and `run` refuse the same projects, and each message names the
 /// key and the limit. All are far above what a field study needs (docs/manifest.md lists them).
 pub mod limits;
-
-/// Which percentile label names the low end of a band.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
-#[serde(rename_all = "snake_case")]
-pub enum Convention {
-    /// P10 is the low value (the 10th percentile). The default.
-    Percentile,
-    /// P90 is the low value (90 % chance of exceeding it).
-    Exceedance,
-}
-
-/// Which side of a threshold counts as crossing it.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
-#[serde(rename_all = "snake_case")]
-pub enum Direction {
-    /// Crossed when the value is above the threshold.
-    Above,
-    /// Crossed when the value is below the threshold.
-    Below,
-}
+/// Checking of the `[totals]` section (field totals from spatially correlated realizations).
+pub mod totals;
+pub use choices::{Convention, Direction};
 
 /// How attribute maps are read at a well.
 #[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
@@ -305,6 +290,8 @@ pub struct Project {
     pub infill: Option<InfillSection>,
     /// Report settings.
     pub report: ReportSection,
+    /// Field totals (`[totals]`), when asked for; map paths resolved.
+    pub totals: Option<crate::spatial::totals::TotalsSection>,
 }
 
 /// A problem with the manifest's settings; every variant names the key at fault.
@@ -496,6 +483,7 @@ struct RawManifest {
     calibration: Option<RawCalibration>,
     infill: Option<RawInfill>,
     report: Option<RawReport>,
+    totals: Option<crate::spatial::totals::TotalsSection>,
 }
 
 #[derive(Deserialize)]
@@ -813,6 +801,13 @@ impl Project {
         out.push(self.wells.file.clone());
         if let Some(v) = self.infill.as_ref().and_then(|i| i.volume_map.clone()) {
             out.push(v);
+        }
+        if let Some(t) = &self.totals {
+            for m in t.maps.values().map(PathBuf::from) {
+                if !out.contains(&m) {
+                    out.push(m);
+                }
+            }
         }
         out
     }
@@ -1420,6 +1415,29 @@ fn check(raw: RawManifest, manifest_path: PathBuf) -> Result<Project, ManifestEr
         }
     };
 
+    // [totals]
+    let totals = match raw.totals {
+        None => None,
+        Some(t) => {
+            let bounds: Vec<totals::TargetBounds> = targets
+                .iter()
+                .map(|t| totals::TargetBounds {
+                    name: &t.name,
+                    min: t.min,
+                    max: t.max,
+                })
+                .collect();
+            let names: Vec<&str> = steps.iter().map(|s| s.name.as_str()).collect();
+            let checked = totals::check(t, &root, &bounds, &names).map_err(|e| {
+                ManifestError::Inconsistent {
+                    key: e.key,
+                    message: e.message,
+                }
+            })?;
+            Some(checked)
+        }
+    };
+
     Ok(Project {
         manifest_path,
         root,
@@ -1437,6 +1455,7 @@ fn check(raw: RawManifest, manifest_path: PathBuf) -> Result<Project, ManifestEr
         calibration,
         infill,
         report,
+        totals,
     })
 }
 

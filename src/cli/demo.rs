@@ -21,6 +21,9 @@ pub struct Args {
     /// No progress output or tables (warnings are still printed).
     #[arg(long)]
     pub quiet: bool,
+    /// Write the first N realization maps of the field totals under `realizations/`.
+    #[arg(long, value_name = "N")]
+    pub keep_realizations: Option<usize>,
 }
 
 /// Where the bundled demo project lives.
@@ -36,6 +39,7 @@ pub fn demo_project() -> PathBuf {
 /// Runs `tidemark demo`.
 pub fn run(args: Args) -> anyhow::Result<u8> {
     super::run::set_threads(args.threads)?;
+    super::run::check_keep(args.keep_realizations)?;
     let project = args.project.clone().unwrap_or_else(demo_project);
     anyhow::ensure!(
         project.is_file(),
@@ -49,6 +53,7 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
     let mut opts = RunOptions::new(&project, &args.out);
     opts.quiet = args.quiet;
     opts.formats = Formats::default();
+    opts.keep_realizations = args.keep_realizations;
     let outcome = run_pipeline(&opts).context("running the demo")?;
     super::run::print_warnings(&outcome.record.warnings);
     let truth = project.parent().map(|p| p.join("truth"));

@@ -31,6 +31,22 @@ pub struct Args {
     /// Skip the HTML report and its sensitivity studies.
     #[arg(long)]
     pub no_report: bool,
+    /// Write the first N realization maps of the field totals as GeoTIFF under
+    /// `realizations/` (overrides `keep_realizations` in the manifest's totals table).
+    #[arg(long, value_name = "N")]
+    pub keep_realizations: Option<usize>,
+}
+
+/// Checks a `--keep-realizations` value against the manifest limit.
+pub fn check_keep(keep: Option<usize>) -> anyhow::Result<()> {
+    let max = crate::project::totals::MAX_KEPT_REALIZATIONS;
+    if let Some(n) = keep {
+        anyhow::ensure!(
+            n <= max,
+            "--keep-realizations must be at most {max}, got {n}"
+        );
+    }
+    Ok(())
 }
 
 /// Sets the size of rayon's global pool (once per process).
@@ -48,6 +64,7 @@ pub fn set_threads(threads: Option<usize>) -> anyhow::Result<()> {
 /// Runs `tidemark run`.
 pub fn run(args: Args) -> anyhow::Result<u8> {
     set_threads(args.threads)?;
+    check_keep(args.keep_realizations)?;
     let opts = RunOptions {
         project: args.project.clone(),
         out: args.out.clone(),
@@ -59,6 +76,7 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
         },
         pictures: !args.no_pictures,
         report: !args.no_pictures && !args.no_report,
+        keep_realizations: args.keep_realizations,
     };
     if !args.quiet {
         eprintln!("tidemark run {}", args.project.display());

@@ -60,6 +60,7 @@ pub fn build_report(p: ReportParts) -> ReportInput {
             [lo.to_uppercase(), hi.to_uppercase()]
         },
         injector_cores: Vec::new(),
+        totals: None,
     }
 }
 

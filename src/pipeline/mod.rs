@@ -16,6 +16,7 @@
 pub mod assemble;
 pub mod fit;
 pub mod model;
+pub mod nodes;
 pub mod outputs;
 pub mod pictures;
 pub mod predict;
@@ -23,6 +24,7 @@ pub mod run;
 pub mod score;
 pub mod stages;
 pub mod studies;
+pub mod totals;
 pub mod warnings;
 
 use std::path::PathBuf;
@@ -72,6 +74,9 @@ pub enum PipelineError {
     /// A saved model or results folder does not fit what is asked of it.
     #[error("{0}")]
     Invalid(String),
+    /// Field totals could not be computed.
+    #[error(transparent)]
+    Spatial(#[from] crate::spatial::SpatialError),
     /// JSON (de)serialisation failed.
     #[error("{path}: {source}")]
     Json {

@@ -13,6 +13,7 @@ use super::outputs::{Formats, MapEntry, Writer, write_step_maps};
 use super::pictures;
 use super::stages::{Stages, Timing};
 use super::studies;
+use super::totals::{self, TotalsOptions};
 use super::warnings::RunWarning;
 use crate::project::{self, Project, Survey};
 use crate::report::input as ri;
@@ -41,6 +42,8 @@ pub struct RunOptions {
     pub pictures: bool,
     /// Write the HTML report (needs pictures).
     pub report: bool,
+    /// Realization maps of the field totals to write (overrides `totals.keep_realizations`).
+    pub keep_realizations: Option<usize>,
 }
 
 impl RunOptions {
@@ -54,6 +57,7 @@ impl RunOptions {
             formats: Formats::default(),
             pictures: true,
             report: true,
+            keep_realizations: None,
         }
     }
 }
@@ -124,6 +128,10 @@ pub fn run(opts: &RunOptions) -> Result<RunOutcome, PipelineError> {
 
     let (model, imp) = fit::fit_model(&survey, &ts, seed, &mut stages)?;
     let kept = predict_and_write(&survey, &model, &mut w, &mut stages)?;
+    let field_totals = field_totals(&survey, &ts, &model, &kept, seed, opts, &mut w)?;
+    if field_totals.is_some() {
+        stages.done("field totals");
+    }
 
     let infill = studies::infill(&survey, &model, &kept, &mut w)?;
     stages.done("infill targets");
@@ -132,7 +140,8 @@ pub fn run(opts: &RunOptions) -> Result<RunOutcome, PipelineError> {
         .as_ref()
         .map(|i| i.targets.clone())
         .unwrap_or_default();
-    let summary = studies::summary(&survey, &ts, &model, &imp, &targets);
+    let mut summary = studies::summary(&survey, &ts, &model, &imp, &targets);
+    summary.totals = field_totals.as_ref().map(|c| c.record.summary());
     w.json("summary.json", &summary)?;
     model.save(&w.root.join("model.json"))?;
     w.written.push("model.json".into());
@@ -159,6 +168,9 @@ pub fn run(opts: &RunOptions) -> Result<RunOutcome, PipelineError> {
                 run: assemble::run_info(project, &model, seed, &stages.timings, texts),
             });
             input.injector_cores = super::model::injector_cores(&survey, &model, &kept);
+            input.totals = field_totals
+                .as_ref()
+                .map(|c| totals::report_section(&c.record));
             input.save(&w.root)?;
             crate::report::write_html(&input, &w.root)?;
             w.written.push(crate::report::DATA_FILE.into());
@@ -209,6 +221,34 @@ fn predict_and_write(
     )?;
     stages.done("predict and write maps");
     Ok(kept)
+}
+
+/// The field totals of `[totals]` (none without it): realizations, `totals.csv`, `totals.json`
+/// and the kept realization maps.
+fn field_totals(
+    survey: &Survey,
+    ts: &sample::TrainingSet,
+    model: &SavedModel,
+    kept: &[StepMaps],
+    seed: u64,
+    opts: &RunOptions,
+    w: &mut Writer,
+) -> Result<Option<totals::Computed>, PipelineError> {
+    let computed = totals::compute(
+        survey,
+        ts,
+        model,
+        kept,
+        seed,
+        TotalsOptions {
+            keep: opts.keep_realizations,
+            ..TotalsOptions::default()
+        },
+    )?;
+    if let Some(c) = &computed {
+        totals::write(w, &survey.project.grid, c)?;
+    }
+    Ok(computed)
 }
 
 /// Draws the map pictures of every step and returns their entries on the page.
@@ -303,6 +343,7 @@ fn run_record(
             "infill": project.infill,
             "report": project.report,
             "extract": project.extract,
+            "totals": project.totals,
             "formats": opts.formats,
         }),
         convention: convention_text(model.convention, model.level),

@@ -166,6 +166,9 @@ pub struct TruthScore {
     pub forest_note: Option<String>,
     /// Per target.
     pub targets: Vec<TargetScore>,
+    /// Field totals from the truth maps beside the run's P10/P50/P90 and the naive rules' (empty
+    /// when the run computed none).
+    pub totals: Vec<super::totals::TotalScore>,
 }
 
 /// Error maps (P50 minus truth) per step and target, for pictures.
@@ -691,6 +694,7 @@ pub fn score_with(
             .map(|s| s.project.manifest_path.display().to_string()),
         forest_note,
         targets,
+        totals: super::totals::score_totals(results, &troot, &grid)?,
     };
     let text = serde_json::to_string_pretty(&out)
         .map_err(|e| PipelineError::json(results.join("truth-score.json"), e))?;
@@ -781,6 +785,15 @@ pub fn score_and_report_with(
             rows.extend(row(None, &t.pooled.all));
             for s in &t.steps {
                 rows.extend(row(Some(s.step.clone()), &s.scores.all));
+            }
+        }
+        if let Some(tot) = input.totals.as_mut() {
+            for q in &mut tot.quantities {
+                let hit = scores
+                    .totals
+                    .iter()
+                    .find(|t| t.quantity == q.quantity && t.step == q.step);
+                q.truth = hit.map(|t| t.truth);
             }
         }
         input.truth = Some(ri::TruthSection {

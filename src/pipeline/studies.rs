@@ -197,6 +197,9 @@ pub struct Summary {
     pub infill: Vec<Target>,
     /// Cautions that go with the results.
     pub cautions: Vec<String>,
+    /// Field totals and the variogram of each target's held-out errors (with `[totals]`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub totals: Option<super::totals::TotalsSummary>,
 }
 
 /// Builds `summary.json`.
@@ -244,6 +247,7 @@ pub fn summary(
         wells_vs_nodes: model.wells_vs_nodes.clone(),
         infill: infill.to_vec(),
         cautions: super::CAUTIONS.iter().map(|s| s.to_string()).collect(),
+        totals: None,
     }
 }
 

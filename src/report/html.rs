@@ -151,6 +151,7 @@ pub fn render_html(input: &ReportInput, results_dir: &Path) -> Result<String, Re
     learning_section(&mut h, input);
     importance_section(&mut h, input);
     truth_section(&mut h, input, results_dir);
+    super::totals::section(&mut h, input.totals.as_ref());
     h.push_str(
         "</main>\n<footer>Written by tidemark. This page is self-contained: pictures are embedded, \
          it runs no scripts and loads nothing from the network. Text in the pictures is set in \

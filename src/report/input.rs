@@ -50,6 +50,8 @@ pub struct ReportInput {
     /// Nodes next to injectors outside the area of applicability, per step.
     #[serde(default)]
     pub injector_cores: Vec<super::area::InjectorCores>,
+    /// Field totals, when the manifest asks for them.
+    pub totals: Option<super::totals::TotalsReport>,
 }
 
 /// Run metadata.

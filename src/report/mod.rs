@@ -22,6 +22,7 @@ pub mod labels;
 pub mod markup;
 pub mod picture;
 pub mod spread;
+pub mod totals;
 pub mod verdicts;
 
 pub use colormap::{Colormap, ColourScale};

@@ -329,6 +329,10 @@ pub struct TotalsSection {
     /// The totals.
     #[serde(default)]
     pub quantities: Vec<TotalSpec>,
+    /// Static weight maps by name (e.g. `hcpv = "static/hcpv.tif"`), for `sum` totals; paths
+    /// relative to the manifest's folder (the project resolves them when it loads).
+    #[serde(default, skip_serializing_if = "std::collections::BTreeMap::is_empty")]
+    pub maps: std::collections::BTreeMap<String, String>,
 }
 
 impl TotalsSection {

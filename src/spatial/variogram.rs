@@ -128,6 +128,27 @@ pub fn experimental(
     lags: Lags,
     estimator: Estimator,
 ) -> Result<ExperimentalVariogram, SpatialError> {
+    experimental_within(points, None, lags, estimator)
+}
+
+/// As [`experimental`], pairing only points of the same group when `groups` is given (one entry
+/// per point): the variogram of several data sets (e.g. one per survey step) pooled bin by bin,
+/// each pair counted once and no pair across groups. Errors also when `groups` has the wrong
+/// length.
+pub fn experimental_within(
+    points: &[Sample],
+    groups: Option<&[usize]>,
+    lags: Lags,
+    estimator: Estimator,
+) -> Result<ExperimentalVariogram, SpatialError> {
+    if let Some(g) = groups
+        && g.len() != points.len()
+    {
+        return Err(SpatialError::Input {
+            what: "variogram groups".into(),
+            problem: format!("{} groups for {} points", g.len(), points.len()),
+        });
+    }
     if !(lags.width.is_finite() && lags.width > 0.0) {
         return Err(SpatialError::Setting {
             key: "lags.width".into(),
@@ -157,7 +178,10 @@ pub fn experimental(
     let mut sum_h = vec![0.0; lags.count];
     let mut sum_stat = vec![0.0; lags.count];
     for (i, a) in points.iter().enumerate() {
-        for b in &points[i + 1..] {
+        for (j, b) in points.iter().enumerate().skip(i + 1) {
+            if groups.is_some_and(|g| g[i] != g[j]) {
+                continue;
+            }
             let h = (a.x - b.x).hypot(a.y - b.y);
             let k = (h / lags.width).floor();
             if k >= lags.count as f64 {

@@ -166,6 +166,60 @@ fn toml_string(s: &str) -> String {
     out
 }
 
+/// The default field totals of a generated project, at every step: depleted area (dP below
+/// -2 MPa), swept area (dSw above 0.1), gas-out area (dSg above 0.05), swept pore volume
+/// (sum of hcpv x dSw) and gas-out volume (sum of hcpv x dSg).
+const TOTALS: &str = r#"[totals]
+realizations = 200
+
+[totals.maps]
+hcpv = "static/hcpv.tif"
+
+[[totals.quantities]]
+quantity = "depleted_area"
+kind = "area"
+target = "dP"
+threshold = -2.0
+direction = "below"
+unit = "km2"
+scale = 1e-6
+
+[[totals.quantities]]
+quantity = "swept_area"
+kind = "area"
+target = "dSw"
+threshold = 0.1
+direction = "above"
+unit = "km2"
+scale = 1e-6
+
+[[totals.quantities]]
+quantity = "gas_out_area"
+kind = "area"
+target = "dSg"
+threshold = 0.05
+direction = "above"
+unit = "km2"
+scale = 1e-6
+
+[[totals.quantities]]
+quantity = "swept_pore_volume"
+kind = "sum"
+target = "dSw"
+weight = "hcpv"
+unit = "1e6 m3"
+scale = 1e-6
+
+[[totals.quantities]]
+quantity = "gas_out_volume"
+kind = "sum"
+target = "dSg"
+weight = "hcpv"
+unit = "1e6 m3"
+scale = 1e-6
+
+"#;
+
 /// The manifest text.
 fn manifest(field: &SynthField, settings: &SynthSettings, steps: &[StepRecord]) -> String {
     let g = &field.grid;
@@ -233,6 +287,7 @@ fn manifest(field: &SynthField, settings: &SynthSettings, steps: &[StepRecord]) 
     let _ = writeln!(t, "threshold = \"swept\"");
     let _ = writeln!(t, "volume_map = \"static/hcpv.tif\"");
     let _ = writeln!(t, "volume_unit = \"m3\"\n");
+    t.push_str(TOTALS);
     let _ = writeln!(t, "[report]");
     let angle: Vec<String> = field
         .attribute_names

@@ -87,8 +87,14 @@ fn pipeline_modules_only_call_down() {
     let layers: &[&[&str]] = &[
         &["run.rs"],
         &["assemble.rs"],
-        &["studies.rs", "pictures.rs", "score.rs", "predict.rs"],
-        &["fit.rs"],
+        &[
+            "studies.rs",
+            "pictures.rs",
+            "score.rs",
+            "predict.rs",
+            "totals.rs",
+        ],
+        &["fit.rs", "nodes.rs"],
         &[
             "stages.rs",
             "warnings.rs",

@@ -3,6 +3,7 @@
 pub(crate) mod end_to_end;
 mod infill;
 mod report;
+mod totals;
 mod truth;
 mod verdicts;
 mod warnings;

@@ -262,7 +262,11 @@ pub(crate) fn check_page_in_browser(page: &std::path::Path, n_images: usize, tit
         "images that did not decode: {widths:?}"
     );
     assert_eq!(facts["scripts"], json!(0));
-    assert_eq!(facts["sections"], json!(7));
+    assert_eq!(
+        facts["sections"],
+        json!(8),
+        "seven numbered sections and the field totals"
+    );
     assert!(facts["title"].as_str().unwrap_or("").contains(title));
 
     let log = ok(

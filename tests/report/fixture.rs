@@ -385,6 +385,7 @@ pub fn sample_input(dir: &Path) -> ReportInput {
                 drainage_inside_fraction: Some(0.85),
             }],
         }),
+        totals: None,
         truth: Some(TruthSection {
             scores: vec![TruthScore {
                 target: "dSw".to_string(),

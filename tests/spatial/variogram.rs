@@ -283,3 +283,29 @@ fn bad_variogram_input_names_the_point() {
     .to_string();
     assert!(e.contains("lags.width"), "{e}");
 }
+
+#[test]
+fn grouped_pairs_stay_within_their_group() {
+    use tidemark::spatial::variogram::experimental_within;
+    // Hand-worked: group 0 has values 0 and 2 one metre apart, group 1 has 5 and 4 at the same
+    // places. Within groups: two pairs at 1 m with differences 2 and 1, so Matheron's estimate
+    // is (4 + 1) / (2 x 2) = 1.25; across groups four more pairs would enter.
+    let pts = [
+        (0.0, 0.0, 0.0),
+        (1.0, 0.0, 2.0),
+        (0.0, 0.0, 5.0),
+        (1.0, 0.0, 4.0),
+    ]
+    .map(|(x, y, value)| Sample { x, y, value });
+    let lags = Lags {
+        width: 1.5,
+        count: 1,
+    };
+    let within = experimental_within(&pts, Some(&[0, 0, 1, 1]), lags, Estimator::Matheron).unwrap();
+    assert_eq!(within.lags[0].pairs, 2);
+    assert!((within.lags[0].gamma - 1.25).abs() < 1e-12);
+    let all = experimental_within(&pts, None, lags, Estimator::Matheron).unwrap();
+    assert_eq!(all.lags[0].pairs, 6);
+    assert_eq!(all, experimental(&pts, lags, Estimator::Matheron).unwrap());
+    assert!(experimental_within(&pts, Some(&[0, 0, 1]), lags, Estimator::Matheron).is_err());
+}

@@ -1,0 +1,459 @@
+//! Every node's full calibrated predictive distribution, as a quantile function for the field
+//! totals ([`crate::spatial::totals`]), and the spatial correlation of the wells' held-out errors.
+//!
+//! **Node distributions** ([`CalibratedNodes`]). The maps give three quantiles per node (the band
+//! edges and the middle, after the spread rule); the model's predictive system gives the shape
+//! between and beyond them: the conformal predictive system around the node's conditional middle
+//! (Vovk, Shen, Manokhin & Xie 2019), mixed with the "no change" atom for a hurdle target
+//! (Mullahy 1986; [`crate::calibrate::hurdle`]). The quantile function is that base quantile
+//! function `Qb`, read at levels warped piecewise linearly so that the map's levels land on the
+//! levels the band was made at (for a hurdle target the band edges sit at the conformal PIT
+//! levels of the mixture, Czado, Gneiting & Held 2009), and rescaled piecewise linearly in value
+//! so that it passes exactly through the written map values:
+//!
+//! ```text
+//! Q(u) = lo  + (mid - lo) (Qb(v) - Qb(v_lo)) / (Qb(v_mid) - Qb(v_lo))   for u in [u_lo, 1/2]
+//! Q(u) = mid + (hi - mid) (Qb(v) - Qb(v_mid)) / (Qb(v_hi) - Qb(v_mid))  for u in [1/2, u_hi]
+//! ```
+//!
+//! with the outer segments' scale carried into the tails, and everything clipped to the target's
+//! bounds. At `u = (1 - level)/2, 1/2, (1 + level)/2` it gives the written P10, P50 and P90
+//! exactly; the spread rule, which widens the band about the middle, widens the tails by the same
+//! factor; the atom at zero stays an atom. The exceedance maps come from the same predictive
+//! system (or the recalibrated forest CDF, whichever scored better out of fold), so the crossing
+//! frequency of realizations matches them only as far as the band and that system agree; the
+//! tests measure how far.
+//!
+//! **Error correlation** ([`correlation`]). Each target's held-out well rows carry their PIT value
+//! under the cross-fitted predictive system (randomised at the atom for a hurdle target); their
+//! normal scores `Phi^-1(u)` are the errors' Gaussian representation. The experimental variogram
+//! (Cressie & Hawkins 1980) pairs rows of the *same step* only and pools the steps bin by bin: the
+//! error field of one survey is what a total at that step depends on, and pairing the rows of one
+//! well across steps would mix time correlation (a well's error persists from survey to survey)
+//! into the spatial lag of zero-distance pairs, pulling the nugget down. The model is fitted by
+//! Cressie's (1985) weighted least squares with the library's fallback.
+
+use super::model::TargetMaps;
+use crate::calibrate::CalibratedTarget;
+use crate::calibrate::conformal::BandMethod;
+use crate::calibrate::exceedance::PredictiveSystem;
+use crate::grid::Grid;
+use crate::sample::TrainingSet;
+use crate::spatial::krige::WellScore;
+use crate::spatial::scores::{PIT_CLAMP, normal_score};
+use crate::spatial::totals::NodeDistribution;
+use crate::spatial::variogram::{
+    self, Estimator, ExperimentalVariogram, FitSettings, Lags, Sample, VariogramFit,
+};
+use crate::spatial::{Lattice, SpatialError};
+use ndarray::ArrayView2;
+use rayon::prelude::*;
+use serde::Serialize;
+
+/// `a + f (b - a)`, exact at both ends (`f = 0` gives `a`, `f = 1` gives `b`).
+fn lerp(a: f64, b: f64, f: f64) -> f64 {
+    if f <= 0.5 {
+        a + f * (b - a)
+    } else {
+        b - (1.0 - f) * (b - a)
+    }
+}
+
+/// The levels `Q(t_k)` (with `tau = 1/2`) of every residual of each bin of a conformal predictive
+/// system, so that its quantile function is one binary search: the same values as
+/// [`PredictiveSystem::quantile`], which recomputes each level inside its search.
+pub struct CpsLevels {
+    levels: Vec<Vec<f64>>,
+    /// Per bin, `BUCKETS + 1` starts: entry `j` is the first residual whose level reaches
+    /// `j / BUCKETS`, so a search for level `v` scans one bucket only.
+    index: Vec<Vec<u32>>,
+}
+
+/// Buckets of the level index (a power of two, so `j / BUCKETS` is exact).
+const BUCKETS: usize = 1024;
+
+impl CpsLevels {
+    /// The level table of `cps`.
+    pub fn new(cps: &PredictiveSystem) -> Self {
+        let w = cps.test_weight;
+        let levels = cps
+            .residuals
+            .iter()
+            .zip(&cps.cum_weight)
+            .map(|(r, cw)| {
+                let total = cw.last().copied().unwrap_or(0.0);
+                (0..r.len())
+                    .map(|k| {
+                        let first = r.partition_point(|&a| a < r[k]);
+                        let last = r.partition_point(|&a| a <= r[k]);
+                        let below = if first == 0 { 0.0 } else { cw[first - 1] };
+                        let at = cw[last - 1] - below;
+                        (below + 0.5 * (at + w)) / (total + w)
+                    })
+                    .collect()
+            })
+            .collect::<Vec<Vec<f64>>>();
+        let index = levels
+            .iter()
+            .map(|l| {
+                (0..=BUCKETS)
+                    .map(|j| {
+                        let at = j as f64 / BUCKETS as f64;
+                        l.partition_point(|&q| q < at) as u32
+                    })
+                    .collect()
+            })
+            .collect();
+        Self { levels, index }
+    }
+
+    /// The first residual of bin `b` whose level reaches `v` (`partition_point(q < v)`).
+    fn first_reaching(&self, b: usize, v: f64) -> usize {
+        let levels = &self.levels[b];
+        if !(v > 0.0 && v < 1.0) {
+            return levels.partition_point(|&q| q < v);
+        }
+        let j = ((v * BUCKETS as f64) as usize).min(BUCKETS - 1);
+        let (mut k, end) = (self.index[b][j] as usize, self.index[b][j + 1] as usize);
+        while k < end && levels[k] < v {
+            k += 1;
+        }
+        k
+    }
+
+    /// [`PredictiveSystem::quantile`] of `cps` (the system this table was made from).
+    pub fn quantile(
+        &self,
+        cps: &PredictiveSystem,
+        mid: f64,
+        scale: f64,
+        v: f64,
+        bounds: (f64, f64),
+    ) -> f64 {
+        if !mid.is_finite() || scale.is_nan() || scale <= 0.0 || v.is_nan() {
+            return f64::NAN;
+        }
+        let b = cps.bins.bin(mid).min(cps.residuals.len() - 1);
+        self.quantile_in_bin(cps, b, mid, scale, v, bounds)
+    }
+
+    /// As [`Self::quantile`] with the Mondrian bin `b` of `mid` already known.
+    pub fn quantile_in_bin(
+        &self,
+        cps: &PredictiveSystem,
+        b: usize,
+        mid: f64,
+        scale: f64,
+        v: f64,
+        bounds: (f64, f64),
+    ) -> f64 {
+        if !mid.is_finite() || scale.is_nan() || scale <= 0.0 || v.is_nan() {
+            return f64::NAN;
+        }
+        let k = self.first_reaching(b, v);
+        let r = &cps.residuals[b];
+        let t = if k == r.len() {
+            bounds.1
+        } else {
+            mid + scale * r[k]
+        };
+        t.clamp(bounds.0, bounds.1)
+    }
+}
+
+/// One target's calibrated distribution at every node of one step.
+pub struct CalibratedNodes<'a> {
+    cal: &'a CalibratedTarget,
+    maps: &'a TargetMaps,
+    /// The predictive system's quantile table.
+    table: CpsLevels,
+    /// Hurdle targets: `p G(0)` per node, the mixture's probability below the atom.
+    below: Vec<f64>,
+    /// The predictive system's Mondrian bin of each node's conditional middle.
+    bin: Vec<u32>,
+    /// Conditional middle and residual scale of the predictive system per node.
+    cond: (Vec<f64>, Vec<f64>),
+    /// Map levels of the lower edge, middle and upper edge.
+    u: [f64; 3],
+    /// The base distribution's levels of the same three values.
+    v: [f64; 3],
+    /// Base quantiles at `v`, per node.
+    knots: Vec<[f64; 3]>,
+}
+
+impl<'a> CalibratedNodes<'a> {
+    /// The distributions of `cal` at the nodes whose features are `x` (rows in node order) and
+    /// whose written maps are `maps`. Nodes with a null map value have no distribution.
+    pub fn new(
+        cal: &'a CalibratedTarget,
+        maps: &'a TargetMaps,
+        x: ArrayView2<f64>,
+    ) -> Result<Self, crate::calibrate::CalibrateError> {
+        let a = (1.0 - cal.level) / 2.0;
+        let u = [a, 0.5, 1.0 - a];
+        let v = match &cal.hurdle {
+            Some(h) => [h.levels.0, h.levels.1, h.levels.2],
+            None => u,
+        };
+        // The continuous middle is the map's; its scale is 1 unless the scores are normalised.
+        let cond = if cal.hurdle.is_none() && cal.band.method != BandMethod::Normalized {
+            (maps.mid.clone(), vec![1.0; maps.mid.len()])
+        } else {
+            cal.conditional_at(x)?
+        };
+        let below = match &maps.p_change {
+            Some(p) if cal.hurdle.is_some() => (0..maps.mid.len())
+                .into_par_iter()
+                .map(|i| {
+                    let g = cal.cps.prob_below(cond.0[i], cond.1[i], 0.0, cal.bounds);
+                    p[i].clamp(0.0, 1.0) * g
+                })
+                .collect(),
+            _ => Vec::new(),
+        };
+        let last = cal.cps.residuals.len().saturating_sub(1);
+        let bin = cond
+            .0
+            .iter()
+            .map(|&m| cal.cps.bins.bin(m).min(last) as u32)
+            .collect();
+        let mut out = Self {
+            cal,
+            maps,
+            table: CpsLevels::new(&cal.cps),
+            below,
+            bin,
+            cond,
+            u,
+            v,
+            knots: Vec::new(),
+        };
+        out.knots = (0..maps.mid.len())
+            .into_par_iter()
+            .map(|i| v.map(|l| out.base(i, l)))
+            .collect();
+        Ok(out)
+    }
+
+    /// The model's own quantile function at node `i`: the conditional predictive system, or
+    /// for a hurdle target its mixture with the atom ([`crate::calibrate::hurdle::quantile`], with `p G(0)` kept
+    /// per node).
+    fn base(&self, i: usize, level: f64) -> f64 {
+        let (mid, scale) = (self.cond.0[i], self.cond.1[i]);
+        let bounds = self.cal.bounds;
+        let b = self.bin[i] as usize;
+        let g = |v: f64| {
+            self.table
+                .quantile_in_bin(&self.cal.cps, b, mid, scale, v, bounds)
+        };
+        let p = match (&self.cal.hurdle, &self.maps.p_change) {
+            (Some(_), Some(p)) => p[i],
+            _ => return g(level),
+        };
+        if !(p.is_finite() && level.is_finite()) {
+            return f64::NAN;
+        }
+        let p = p.clamp(0.0, 1.0);
+        if p <= 0.0 {
+            return 0.0;
+        }
+        let below = self.below[i];
+        if level <= below {
+            g((level / p).clamp(0.0, 1.0)).min(0.0)
+        } else if level <= below + (1.0 - p) {
+            0.0
+        } else {
+            g(((level - 1.0 + p) / p).clamp(0.0, 1.0)).max(0.0)
+        }
+    }
+
+    /// The level warp: piecewise linear through `(0, 0)`, `(u_k, v_k)` and `(1, 1)`.
+    fn warp(&self, u: f64) -> f64 {
+        let xs = [0.0, self.u[0], self.u[1], self.u[2], 1.0];
+        let ys = [0.0, self.v[0], self.v[1], self.v[2], 1.0];
+        for k in 0..4 {
+            if u <= xs[k + 1] {
+                let f = ((u - xs[k]) / (xs[k + 1] - xs[k])).clamp(0.0, 1.0);
+                return lerp(ys[k], ys[k + 1], f);
+            }
+        }
+        1.0
+    }
+}
+
+impl NodeDistribution for CalibratedNodes<'_> {
+    fn quantile(&self, i: usize, u: f64) -> f64 {
+        // A level within rounding of a map level is that level (`(1 - 0.8) / 2` is not 0.1).
+        let u = self
+            .u
+            .iter()
+            .copied()
+            .find(|k| (u - k).abs() <= 1e-12)
+            .unwrap_or(u);
+        let (lo, mid, hi) = (self.maps.lo[i], self.maps.mid[i], self.maps.hi[i]);
+        if !(lo.is_finite() && mid.is_finite() && hi.is_finite()) {
+            return f64::NAN;
+        }
+        let [b_lo, b_mid, b_hi] = self.knots[i];
+        let b = self.base(i, self.warp(u));
+        let y = if u < self.u[0] {
+            let s = if b_mid > b_lo {
+                (mid - lo) / (b_mid - b_lo)
+            } else {
+                1.0
+            };
+            lo - s * (b_lo - b).max(0.0)
+        } else if u <= self.u[1] {
+            let f = if b_mid > b_lo {
+                ((b - b_lo) / (b_mid - b_lo)).clamp(0.0, 1.0)
+            } else {
+                (u - self.u[0]) / (self.u[1] - self.u[0])
+            };
+            lerp(lo, mid, f)
+        } else if u <= self.u[2] {
+            let f = if b_hi > b_mid {
+                ((b - b_mid) / (b_hi - b_mid)).clamp(0.0, 1.0)
+            } else {
+                (u - self.u[1]) / (self.u[2] - self.u[1])
+            };
+            lerp(mid, hi, f)
+        } else {
+            let s = if b_hi > b_mid {
+                (hi - mid) / (b_hi - b_mid)
+            } else {
+                1.0
+            };
+            hi + s * (b - b_hi).max(0.0)
+        };
+        y.clamp(self.cal.bounds.0, self.cal.bounds.1)
+    }
+}
+
+/// One target's error correlation, as `summary.json` gives it.
+#[derive(Clone, Debug, Serialize)]
+pub struct Correlation {
+    /// Target name.
+    pub target: String,
+    /// Held-out well rows with a normal score (all steps).
+    pub rows: usize,
+    /// Well pairs in the lags used (same step only).
+    pub pairs: usize,
+    /// Model kind used.
+    pub kind: String,
+    /// Nugget of the normal scores' variogram.
+    pub nugget: f64,
+    /// Total sill.
+    pub sill: f64,
+    /// Range in metres (practical range for the exponential and Matern models).
+    pub range: f64,
+    /// True when too little data forced the stated fallback model.
+    pub fallback: bool,
+    /// Why the fallback was used, or a remark on the fit.
+    pub message: Option<String>,
+    /// The experimental variogram (pooled over steps).
+    pub experimental: ExperimentalVariogram,
+    /// The fit with every candidate model.
+    pub fit: VariogramFit,
+}
+
+/// The held-out normal scores of target `t`'s well rows, with their step: wells in grid-local
+/// metres (`x = i dx`, `y = j dy`). The rows of `cal`'s diagnostics follow the training rows where
+/// the target was measured.
+pub fn well_scores(
+    cal: &CalibratedTarget,
+    ts: &TrainingSet,
+    t: usize,
+    grid: &Grid,
+) -> Vec<(usize, WellScore)> {
+    let rows = super::fit::target_rows(ts, t);
+    cal.diagnostics
+        .rows
+        .iter()
+        .zip(&rows)
+        .filter_map(|(row, &r)| {
+            let score = normal_score(row.pit, PIT_CLAMP);
+            let (fi, fj) = grid.fractional_ij(ts.xy[r][0], ts.xy[r][1]);
+            let ok = score.is_finite() && fi.is_finite() && fj.is_finite();
+            ok.then(|| {
+                (
+                    row.step,
+                    WellScore {
+                        name: ts.well_names[ts.group[r]].clone(),
+                        x: fi * grid.dx,
+                        y: fj * grid.dy,
+                        score,
+                    },
+                )
+            })
+        })
+        .collect()
+}
+
+/// The variogram of target `name`'s held-out normal scores `scores` (with their steps), pairs
+/// within a step only, fitted by weighted least squares with the stated fallback.
+pub fn correlation(
+    name: &str,
+    scores: &[(usize, WellScore)],
+    lattice: Lattice,
+) -> Result<Correlation, SpatialError> {
+    let points: Vec<Sample> = scores
+        .iter()
+        .map(|(_, w)| Sample {
+            x: w.x,
+            y: w.y,
+            value: w.score,
+        })
+        .collect();
+    let groups: Vec<usize> = scores.iter().map(|(s, _)| *s).collect();
+    let lags = Lags::half_extent(&points).unwrap_or(Lags {
+        width: lattice.diagonal().max(1.0) / 24.0,
+        count: 12,
+    });
+    let experimental =
+        variogram::experimental_within(&points, Some(&groups), lags, Estimator::CressieHawkins)?;
+    let fit = variogram::fit(&experimental, &FitSettings::default(), lattice.diagonal())?;
+    Ok(Correlation {
+        target: name.to_string(),
+        rows: points.len(),
+        pairs: fit.pairs_used,
+        kind: fit.model.kind.name().to_string(),
+        nugget: fit.model.nugget,
+        sill: fit.model.sill,
+        range: fit.model.range,
+        fallback: fit.fallback,
+        message: fit.message.clone(),
+        experimental,
+        fit,
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::calibrate::conformal::MondrianBins;
+    use crate::calibrate::units::Units;
+
+    #[test]
+    fn the_level_table_gives_the_systems_quantiles() {
+        // Residuals with ties and unequal well weights (wells 0 and 1 have two rows each).
+        let y = [0.3, -1.0, 2.0, 0.3, 0.3, -0.2, 1.1, 5.0];
+        let mid = [0.0; 8];
+        let units = Units::wells(&[0, 0, 1, 1, 2, 3, 4, 5]);
+        let cps = PredictiveSystem::fit(&mid, &y, &units, MondrianBins::single());
+        let table = CpsLevels::new(&cps);
+        let mut levels: Vec<f64> = (0..=1000).map(|k| k as f64 / 1000.0).collect();
+        // Levels on and next to the table's own steps and bucket edges.
+        for l in &table.levels[0] {
+            levels.extend([*l, l.next_down(), l.next_up()]);
+        }
+        levels.extend((0..=BUCKETS).map(|j| j as f64 / BUCKETS as f64));
+        levels.extend([-0.5, 1.5, f64::MIN_POSITIVE, 1.0 - f64::EPSILON]);
+        for v in levels {
+            for (m, s) in [(0.0, 1.0), (1.5, 0.5), (-3.0, 2.0)] {
+                let a = cps.quantile(m, s, v, (-4.0, 6.0));
+                let b = table.quantile(&cps, m, s, v, (-4.0, 6.0));
+                assert_eq!(a.to_bits(), b.to_bits(), "level {v}, mid {m}, scale {s}");
+            }
+        }
+    }
+}
