@@ -28,10 +28,15 @@ fn loaded() -> &'static Loaded {
         let (ts, _) = sample::at_wells(&survey);
         let model = SavedModel::load(&f.out.join("model.json")).expect("model");
         let xy = survey.project.grid.node_coordinates();
+        let ground = model
+            .ground_flags(&survey, 0..survey.project.grid.len())
+            .expect("ground check");
         let kept = (0..survey.project.steps.len())
             .map(|s| {
                 let x = sample::node_features(&survey, s);
-                model.predict(x.view(), &xy).expect("predict")
+                model
+                    .predict(x.view(), &xy, ground.as_deref())
+                    .expect("predict")
             })
             .collect();
         Loaded {
