@@ -194,12 +194,14 @@ fn unlike_regions_are_not_silently_missed_more_than_measured() {
     // Silent misses (truth outside the band at a node not flagged as outside the area of
     // applicability), share of the region's nodes. The goal is <= 0.10; calib_bench measured
     // 0.11-0.20 in the lobe and 0.11-0.54 in the gas cap on 120 x 100 fields (seeds 1-3), so the
-    // bound here is the goal where it is met on this field and 0.40 otherwise; a method change
-    // that raises them past that fails.
+    // bound here is 0.25 in the lobe and 0.45 in the gas cap; a method change that raises them
+    // past that fails. The gas-cap bound was 0.40 until the range check gained its tolerance
+    // (`applicability::RANGE_MARGIN`), a deliberate trade documented there: dSw 0.317 -> 0.409
+    // and dSg 0.339 -> 0.385 here, for a lobe flag precision of 0.65 instead of 0.49.
     let f = field();
     let mut misses = Vec::new();
     for t in ["dP", "dSw", "dSg"] {
-        for (region, bound) in [("lobe", 0.25), ("gas_cap", 0.40)] {
+        for (region, bound) in [("lobe", 0.25), ("gas_cap", 0.45)] {
             let s = calibrated(&f.plain, t, region).silent_misses;
             eprintln!("{t} {region}: silent misses {s:.3}");
             misses.extend((s > bound).then(|| format!("{t} {region}: {s:.3} > {bound}")));
