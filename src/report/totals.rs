@@ -12,23 +12,8 @@ use base64::Engine as _;
 use serde::{Deserialize, Serialize};
 
 use super::ReportError;
+use super::markup::escape;
 use super::picture::{Curve, LinePicture, Reference, line_png};
-
-/// HTML-escapes text (the page's own helper lives above this module in the page's layering).
-fn escape(text: &str) -> String {
-    let mut out = String::with_capacity(text.len());
-    for c in text.chars() {
-        match c {
-            '&' => out.push_str("&amp;"),
-            '<' => out.push_str("&lt;"),
-            '>' => out.push_str("&gt;"),
-            '"' => out.push_str("&quot;"),
-            '\'' => out.push_str("&#39;"),
-            c => out.push(c),
-        }
-    }
-    out
-}
 
 /// Number lists with `NaN` as JSON `null` (as the rest of the page input stores them).
 mod nan_as_null {
