@@ -47,15 +47,12 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
         project.display()
     );
     let t0 = std::time::Instant::now();
-    if !args.quiet {
-        eprintln!("tidemark demo: {}", project.display());
-    }
     let mut opts = RunOptions::new(&project, &args.out);
     opts.quiet = args.quiet;
     opts.formats = Formats::default();
     opts.keep_realizations = args.keep_realizations;
     let outcome = run_pipeline(&opts).context("running the demo")?;
-    super::run::print_warnings(&outcome.record.warnings);
+    super::run::print_closing(&outcome, args.quiet);
     let truth = project.parent().map(|p| p.join("truth"));
     if let Some(truth) = truth.filter(|t| t.is_dir()) {
         crate::pipeline::score::score_and_report(&outcome.out, &truth)

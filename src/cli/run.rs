@@ -78,17 +78,27 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
         report: !args.no_pictures && !args.no_report,
         keep_realizations: args.keep_realizations,
     };
-    if !args.quiet {
-        eprintln!("tidemark run {}", args.project.display());
-    }
     let outcome =
         run_pipeline(&opts).with_context(|| format!("running {}", args.project.display()))?;
-    // Warnings are never silenced: `--quiet` hides progress and tables only.
-    print_warnings(&outcome.record.warnings);
+    print_closing(&outcome, args.quiet);
     if !args.quiet {
         println!("results in {}", outcome.out.display());
     }
     Ok(0)
+}
+
+/// What a run leaves on the console, in this order: its warnings (targets and steps without
+/// demonstrated skill first; never silenced), then unless `quiet` the leave-wells-out table and
+/// the stage times. Progress while the run works is transient, so the warnings are the first
+/// lines.
+pub fn print_closing(outcome: &crate::pipeline::run::RunOutcome, quiet: bool) {
+    print_warnings(&outcome.record.warnings);
+    if !quiet {
+        crate::pipeline::studies::print_table(&outcome.summary);
+        for line in crate::pipeline::stages::timing_lines(&outcome.record.timings) {
+            eprintln!("{line}");
+        }
+    }
 }
 
 /// Prints a run's warnings on stderr, one `warning: ...` line each.

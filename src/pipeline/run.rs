@@ -108,6 +108,8 @@ pub struct RunOutcome {
     pub model: SavedModel,
     /// `run.json` contents.
     pub record: RunRecord,
+    /// `summary.json` contents.
+    pub summary: studies::Summary,
 }
 
 /// Runs the main job.
@@ -145,9 +147,6 @@ pub fn run(opts: &RunOptions) -> Result<RunOutcome, PipelineError> {
     w.json("summary.json", &summary)?;
     model.save(&w.root.join("model.json"))?;
     w.written.push("model.json".into());
-    if !opts.quiet {
-        studies::print_table(&summary);
-    }
     stages.done("summary and model");
 
     if opts.pictures {
@@ -183,7 +182,13 @@ pub fn run(opts: &RunOptions) -> Result<RunOutcome, PipelineError> {
     let record = run_record(opts, project, seed, &model, &stages, warnings, &w.written);
     let out = w.root.clone();
     w.finish(&record)?;
-    Ok(RunOutcome { out, model, record })
+    stages.clear();
+    Ok(RunOutcome {
+        out,
+        model,
+        record,
+        summary,
+    })
 }
 
 /// Predicts every node of every step, writes the maps and `maps/metadata.json`, and returns the

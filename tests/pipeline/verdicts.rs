@@ -2,7 +2,7 @@
 //! their intervals (`none` where one reaches 0, `useful` where both clear the bars), a `useful`
 //! map has skill against the truth at every node, the page opens with the verdict table and its
 //! figures are those of `summary.json`, pictures without skill say so, `metrics_by_step` names
-//! its steps, and a quiet run prints the `none` verdicts first.
+//! its steps, and a run (quiet or not) prints the `none` verdicts first.
 
 use std::path::PathBuf;
 use std::process::Command;
@@ -269,18 +269,21 @@ fn metrics_by_step_names_its_steps() {
     }
 }
 
-#[test]
-fn a_quiet_run_prints_the_none_verdicts_first() {
+/// Runs the fixture's project with `--quiet` or without, and checks that the `none` verdicts are
+/// the first lines the run leaves on the console (progress is transient and hidden off a terminal).
+fn none_verdicts_come_first(quiet: bool) {
     let f = fixture();
-    let out = f.root.join("quiet");
-    let run = Command::new(env!("CARGO_BIN_EXE_tidemark"))
-        .arg("run")
+    let out = f.root.join(if quiet { "quiet" } else { "talkative" });
+    let mut cmd = Command::new(env!("CARGO_BIN_EXE_tidemark"));
+    cmd.arg("run")
         .arg(&f.project)
         .arg("--out")
         .arg(&out)
-        .args(["--quiet", "--no-pictures", "--no-xyz"])
-        .output()
-        .unwrap();
+        .args(["--no-pictures", "--no-xyz"]);
+    if quiet {
+        cmd.arg("--quiet");
+    }
+    let run = cmd.output().unwrap();
     let stderr = String::from_utf8_lossy(&run.stderr);
     assert!(run.status.success(), "exit status stays 0: {stderr}");
     let summary = json(out.join("summary.json"));
@@ -290,6 +293,7 @@ fn a_quiet_run_prints_the_none_verdicts_first() {
         .count();
     assert!(nones > 0);
     let lines: Vec<&str> = stderr.lines().collect();
+    assert!(lines.len() >= nones, "{stderr}");
     for l in &lines[..nones] {
         assert!(l.starts_with("warning: skill, target "), "{l}");
         assert!(l.ends_with(NO_SKILL), "{l}");
@@ -299,6 +303,27 @@ fn a_quiet_run_prints_the_none_verdicts_first() {
             .contains(&format!("warning: skill, target dSg, all steps: {NO_SKILL}").as_str())
     );
     assert!(!lines[nones..].iter().any(|l| l.contains(NO_SKILL)));
+    if !quiet {
+        // The validation table and the stage times follow the warnings.
+        assert!(
+            lines[nones..]
+                .iter()
+                .any(|l| l.contains("leave-wells-out validation")),
+            "{stderr}"
+        );
+        let stdout = String::from_utf8_lossy(&run.stdout);
+        assert!(stdout.starts_with("results in "), "{stdout}");
+    }
+}
+
+#[test]
+fn a_quiet_run_prints_the_none_verdicts_first() {
+    none_verdicts_come_first(true);
+}
+
+#[test]
+fn a_run_without_quiet_also_prints_the_none_verdicts_first() {
+    none_verdicts_come_first(false);
 }
 
 #[test]
