@@ -1,8 +1,9 @@
 //! Fitting and calibrating: the manifest's settings mapped onto [`CalibrationSettings`], the
 //! training rows of one target, one target calibrated on chosen rows and feature columns
 //! ([`calibrate_rows`], shared by the main run and the studies), permutation importance, and the
-//! whole model of a run ([`fit_model`]: every target, the covariate-shift estimate and the area of
-//! applicability).
+//! whole model of a run ([`fit_model`]: every target, the covariate-shift estimate, the area of
+//! applicability, and the nodes' share of change for each target with a "no change" atom,
+//! [`node_priors`]).
 //!
 //! The method itself lives in [`crate::calibrate`] (leave-wells-out calibration) and
 //! [`crate::applicability`] (Meyer & Pebesma 2021); permutation importance is Breiman's (2001,
