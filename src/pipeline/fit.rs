@@ -293,8 +293,9 @@ pub fn node_priors(
     if hurdles.is_empty() {
         return Ok(());
     }
-    let mut per_target: Vec<(f64, Vec<(String, Vec<f64>)>)> =
-        vec![(f64::NAN, Vec::new()); hurdles.len()];
+    // Per hurdle target: the wells' share, and each step's name and node probabilities.
+    let mut training = vec![f64::NAN; hurdles.len()];
+    let mut probs: Vec<Vec<(String, Vec<f64>)>> = vec![Vec::new(); hurdles.len()];
     for (s, step) in survey.project.steps.iter().enumerate() {
         let x = sample::node_features(survey, s);
         let n_attr = x.ncols() - 1;
@@ -304,20 +305,20 @@ pub fn node_priors(
         let compact = x.select(Axis(0), &valid);
         for (k, &t) in hurdles.iter().enumerate() {
             let cal = &calibrated[t];
-            let (p, training) = cal
-                .change_probability(compact.view())
-                .map_err(|source| PipelineError::Calibrate {
+            let found = cal.change_probability(compact.view()).map_err(|source| {
+                PipelineError::Calibrate {
                     target: cal.name.clone(),
                     source,
-                })?
-                .expect("hurdle targets with a training prior");
-            per_target[k].0 = training;
-            per_target[k].1.push((step.name.clone(), p));
+                }
+            })?;
+            if let Some((p, share)) = found {
+                training[k] = share;
+                probs[k].push((step.name.clone(), p));
+            }
         }
     }
     for (k, &t) in hurdles.iter().enumerate() {
-        let (training, steps) = &per_target[k];
-        let shift = calibrate::prior::PriorShift::fit(*training, steps);
+        let shift = calibrate::prior::PriorShift::fit(training[k], &probs[k]);
         let cal = &mut calibrated[t];
         if let Some(sh) = &shift
             && !sh.converged
