@@ -21,8 +21,10 @@
 //!
 //! [`calibrate_target`] ([`target`]) runs these as named stages ([`stages`], one module each,
 //! listed there with their inputs and outputs) on a target's [`TargetData`] ([`input`]);
-//! [`CalibratedTarget::predict`] applies the result at the grid nodes. The method modules
-//! ([`folds`], [`isotonic`], [`conformal`], [`exceedance`], [`shift`], [`units`]) sit below the
+//! [`CalibratedTarget::predict`] applies the result at the grid nodes, with a hurdle target's
+//! probability of a change adjusted to the nodes' share of change when the caller has set one
+//! ([`prior`]; Saerens, Latinne & Decaestecker 2002). The method modules
+//! ([`folds`], [`isotonic`], [`conformal`], [`exceedance`], [`shift`], [`units`], [`prior`]) sit below the
 //! stages and know nothing of them; this module only declares and re-exports.
 
 pub mod conformal;
@@ -33,6 +35,7 @@ pub mod hurdle;
 pub mod input;
 pub mod isotonic;
 pub mod predict;
+pub mod prior;
 pub mod profile;
 pub mod shift;
 pub mod stages;

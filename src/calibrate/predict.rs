@@ -3,11 +3,17 @@
 //! ([`super::target`]): the isotonic correction, the conformal band (Mondrian or forest-localised
 //! quantiles, Lu & Hardin 2021; Tibshirani et al. 2019) and the conformal predictive system
 //! (Vovk et al. 2019) or the recalibrated forest CDF (Kuleshov et al. 2018).
+//!
+//! Every row is predicted on its own, with one exception that the caller sets: a hurdle
+//! target's probability of a change is adjusted to the share of change of the whole mapped
+//! population ([`CalibratedTarget::set_prior`], [`super::prior`]), which is estimated once from
+//! all the nodes and then applied to each row alike.
 
 use super::conformal::{BandBase, BandMethod};
 use super::error::CalibrateError;
 use super::exceedance::{ExceedMethod, bounded_cdf, crossing_probability};
 use super::hurdle;
+use super::prior::PriorShift;
 use super::stages::hurdle::{self as stage, CpsAt, HurdleModel};
 use super::target::{CalibratedTarget, TargetPrediction};
 use ndarray::{Array2, ArrayView2};
@@ -78,6 +84,45 @@ impl CalibratedTarget {
         self.hurdle.as_ref().map_or(&self.forest, |h| &h.reference)
     }
 
+    /// A hurdle target's probability of a change at every row of `x` as calibrated on the wells
+    /// (under the wells' share of change, before any [`PriorShift`]), and that share; `None` for
+    /// a continuous target or a model without the share. Errors when the column count differs.
+    pub fn change_probability(
+        &self,
+        x: ArrayView2<f64>,
+    ) -> Result<Option<(Vec<f64>, f64)>, CalibrateError> {
+        let Some((h, training)) = self
+            .hurdle
+            .as_ref()
+            .and_then(|h| h.training_prior.map(|t| (h, t)))
+        else {
+            return Ok(None);
+        };
+        if x.ncols() != self.n_features {
+            return Err(CalibrateError::Length {
+                target: self.name.clone(),
+                what: "feature columns",
+                got: x.ncols(),
+                expected: self.n_features,
+            });
+        }
+        let raw = h.forest.predict(x);
+        let p = raw.column(0).iter().map(|&r| h.map.predict(r)).collect();
+        Ok(Some((p, training)))
+    }
+
+    /// Adjusts the probability of a change of a hurdle target to the nodes' share of change
+    /// from now on (every later prediction, and the diagnostics); `None` restores the wells'
+    /// share. Does nothing for a continuous target.
+    pub fn set_prior(&mut self, shift: Option<PriorShift>) {
+        if let Some(h) = &mut self.hurdle {
+            h.prior = shift.clone();
+            if let Some(d) = &mut self.diagnostics.hurdle {
+                d.prior = shift;
+            }
+        }
+    }
+
     /// The conditional part's middle and residual scale at every row of `x` (the continuous
     /// model's own prediction).
     pub fn conditional_at(
@@ -98,7 +143,12 @@ impl CalibratedTarget {
     ) -> TargetPrediction {
         let raw = h.forest.predict(x);
         let n = parts.mid.len();
-        let p: Vec<f64> = (0..n).map(|i| h.map.predict(raw[[i, 0]])).collect();
+        let p: Vec<f64> = (0..n)
+            .map(|i| {
+                let p = h.map.predict(raw[[i, 0]]);
+                h.prior.as_ref().map_or(p, |s| s.apply(p))
+            })
+            .collect();
         let (u_lo, u_mid, u_hi) = h.levels;
         let nt = self.thresholds.len();
         let rows: Vec<(f64, f64, f64, Vec<f64>)> = (0..n)

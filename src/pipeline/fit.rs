@@ -1,8 +1,9 @@
 //! Fitting and calibrating: the manifest's settings mapped onto [`CalibrationSettings`], the
 //! training rows of one target, one target calibrated on chosen rows and feature columns
 //! ([`calibrate_rows`], shared by the main run and the studies), permutation importance, and the
-//! whole model of a run ([`fit_model`]: every target, the covariate-shift estimate and the area of
-//! applicability).
+//! whole model of a run ([`fit_model`]: every target, the covariate-shift estimate, the area of
+//! applicability, and the nodes' share of change for each target with a "no change" atom,
+//! [`node_priors`]).
 //!
 //! The method itself lives in [`crate::calibrate`] (leave-wells-out calibration) and
 //! [`crate::applicability`] (Meyer & Pebesma 2021); permutation importance is Breiman's (2001,
@@ -249,6 +250,7 @@ pub fn fit_model(
         bar.inc(1);
     }
     bar.finish_and_clear();
+    node_priors(survey, &mut calibrated)?;
     stages.done("fit and calibrate");
 
     let model = SavedModel {
@@ -267,6 +269,69 @@ pub fn fit_model(
         wells_vs_nodes,
     };
     Ok((model, imp))
+}
+
+/// Adjusts every hurdle target's probability of a change to the share of change among the
+/// survey's mapped nodes ([`crate::calibrate::prior`]; Saerens, Latinne & Decaestecker 2002):
+/// the calibrated probability at every node with all attributes of every step, one EM estimate
+/// of the nodes' share over all steps together (the probability forest and its recalibration
+/// pool the steps, so its prior is the wells' share over all steps), set on the target. A
+/// target whose estimate cannot be made keeps the wells' share; an iteration that did not
+/// settle is kept and warned about.
+pub fn node_priors(
+    survey: &Survey,
+    calibrated: &mut [CalibratedTarget],
+) -> Result<(), PipelineError> {
+    let hurdles: Vec<usize> = (0..calibrated.len())
+        .filter(|&t| {
+            calibrated[t]
+                .hurdle
+                .as_ref()
+                .is_some_and(|h| h.training_prior.is_some())
+        })
+        .collect();
+    if hurdles.is_empty() {
+        return Ok(());
+    }
+    // Per hurdle target: the wells' share, and each step's name and node probabilities.
+    let mut training = vec![f64::NAN; hurdles.len()];
+    let mut probs: Vec<Vec<(String, Vec<f64>)>> = vec![Vec::new(); hurdles.len()];
+    for (s, step) in survey.project.steps.iter().enumerate() {
+        let x = sample::node_features(survey, s);
+        let n_attr = x.ncols() - 1;
+        let valid: Vec<usize> = (0..x.nrows())
+            .filter(|&r| x.row(r).iter().take(n_attr).all(|v| v.is_finite()))
+            .collect();
+        let compact = x.select(Axis(0), &valid);
+        for (k, &t) in hurdles.iter().enumerate() {
+            let cal = &calibrated[t];
+            let found = cal.change_probability(compact.view()).map_err(|source| {
+                PipelineError::Calibrate {
+                    target: cal.name.clone(),
+                    source,
+                }
+            })?;
+            if let Some((p, share)) = found {
+                training[k] = share;
+                probs[k].push((step.name.clone(), p));
+            }
+        }
+    }
+    for (k, &t) in hurdles.iter().enumerate() {
+        let shift = calibrate::prior::PriorShift::fit(training[k], &probs[k]);
+        let cal = &mut calibrated[t];
+        if let Some(sh) = &shift
+            && !sh.converged
+        {
+            cal.diagnostics.warnings.push(format!(
+                "the share of change at the nodes did not settle in {} iterations; the \
+                 probability of a change uses the last estimate, {:.3} (wells: {:.3})",
+                sh.iterations, sh.estimated, sh.training
+            ));
+        }
+        cal.set_prior(shift);
+    }
+    Ok(())
 }
 
 /// The ground check ([`Ground`]) fitted on the wells of the training set: one position, one

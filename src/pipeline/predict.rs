@@ -1,7 +1,17 @@
 //! `predict`: applies a saved model to a project with the same attributes (for example a new
 //! monitor survey), on the whole grid or on one tile of it so that a batch scheduler can spread a
 //! very large grid over many machines. Tiles are bands of whole grid rows; put together they equal
-//! the whole map exactly, because every node is predicted independently of the others.
+//! the whole map exactly, because every node is predicted independently of the others given the
+//! model.
+//!
+//! One quantity of the model concerns the whole mapped population rather than a node: the share
+//! of change at the nodes, to which a hurdle target's probability of a change is adjusted
+//! ([`crate::calibrate::prior`]). `run` estimates it once over every mapped node of every step
+//! and stores it in `model.json`; `predict` reuses that stored estimate and never re-estimates it,
+//! on a tile, a sub-area or a new project alike. A tile or a sub-area is not a fair sample of
+//! the field (a tile over the flooded ground would find a higher share), and re-estimating would
+//! break the equality of tiles with the whole map. For a new survey whose share of change is
+//! expected to differ much from the training run's, fit a new run on it.
 
 use super::PipelineError;
 use super::model::{SavedModel, convention_text};

@@ -11,6 +11,7 @@ mod isotonic;
 mod local;
 mod metrics;
 mod pit;
+mod prior;
 mod shift;
 mod stages;
 mod target;

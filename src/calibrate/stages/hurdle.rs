@@ -8,6 +8,9 @@
 //!    probability of a change (a probability forest; Malley, Kruppa, Dasgupta, Malley & Ziegler
 //!    2012, Methods Inf. Med. 51:74), recalibrated by isotonic regression of the indicator on the
 //!    out-of-fold estimate (Zadrozny & Elkan 2002, KDD), cross-fitted on the folds of whole wells.
+//!    Its weighted mean is the wells' weighted share of changed rows, kept as the training prior
+//!    ([`HurdleModel::training_prior`]) so that the nodes' share of change can replace it
+//!    ([`crate::calibrate::prior`]).
 //! 2. **By how much, given that it changed?** Every continuous stage runs on the changed rows
 //!    only; its conformal predictive system (Vovk et al. 2019) is the conditional distribution `G`.
 //! 3. **The mixture.** `F = (1 - p) 1{y >= 0} + p G`. Its randomised PIT values at held-out rows
@@ -33,6 +36,7 @@ use crate::calibrate::folds::Folds;
 use crate::calibrate::hurdle::{self, Conditional, ZeroRule};
 use crate::calibrate::input::{CalibrationSettings, Space, TargetData};
 use crate::calibrate::isotonic::{IsotonicMap, IsotonicSettings, cross_fit};
+use crate::calibrate::prior::PriorShift;
 use crate::calibrate::units::{Units, count_wells, pick};
 use crate::ensemble::{Forest, ForestSettings};
 use crate::metrics::brier;
@@ -86,6 +90,14 @@ pub struct HurdleModel {
     /// A plain quantile forest on all rows (changed or not), kept as the uncalibrated reference
     /// that scoring compares the mixture with; the maps never use it.
     pub reference: Forest,
+    /// The wells' weighted share of changed rows (all steps): the prior the recalibrated
+    /// probability of a change carries (absent in models written before it was kept).
+    #[serde(default)]
+    pub training_prior: Option<f64>,
+    /// The probability of a change adjusted to the nodes' share of change, when the caller
+    /// estimated it ([`crate::calibrate::prior`]); `None`: the wells' share stands.
+    #[serde(default)]
+    pub prior: Option<PriorShift>,
 }
 
 /// What the hurdle did, for `summary.json` and the report.
@@ -109,6 +121,10 @@ pub struct HurdleDiagnostics {
     /// those rows.
     #[serde(deserialize_with = "crate::metrics::serde_nan::f64_or_nan")]
     pub zero_coverage: f64,
+    /// The nodes' share of change and the adjustment of the probability of a change to it (as
+    /// [`HurdleModel::prior`]).
+    #[serde(default)]
+    pub prior: Option<PriorShift>,
 }
 
 /// What the hurdle stage returns to the assembly of the target.
@@ -293,7 +309,17 @@ pub fn calibrate(
         brier_change_base_rate: brier(&vec![rate; n], &outcome),
         levels,
         zero_coverage,
+        prior: None,
     };
+    let total_weight: f64 = data.weight.iter().sum();
+    let training_prior = (total_weight > 0.0).then(|| {
+        changed
+            .iter()
+            .zip(data.weight)
+            .map(|(c, w)| c * w)
+            .sum::<f64>()
+            / total_weight
+    });
     Ok(Hurdle {
         model: HurdleModel {
             rule: rule.clone(),
@@ -302,6 +328,8 @@ pub fn calibrate(
             levels,
             recalibration,
             reference,
+            training_prior,
+            prior: None,
         },
         diagnostics,
         truth,
