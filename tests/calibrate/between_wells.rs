@@ -212,9 +212,11 @@ fn unlike_regions_are_not_silently_missed_more_than_measured() {
 
 #[test]
 fn the_no_change_atom_keeps_the_p50_near_zero_where_nothing_changed() {
-    // Goal +-0.01 for saturation targets; reached for dSg, dSw's reached 0.035 on the bench.
+    // Goal +-0.01 for saturation targets. With the nodes' share of change (prior shift of the
+    // change probability) the bench's mean over seeds 1-5 is 0.009 for dSw (two seeds of five
+    // above 0.01: 0.017, 0.013) and 0.006 for dSg; this field measured 0.016 and 0.0002.
     // Asserted: the calibrated P50 there is no farther from 0 than the uncalibrated forest's
-    // median, and within 0.05.
+    // median, and within 0.03 (0.05 before the prior shift).
     let f = field();
     for t in ["dSw", "dSg"] {
         let s = set(&f.plain, t, "unchanged");
@@ -225,6 +227,6 @@ fn the_no_change_atom_keeps_the_p50_near_zero_where_nothing_changed() {
             ours.abs() <= forest.abs() + 1e-9,
             "{t}: {ours} vs forest {forest}"
         );
-        assert!(ours.abs() <= 0.05, "{t}: {ours}");
+        assert!(ours.abs() <= 0.03, "{t}: {ours}");
     }
 }
