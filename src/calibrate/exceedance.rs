@@ -53,6 +53,34 @@ pub fn bounded_cdf(p: f64, t: f64, bounds: (f64, f64)) -> f64 {
     }
 }
 
+/// `P(Y <= t)` (or `P(Y < t)` when `strict`) made consistent with a band: a distribution whose
+/// quantile at level `u_k` is `y_k` (`Q(u) = inf{y : F(y) >= u}`) has `F(t) >= u_k` for
+/// `t >= y_k` and `F(t) < u_k` for `t < y_k` (for `P(Y < t)`: `>= u_k` when `t > y_k`, `<= u_k`
+/// when `t <= y_k`). `p` is clipped to the interval those constraints leave (closed at its upper
+/// end), so that the band's quantiles and the crossing probabilities describe one distribution.
+/// A `NaN` `p` or band value leaves `p` as it is.
+pub fn band_consistent(p: f64, t: f64, strict: bool, band: &[(f64, f64)]) -> f64 {
+    if p.is_nan() || t.is_nan() {
+        return p;
+    }
+    let (mut lo, mut hi) = (0.0f64, 1.0f64);
+    for &(u, y) in band {
+        if y.is_nan() || u.is_nan() {
+            continue;
+        }
+        let reached = if strict { t > y } else { t >= y };
+        if reached {
+            lo = lo.max(u);
+        } else {
+            hi = hi.min(u);
+        }
+    }
+    if lo > hi {
+        return p;
+    }
+    p.clamp(lo, hi)
+}
+
 /// Mondrian conformal predictive system (Vovk et al. 2019): sorted held-out residuals per bin of
 /// the predicted value, with cumulative well weights. Residuals may be scaled by a local spread
 /// `s` (`a_i = (y_i - mid_i)/s_i`, and `Q(t)` uses `(t - mid)/s`), which keeps the system's

@@ -161,6 +161,49 @@ impl CpsLevels {
     }
 }
 
+impl CpsLevels {
+    /// The quantile function of bin `b` made continuous: linear in the level between two
+    /// consecutive residuals' levels (the system's own quantile, [`Self::quantile_in_bin`], is a
+    /// step function). It passes
+    /// through the system's quantile at every residual's level and increases strictly between
+    /// distinct residuals, so a quantile function rescaled through it has no flat stretch where
+    /// a written probability would otherwise fall. Below the first and above the last
+    /// residual's level it continues with the bin's mean slope (the system itself puts that
+    /// mass at the bounds, the new point's own weight at infinity), and values are not clipped
+    /// to the target's bounds: a clip would make it flat. Callers clip the final value.
+    pub fn interpolated_in_bin(
+        &self,
+        cps: &PredictiveSystem,
+        b: usize,
+        mid: f64,
+        scale: f64,
+        v: f64,
+    ) -> f64 {
+        if !mid.is_finite() || scale.is_nan() || scale <= 0.0 || v.is_nan() {
+            return f64::NAN;
+        }
+        let k = self.first_reaching(b, v);
+        let r = &cps.residuals[b];
+        let levels = &self.levels[b];
+        let n = r.len();
+        // The bin's mean slope, level to residual, carries the ends.
+        let slope = if n > 1 && levels[n - 1] > levels[0] {
+            (r[n - 1] - r[0]) / (levels[n - 1] - levels[0])
+        } else {
+            0.0
+        };
+        if k == n {
+            return mid + scale * (r[n - 1] + slope * (v - levels[n - 1]));
+        }
+        if k == 0 {
+            return mid + scale * (r[0] - slope * (levels[0] - v));
+        }
+        let (l0, l1) = (levels[k - 1], levels[k]);
+        let f = ((v - l0) / (l1 - l0)).clamp(0.0, 1.0);
+        mid + scale * lerp(r[k - 1], r[k], f)
+    }
+}
+
 /// One target's calibrated distribution at every node of one step.
 pub struct CalibratedNodes<'a> {
     cal: &'a CalibratedTarget,
@@ -179,6 +222,51 @@ pub struct CalibratedNodes<'a> {
     v: [f64; 3],
     /// Base quantiles at `v`, per node.
     knots: Vec<[f64; 3]>,
+    /// Per node, `per` points `(level, value, base quantile)` of the quantile function sorted by
+    /// level: the band's three and each threshold's (its written probability of lying below the
+    /// threshold), `NaN` levels padding the unused slots.
+    points: Vec<Point>,
+    /// Points per node: 3 + the target's thresholds.
+    per: usize,
+}
+
+/// Share of the level (against the base quantile) in the interpolation between two points and
+/// in the tails: the base can be flat over a stretch of levels (the hurdle's atom, a clip at a
+/// bound), and a little of the level keeps the quantile function strictly increasing between
+/// distinct points, so that a point's level is exactly the probability of lying below it.
+/// Common practice, no published source.
+const LEVEL_SHARE: f64 = 0.01;
+
+/// Value per level of a tail's level share: the band half's `s`, or where that half has no width
+/// the points' overall slope, or 1.
+fn per_level(s: f64, pts: &[Point]) -> f64 {
+    if s > 0.0 {
+        return s;
+    }
+    let (first, last) = (pts[0], pts[pts.len() - 1]);
+    let overall = (last.y - first.y) / (last.u - first.u);
+    if overall > 0.0 && overall.is_finite() {
+        overall
+    } else {
+        1.0
+    }
+}
+
+/// A point `(u, y)` the node's quantile function passes through, with the base quantile `b` at
+/// the warped level of `u`.
+#[derive(Clone, Copy, Debug)]
+struct Point {
+    u: f64,
+    y: f64,
+    b: f64,
+}
+
+impl Point {
+    const NONE: Point = Point {
+        u: f64::NAN,
+        y: f64::NAN,
+        b: f64::NAN,
+    };
 }
 
 impl<'a> CalibratedNodes<'a> {
@@ -227,12 +315,55 @@ impl<'a> CalibratedNodes<'a> {
             u,
             v,
             knots: Vec::new(),
+            points: Vec::new(),
+            per: 3 + cal.thresholds.len().min(maps.exceed.len()),
         };
         out.knots = (0..maps.mid.len())
             .into_par_iter()
             .map(|i| v.map(|l| out.base(i, l)))
             .collect();
+        out.points = (0..maps.mid.len())
+            .into_par_iter()
+            .flat_map_iter(|i| out.node_points(i))
+            .collect();
         Ok(out)
+    }
+
+    /// Node `i`'s points, `per` of them: the band's, then every threshold's whose written
+    /// probability is consistent with the points kept before it (a quantile function is
+    /// non-decreasing), sorted by level and value.
+    fn node_points(&self, i: usize) -> Vec<Point> {
+        let mut pts = Vec::with_capacity(self.per);
+        let band = [self.maps.lo[i], self.maps.mid[i], self.maps.hi[i]];
+        for k in 0..3 {
+            pts.push(Point {
+                u: self.u[k],
+                y: band[k],
+                b: self.knots[i][k],
+            });
+        }
+        let (lo_b, hi_b) = self.cal.bounds;
+        for (k, th) in self.cal.thresholds.iter().enumerate().take(self.per - 3) {
+            let e = self.maps.exceed[k][i];
+            let u = if th.above { 1.0 - e } else { e };
+            let t = th.value;
+            if !((0.0..=1.0).contains(&u) && t > lo_b && t < hi_b) {
+                continue;
+            }
+            let fits = pts.iter().all(|p| {
+                !(p.y.is_finite()) || (p.u < u && p.y <= t) || (p.u > u && p.y >= t) || p.u == u
+            });
+            if fits {
+                pts.push(Point {
+                    u,
+                    y: t,
+                    b: self.base(i, self.warp(u)),
+                });
+            }
+        }
+        pts.sort_by(|a, b| a.u.total_cmp(&b.u).then(a.y.total_cmp(&b.y)));
+        pts.resize(self.per, Point::NONE);
+        pts
     }
 
     /// The model's own quantile function at node `i`: the conditional predictive system, or
@@ -240,11 +371,10 @@ impl<'a> CalibratedNodes<'a> {
     /// per node).
     fn base(&self, i: usize, level: f64) -> f64 {
         let (mid, scale) = (self.cond.0[i], self.cond.1[i]);
-        let bounds = self.cal.bounds;
         let b = self.bin[i] as usize;
         let g = |v: f64| {
             self.table
-                .quantile_in_bin(&self.cal.cps, b, mid, scale, v, bounds)
+                .interpolated_in_bin(&self.cal.cps, b, mid, scale, v)
         };
         let p = match (&self.cal.hurdle, &self.maps.p_change) {
             (Some(_), Some(p)) => p[i],
@@ -283,49 +413,52 @@ impl<'a> CalibratedNodes<'a> {
 
 impl NodeDistribution for CalibratedNodes<'_> {
     fn quantile(&self, i: usize, u: f64) -> f64 {
-        // A level within rounding of a map level is that level (`(1 - 0.8) / 2` is not 0.1).
-        let u = self
-            .u
-            .iter()
-            .copied()
-            .find(|k| (u - k).abs() <= 1e-12)
-            .unwrap_or(u);
         let (lo, mid, hi) = (self.maps.lo[i], self.maps.mid[i], self.maps.hi[i]);
         if !(lo.is_finite() && mid.is_finite() && hi.is_finite()) {
             return f64::NAN;
         }
+        let bounds = self.cal.bounds;
+        // A level within rounding of a map level gives the written value (`(1 - 0.8) / 2` is not
+        // 0.1).
+        if let Some(k) = self.u.iter().position(|k| (u - k).abs() <= 1e-12) {
+            return [lo, mid, hi][k].clamp(bounds.0, bounds.1);
+        }
+        let pts = &self.points[i * self.per..(i + 1) * self.per];
+        let pts = &pts[..pts.iter().take_while(|p| !p.u.is_nan()).count()];
         let [b_lo, b_mid, b_hi] = self.knots[i];
         let b = self.base(i, self.warp(u));
-        let y = if u < self.u[0] {
+        let j = pts.partition_point(|p| p.u < u);
+        let y = if j == 0 {
             let s = if b_mid > b_lo {
                 (mid - lo) / (b_mid - b_lo)
             } else {
                 1.0
             };
-            lo - s * (b_lo - b).max(0.0)
-        } else if u <= self.u[1] {
-            let f = if b_mid > b_lo {
-                ((b - b_lo) / (b_mid - b_lo)).clamp(0.0, 1.0)
-            } else {
-                (u - self.u[0]) / (self.u[1] - self.u[0])
-            };
-            lerp(lo, mid, f)
-        } else if u <= self.u[2] {
-            let f = if b_hi > b_mid {
-                ((b - b_mid) / (b_hi - b_mid)).clamp(0.0, 1.0)
-            } else {
-                (u - self.u[1]) / (self.u[2] - self.u[1])
-            };
-            lerp(mid, hi, f)
-        } else {
+            let s_u = per_level((mid - lo) / (self.u[1] - self.u[0]), pts);
+            let f = pts[0].u - u;
+            pts[0].y - (1.0 - LEVEL_SHARE) * s * (pts[0].b - b).max(0.0) - LEVEL_SHARE * s_u * f
+        } else if j == pts.len() {
             let s = if b_hi > b_mid {
                 (hi - mid) / (b_hi - b_mid)
             } else {
                 1.0
             };
-            hi + s * (b - b_hi).max(0.0)
+            let s_u = per_level((hi - mid) / (self.u[2] - self.u[1]), pts);
+            let last = pts[j - 1];
+            let f = u - last.u;
+            last.y + (1.0 - LEVEL_SHARE) * s * (b - last.b).max(0.0) + LEVEL_SHARE * s_u * f
+        } else {
+            let (a, c) = (pts[j - 1], pts[j]);
+            let by_level = (u - a.u) / (c.u - a.u);
+            let f = if c.b > a.b {
+                let by_base = ((b - a.b) / (c.b - a.b)).clamp(0.0, 1.0);
+                (1.0 - LEVEL_SHARE) * by_base + LEVEL_SHARE * by_level
+            } else {
+                by_level
+            };
+            lerp(a.y, c.y, f)
         };
-        y.clamp(self.cal.bounds.0, self.cal.bounds.1)
+        y.clamp(bounds.0, bounds.1)
     }
 }
 
