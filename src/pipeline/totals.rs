@@ -213,6 +213,11 @@ pub fn compute(
             } else {
                 Vec::new()
             },
+            calibration: scores[t]
+                .iter()
+                .filter(|(st, _)| *st == s)
+                .map(|(_, w)| w.clone())
+                .collect(),
             distribution: d as &dyn NodeDistribution,
         })
         .collect();
@@ -223,6 +228,7 @@ pub fn compute(
         seed: derive_seed(seed, &[STREAM_TOTALS]),
         keep_maps: opts.keep.unwrap_or(section.keep_realizations),
         convention: model.convention,
+        calibration_draw: section.calibration_uncertainty,
         ..TotalsSettings::default()
     };
     let output = engine::simulate(

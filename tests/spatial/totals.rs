@@ -115,6 +115,7 @@ fn input<'a>(
             Layer {
                 name: "dSw m1".into(),
                 field: 0,
+                calibration: wells.clone(),
                 wells,
                 distribution: hurdle,
             },
@@ -122,6 +123,7 @@ fn input<'a>(
                 name: "dP m1".into(),
                 field: 1,
                 wells: Vec::new(),
+                calibration: Vec::new(),
                 distribution: closure,
             },
         ],
@@ -409,6 +411,7 @@ fn comonotone_rule_and_conventions_by_hand() {
                 name: "x m1".into(),
                 field: 0,
                 wells: Vec::new(),
+                calibration: Vec::new(),
                 distribution: &dist,
             }],
             quantities: vec![
