@@ -13,8 +13,9 @@
 //! spacings), by step, and by whether the node's P50 is the "no change" atom.
 //!
 //! `cargo run --release --example totals_calibration -- [--seeds N] [--first S] [--out DIR]
-//! [--calibration-draw]` (defaults: 30 seeds from 1, fields under `target/totals_calibration`;
-//! `--calibration-draw` sets `[totals] calibration_uncertainty = true` in every manifest).
+//! [--no-calibration-draw] [--no-atom TARGET]...` (defaults: 30 seeds from 1, fields under
+//! `target/totals_calibration`; `--no-calibration-draw` sets `[totals] calibration_uncertainty =
+//! false` in every manifest, `--no-atom dP` sets `zero_change = false` for that target).
 
 use std::collections::BTreeMap;
 use std::path::PathBuf;
@@ -170,7 +171,8 @@ fn print_diagnosis(name: &str, d: &Diagnosis) {
 fn main() {
     let mut seeds = 30u64;
     let mut first = 1u64;
-    let mut draw = false;
+    let mut draw = true;
+    let mut no_atom: Vec<String> = Vec::new();
     let mut out = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("target/totals_calibration");
     let mut args = std::env::args().skip(1);
     while let Some(a) = args.next() {
@@ -178,7 +180,8 @@ fn main() {
             "--seeds" => seeds = args.next().and_then(|v| v.parse().ok()).expect("--seeds N"),
             "--first" => first = args.next().and_then(|v| v.parse().ok()).expect("--first S"),
             "--out" => out = PathBuf::from(args.next().expect("--out DIR")),
-            "--calibration-draw" => draw = true,
+            "--no-calibration-draw" => draw = false,
+            "--no-atom" => no_atom.push(args.next().expect("--no-atom TARGET")),
             other => panic!("unknown argument {other}"),
         }
     }
@@ -207,11 +210,18 @@ fn main() {
         let field = generate(&settings).unwrap_or_else(|e| panic!("seed {seed}: {e}"));
         write_project(&field, &settings, &field_dir).expect("write the field");
         let manifest = field_dir.join("project.toml");
-        if draw {
+        for target in &no_atom {
+            let text = std::fs::read_to_string(&manifest).expect("manifest");
+            let key = format!("name = \"{target}\"\n");
+            assert!(text.contains(&key), "no target {target}");
+            let text = text.replacen(&key, &format!("{key}zero_change = false\n"), 1);
+            std::fs::write(&manifest, text).expect("manifest");
+        }
+        if !draw {
             let text = std::fs::read_to_string(&manifest).expect("manifest");
             let text = text.replacen(
                 "[totals]\n",
-                "[totals]\ncalibration_uncertainty = true\n",
+                "[totals]\ncalibration_uncertainty = false\n",
                 1,
             );
             std::fs::write(&manifest, text).expect("manifest");

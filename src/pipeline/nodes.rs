@@ -1,28 +1,35 @@
 //! Every node's full calibrated predictive distribution, as a quantile function for the field
 //! totals ([`crate::spatial::totals`]), and the spatial correlation of the wells' held-out errors.
 //!
-//! **Node distributions** ([`CalibratedNodes`]). The maps give three quantiles per node (the band
-//! edges and the middle, after the spread rule); the model's predictive system gives the shape
-//! between and beyond them: the conformal predictive system around the node's conditional middle
-//! (Vovk, Shen, Manokhin & Xie 2019), mixed with the "no change" atom for a hurdle target
-//! (Mullahy 1986; [`crate::calibrate::hurdle`]). The quantile function is that base quantile
-//! function `Qb`, read at levels warped piecewise linearly so that the map's levels land on the
-//! levels the band was made at (for a hurdle target the band edges sit at the conformal PIT
-//! levels of the mixture, Czado, Gneiting & Held 2009), and rescaled piecewise linearly in value
-//! so that it passes exactly through the written map values:
+//! **Node distributions** ([`CalibratedNodes`]). One distribution per node, the same for the
+//! band, the exceedance maps and the totals. The maps give three quantiles per node (the band
+//! edges and the middle, after the spread rule) and, per threshold, the probability of crossing
+//! it, which [`crate::calibrate::CalibratedTarget::predict_at`] has already widened with the
+//! band (the spread stretches the whole distribution about the middle) and made consistent with
+//! it. The node's quantile function passes through all of them: the points `(u, y)` are the
+//! band's `((1 - level)/2, lo)`, `(1/2, mid)`, `((1 + level)/2, hi)` and each threshold's
+//! `(P(Y below t), t)`. The model's predictive system gives the shape between and beyond them:
+//! the conformal predictive system around the node's conditional middle (Vovk, Shen, Manokhin &
+//! Xie 2019), made continuous by linear interpolation between its residuals' levels, mixed with
+//! the "no change" atom for a hurdle target (Mullahy 1986; [`crate::calibrate::hurdle`]). That
+//! base quantile function `Qb` is read at levels warped piecewise linearly so that the map's
+//! band levels land on the levels the band was made at (for a hurdle target the band edges sit at
+//! the conformal PIT levels of the mixture, Czado, Gneiting & Held 2009), and each stretch
+//! between two points is rescaled in value to join them:
 //!
 //! ```text
-//! Q(u) = lo  + (mid - lo) (Qb(v) - Qb(v_lo)) / (Qb(v_mid) - Qb(v_lo))   for u in [u_lo, 1/2]
-//! Q(u) = mid + (hi - mid) (Qb(v) - Qb(v_mid)) / (Qb(v_hi) - Qb(v_mid))  for u in [1/2, u_hi]
+//! Q(u) = y_k + (y_k+1 - y_k) f,   f = 0.99 (Qb(v) - Qb(v_k)) / (Qb(v_k+1) - Qb(v_k))
+//!                                     + 0.01 (u - u_k) / (u_k+1 - u_k)
 //! ```
 //!
-//! with the outer segments' scale carried into the tails, and everything clipped to the target's
-//! bounds. At `u = (1 - level)/2, 1/2, (1 + level)/2` it gives the written P10, P50 and P90
-//! exactly; the spread rule, which widens the band about the middle, widens the tails by the same
-//! factor; the atom at zero stays an atom. The exceedance maps come from the same predictive
-//! system (or the recalibrated forest CDF, whichever scored better out of fold), so the crossing
-//! frequency of realizations matches them only as far as the band and that system agree; the
-//! tests measure how far.
+//! with the outer band segments' scale carried into the tails, and everything clipped to the
+//! target's bounds. The hundredth of plain level keeps `Q` strictly increasing where the base is
+//! flat (its atom, a stretch the two models disagree on), so the level of a threshold's point is
+//! exactly the probability of lying below it. At the band levels it gives the written P10, P50
+//! and P90 exactly; at each threshold, the written probability; the atom at zero stays an atom.
+//! A threshold's point that contradicts the band or an earlier point is left out (`predict_at`
+//! clips every probability to what the band allows, but two thresholds of one target whose
+//! probabilities come from different methods could still disagree with each other).
 //!
 //! **Error correlation** ([`correlation`]). Each target's held-out well rows carry their PIT value
 //! under the cross-fitted predictive system (randomised at the atom for a hurdle target); their

@@ -329,8 +329,8 @@ pub struct TotalsSection {
     #[serde(default)]
     pub keep_realizations: usize,
     /// Draw the calibration per realization, so that totals carry its uncertainty
-    /// ([`super::bootstrap`]); default off.
-    #[serde(default)]
+    /// ([`super::bootstrap`]); default on.
+    #[serde(default = "default_true")]
     pub calibration_uncertainty: bool,
     /// The totals.
     #[serde(default)]
@@ -339,6 +339,10 @@ pub struct TotalsSection {
     /// relative to the manifest's folder (the project resolves them when it loads).
     #[serde(default, skip_serializing_if = "std::collections::BTreeMap::is_empty")]
     pub maps: std::collections::BTreeMap<String, String>,
+}
+
+fn default_true() -> bool {
+    true
 }
 
 impl TotalsSection {
@@ -615,6 +619,12 @@ pub struct LayerReport {
     pub active_nodes: usize,
     /// What happened to its wells.
     pub conditioning: ConditioningReport,
+    /// Wells behind the calibration draw (0: no draw).
+    #[serde(default)]
+    pub calibration_wells: usize,
+    /// Standard deviation of the drawn shift of the wells' mean normal score (0: no draw).
+    #[serde(default)]
+    pub calibration_shift_sd: f64,
 }
 
 /// A kept realization map.
@@ -1263,6 +1273,8 @@ pub fn simulate(
             name: l.name.clone(),
             active_nodes: p.active.iter().filter(|&&a| a).count(),
             conditioning: p.conditioning.report().clone(),
+            calibration_wells: p.draw.as_ref().map_or(0, |d| d.scores.scores.len()),
+            calibration_shift_sd: p.draw.as_ref().map_or(0.0, |d| d.scores.variance.sqrt()),
         })
         .collect();
     Ok(TotalsOutput {
