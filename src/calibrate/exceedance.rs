@@ -317,4 +317,25 @@ mod tests {
         assert!((r.apply(0.5) - 0.6).abs() < 1e-12);
         assert!((r.apply(1.0) - 1.0).abs() < 1e-12);
     }
+
+    #[test]
+    fn probabilities_are_clipped_to_what_the_band_allows() {
+        // Band: Q(0.1) = -5, Q(0.5) = -1, Q(0.9) = 2. Worked by hand from the definition
+        // Q(u) = inf{y : F(y) >= u}: t >= y_k needs F(t) >= u_k, t < y_k needs F(t) < u_k.
+        let band = [(0.1, -5.0), (0.5, -1.0), (0.9, 2.0)];
+        // t = -2 lies between P10 and P50: F(-2) in [0.1, 0.5]
+        assert_eq!(band_consistent(0.7, -2.0, false, &band), 0.5);
+        assert_eq!(band_consistent(0.05, -2.0, false, &band), 0.1);
+        assert_eq!(band_consistent(0.3, -2.0, false, &band), 0.3);
+        // t below P10: F(t) <= 0.1; at P50 exactly: F(t) >= 0.5 for P(Y <= t), <= 0.5 for P(Y < t)
+        assert_eq!(band_consistent(0.4, -6.0, false, &band), 0.1);
+        assert_eq!(band_consistent(0.3, -1.0, false, &band), 0.5);
+        assert_eq!(band_consistent(0.7, -1.0, true, &band), 0.5);
+        // above P90: F(t) >= 0.9
+        assert_eq!(band_consistent(0.2, 3.0, false, &band), 0.9);
+        // NaN band values are left out, NaN probabilities stay NaN
+        let partial = [(0.1, f64::NAN), (0.5, -1.0), (0.9, f64::NAN)];
+        assert_eq!(band_consistent(0.05, -2.0, false, &partial), 0.05);
+        assert!(band_consistent(f64::NAN, -2.0, false, &band).is_nan());
+    }
 }

@@ -72,10 +72,10 @@ impl CalibratedTarget {
         };
         if let (Some(sp), Some(c)) = (&self.spread, context) {
             let mut factors = vec![(1.0, 1.0); out.mid.len()];
-            for i in 0..out.mid.len() {
+            for (i, f) in factors.iter_mut().enumerate() {
                 let di = c.dissimilarity.get(i).copied().unwrap_or(f64::NAN);
                 let dist = c.distance.get(i).copied().unwrap_or(f64::NAN);
-                factors[i] = sp.factors(out.mid[i], out.lo[i], out.hi[i], di, dist);
+                *f = sp.factors(out.mid[i], out.lo[i], out.hi[i], di, dist);
                 let (lo, hi) = sp.apply(out.mid[i], out.lo[i], out.hi[i], di, dist, self.bounds);
                 out.lo[i] = lo;
                 out.hi[i] = hi;

@@ -342,10 +342,10 @@ impl<'a> CalibratedNodes<'a> {
     fn node_points(&self, i: usize) -> Vec<Point> {
         let mut pts = Vec::with_capacity(self.per);
         let band = [self.maps.lo[i], self.maps.mid[i], self.maps.hi[i]];
-        for k in 0..3 {
+        for (k, &y) in band.iter().enumerate() {
             pts.push(Point {
                 u: self.u[k],
-                y: band[k],
+                y,
                 b: self.knots[i][k],
             });
         }

@@ -556,16 +556,15 @@ fn the_calibration_draw_keeps_node_distributions_and_widens_totals() {
     assert_eq!(fingerprint(&drawn), fingerprint(&run(true, 1)));
     let rf = r as f64;
     let swept = drawn.quantities[0].mean_indicator.as_ref().unwrap();
-    for i in 0..n {
+    for (i, &f) in swept.iter().enumerate() {
         let p = 1.0 - hurdle.cdf(i, 0.15);
-        assert!(
-            binomial_ok(swept[i] * rf, rf, p),
-            "node {i}: {} vs {p}",
-            swept[i]
-        );
+        assert!(binomial_ok(f * rf, rf, p), "node {i}: {f} vs {p}");
     }
     // the layer without calibration scores is untouched
     assert_eq!(plain.quantities[2].totals, drawn.quantities[2].totals);
-    let (a, b) = (plain.quantities[0].summary.sd, drawn.quantities[0].summary.sd);
+    let (a, b) = (
+        plain.quantities[0].summary.sd,
+        drawn.quantities[0].summary.sd,
+    );
     assert!(b > a, "swept area sd {b} with the draw, {a} without");
 }

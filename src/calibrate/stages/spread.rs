@@ -141,3 +141,39 @@ impl Spread {
         (side(mid - l, mid - lo), side(h - mid, hi - mid))
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn the_factors_reproduce_the_widened_band() {
+        let spread = Spread {
+            profile: Profile {
+                di: vec![0.2, 0.8],
+                scale: vec![0.9, 1.6],
+                ..Profile::flat()
+            },
+            beyond: Beyond {
+                di_max: 1.0,
+                distance_max: 500.0,
+                envelope_lo: -30.0,
+                envelope_hi: 10.0,
+            },
+        };
+        let bounds = (-60.0, 60.0);
+        for (mid, lo, hi, di, dist) in [
+            (-4.0, -9.0, 1.0, 0.1, 100.0),
+            (-4.0, -9.0, 1.0, 0.5, 100.0),
+            (-4.0, -9.0, 1.0, 1.5, 100.0),
+            (2.0, 0.5, 3.0, 0.5, 800.0),
+        ] {
+            let (l, h) = spread.apply(mid, lo, hi, di, dist, bounds);
+            let (s_lo, s_hi) = spread.factors(mid, lo, hi, di, dist);
+            assert!((mid - s_lo * (mid - lo) - l).abs() < 1e-12, "{di} {dist}");
+            assert!((mid + s_hi * (hi - mid) - h).abs() < 1e-12, "{di} {dist}");
+        }
+        // a side of zero width cannot be scaled
+        assert_eq!(spread.factors(0.0, 0.0, 1.0, 1.5, 100.0).0, 1.0);
+    }
+}
