@@ -8,8 +8,14 @@
 //! `(truth - mean) / sd` of the realizations and the share of cases with the truth below P10 and
 //! above P90; and per target how often the variogram fell back to its stated default.
 //!
-//! `cargo run --release --example totals_calibration -- [--seeds N] [--first S] [--out DIR]`
-//! (defaults: 30 seeds from 1, fields under `target/totals_calibration`).
+//! And per area total, the node reliability of its exceedance map against the truth: by
+//! predicted probability, by distance to the nearest well observed at the step (in well
+//! spacings), by step, and by whether the node's P50 is the "no change" atom.
+//!
+//! `cargo run --release --example totals_calibration -- [--seeds N] [--first S] [--out DIR]
+//! [--no-calibration-draw] [--no-atom TARGET]...` (defaults: 30 seeds from 1, fields under
+//! `target/totals_calibration`; `--no-calibration-draw` sets `[totals] calibration_uncertainty =
+//! false` in every manifest, `--no-atom dP` sets `zero_change = false` for that target).
 
 use std::collections::BTreeMap;
 use std::path::PathBuf;
@@ -42,9 +48,131 @@ const AREA_MAPS: [(&str, &str); 3] = [
     ("gas_out_area", "dSg_exceed_gas_out"),
 ];
 
+/// The generated project's thresholds behind [`AREA_MAPS`]: target index in the field's truth,
+/// value, and whether crossing is upwards (`tidemark synth`'s manifest).
+const AREA_EVENTS: [(usize, f64, bool); 3] = [(0, -2.0, false), (1, 0.1, true), (2, 0.05, true)];
+
+/// Reliability of an exceedance map at the nodes: per class, the number of nodes, the sum of
+/// the predicted probabilities and the number that truly crossed.
+#[derive(Default, Clone, Copy)]
+struct Cell {
+    nodes: f64,
+    predicted: f64,
+    crossed: f64,
+}
+
+impl Cell {
+    fn add(&mut self, p: f64, crossed: bool) {
+        self.nodes += 1.0;
+        self.predicted += p;
+        self.crossed += crossed as u8 as f64;
+    }
+}
+
+/// Classes of the node diagnostics: predicted probability (tenths), distance to the nearest
+/// well observed at the step in well spacings (median nearest-neighbour distance between those
+/// wells), and step.
+const DISTANCE_EDGES: [f64; 5] = [0.25, 0.5, 1.0, 1.5, 2.0];
+
+#[derive(Default)]
+struct Diagnosis {
+    by_probability: [Cell; 10],
+    by_distance: [Cell; 6],
+    by_step: BTreeMap<String, Cell>,
+    /// `[P50 = 0, P50 != 0]`.
+    by_atom: [Cell; 2],
+    /// `[no "no change" atom, with the atom]` (the target's hurdle, seen by its change map).
+    by_hurdle: [Cell; 2],
+    /// Cases and cases with the truth inside the P10-P90, `[without, with]` the atom.
+    inside_by_hurdle: [(usize, usize); 2],
+}
+
+/// Distance of every node to the nearest well with a row at `step`, in well spacings.
+fn spacings(field: &tidemark::synth::SynthField, step: &str) -> Vec<f64> {
+    let wells: Vec<(f64, f64)> = field
+        .well_rows
+        .iter()
+        .filter(|r| r.3 == step)
+        .map(|r| (r.1, r.2))
+        .collect();
+    let nearest = |x: f64, y: f64, skip: Option<usize>| -> f64 {
+        wells
+            .iter()
+            .enumerate()
+            .filter(|(k, _)| Some(*k) != skip)
+            .map(|(_, w)| ((w.0 - x).powi(2) + (w.1 - y).powi(2)).sqrt())
+            .fold(f64::INFINITY, f64::min)
+    };
+    let mut nn: Vec<f64> = (0..wells.len())
+        .map(|k| nearest(wells[k].0, wells[k].1, Some(k)))
+        .collect();
+    nn.sort_by(f64::total_cmp);
+    let spacing = nn.get(nn.len() / 2).copied().unwrap_or(f64::NAN);
+    field
+        .grid
+        .node_coordinates()
+        .iter()
+        .map(|&(x, y)| nearest(x, y, None) / spacing)
+        .collect()
+}
+
+fn print_diagnosis(name: &str, d: &Diagnosis) {
+    let row = |label: String, c: &Cell| {
+        if c.nodes > 0.0 {
+            println!(
+                "  {:<14} {:>9.0} {:>9.3} {:>9.3} {:>9.0} {:>9.0} {:>8.3}",
+                label,
+                c.nodes,
+                c.predicted / c.nodes,
+                c.crossed / c.nodes,
+                c.predicted,
+                c.crossed,
+                c.crossed / c.predicted.max(1e-9)
+            );
+        }
+    };
+    println!("{name}: node reliability of the exceedance map (all seeds and steps)");
+    println!(
+        "  {:<14} {:>9} {:>9} {:>9} {:>9} {:>9} {:>8}",
+        "class", "nodes", "mean p", "crossed", "expected", "crossed", "ratio"
+    );
+    for (k, c) in d.by_probability.iter().enumerate() {
+        row(
+            format!("p {:.1}-{:.1}", k as f64 / 10.0, (k + 1) as f64 / 10.0),
+            c,
+        );
+    }
+    for (k, c) in d.by_distance.iter().enumerate() {
+        let lo = if k == 0 { 0.0 } else { DISTANCE_EDGES[k - 1] };
+        let label = match DISTANCE_EDGES.get(k) {
+            Some(hi) => format!("dist {lo:.2}-{hi:.2}"),
+            None => format!("dist > {lo:.2}"),
+        };
+        row(label, c);
+    }
+    for (step, c) in &d.by_step {
+        row(format!("step {step}"), c);
+    }
+    row("P50 = 0".to_string(), &d.by_atom[0]);
+    row("P50 != 0".to_string(), &d.by_atom[1]);
+    row("no atom".to_string(), &d.by_hurdle[0]);
+    row("with atom".to_string(), &d.by_hurdle[1]);
+    for (k, label) in ["no atom", "with atom"].iter().enumerate() {
+        let (cases, inside) = d.inside_by_hurdle[k];
+        if cases > 0 {
+            println!(
+                "  inside P10-P90, fields {label}: {inside} of {cases} ({:.2})",
+                inside as f64 / cases as f64
+            );
+        }
+    }
+}
+
 fn main() {
     let mut seeds = 30u64;
     let mut first = 1u64;
+    let mut draw = true;
+    let mut no_atom: Vec<String> = Vec::new();
     let mut out = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("target/totals_calibration");
     let mut args = std::env::args().skip(1);
     while let Some(a) = args.next() {
@@ -52,11 +180,14 @@ fn main() {
             "--seeds" => seeds = args.next().and_then(|v| v.parse().ok()).expect("--seeds N"),
             "--first" => first = args.next().and_then(|v| v.parse().ok()).expect("--first S"),
             "--out" => out = PathBuf::from(args.next().expect("--out DIR")),
+            "--no-calibration-draw" => draw = false,
+            "--no-atom" => no_atom.push(args.next().expect("--no-atom TARGET")),
             other => panic!("unknown argument {other}"),
         }
     }
     let mut tallies: BTreeMap<String, Tally> = BTreeMap::new();
     let mut fallbacks: BTreeMap<String, usize> = BTreeMap::new();
+    let mut diagnoses: BTreeMap<String, Diagnosis> = BTreeMap::new();
     let t_all = Instant::now();
     for seed in first..first + seeds {
         let t0 = Instant::now();
@@ -79,6 +210,22 @@ fn main() {
         let field = generate(&settings).unwrap_or_else(|e| panic!("seed {seed}: {e}"));
         write_project(&field, &settings, &field_dir).expect("write the field");
         let manifest = field_dir.join("project.toml");
+        for target in &no_atom {
+            let text = std::fs::read_to_string(&manifest).expect("manifest");
+            let key = format!("name = \"{target}\"\n");
+            assert!(text.contains(&key), "no target {target}");
+            let text = text.replacen(&key, &format!("{key}zero_change = false\n"), 1);
+            std::fs::write(&manifest, text).expect("manifest");
+        }
+        if !draw {
+            let text = std::fs::read_to_string(&manifest).expect("manifest");
+            let text = text.replacen(
+                "[totals]\n",
+                "[totals]\ncalibration_uncertainty = false\n",
+                1,
+            );
+            std::fs::write(&manifest, text).expect("manifest");
+        }
         let opts = RunOptions {
             formats: Formats {
                 geotiff: true,
@@ -144,6 +291,50 @@ fn main() {
                 e.expected += expected;
                 e.mean += mean;
                 e.truth += t.truth;
+                let k = AREA_MAPS
+                    .iter()
+                    .position(|(q, _)| *q == t.quantity)
+                    .unwrap();
+                let (target, value, above) = AREA_EVENTS[k];
+                let s = field.step_names.iter().position(|n| *n == t.step).unwrap();
+                let truth = &field.truth[s][target];
+                let dist = spacings(&field, &t.step);
+                let target_name = &field.target_names[target];
+                let p50 = tidemark::io::geotiff::read(
+                    &results
+                        .join("maps")
+                        .join(&t.step)
+                        .join(format!("{target_name}_p50.tif")),
+                )
+                .expect("P50 map")
+                .values;
+                let hurdle = results
+                    .join("maps")
+                    .join(&t.step)
+                    .join(format!("{target_name}_p_change.tif"))
+                    .exists() as usize;
+                let d = diagnoses.entry(t.quantity.clone()).or_default();
+                d.inside_by_hurdle[hurdle].0 += 1;
+                d.inside_by_hurdle[hurdle].1 += t.inside as usize;
+                for (i, &pi) in p.values.iter().enumerate() {
+                    if !(pi.is_finite() && truth[i].is_finite()) {
+                        continue;
+                    }
+                    let crossed = if above {
+                        truth[i] > value
+                    } else {
+                        truth[i] < value
+                    };
+                    d.by_probability[((pi * 10.0) as usize).min(9)].add(pi, crossed);
+                    let c = DISTANCE_EDGES.partition_point(|&e| e <= dist[i]);
+                    d.by_distance[c].add(pi, crossed);
+                    d.by_step
+                        .entry(t.step.clone())
+                        .or_default()
+                        .add(pi, crossed);
+                    d.by_atom[(p50[i] != 0.0) as usize].add(pi, crossed);
+                    d.by_hurdle[hurdle].add(pi, crossed);
+                }
             }
         }
         eprintln!("seed {seed}: {:.1} s", t0.elapsed().as_secs_f64());
@@ -185,6 +376,9 @@ fn main() {
                 t.truth / n
             );
         }
+    }
+    for (q, d) in &diagnoses {
+        print_diagnosis(q, d);
     }
     for (target, n) in &fallbacks {
         println!("variogram fallback for {target}: {n} of {seeds} seeds");

@@ -5,8 +5,9 @@
 //! distributions are synthetic: dP normal, dSw and dSg a point mass at zero mixed with a lognormal
 //! part (the "no change" hurdle shape), every parameter varying smoothly over the grid.
 //!
-//! Run with `cargo run --release --example totals_probe [-- REALIZATIONS...]` (default: 50 then
-//! 200). For each count it prints the wall seconds, the CPU seconds of the process and the peak
+//! Run with `cargo run --release --example totals_probe [-- REALIZATIONS...]
+//! [--calibration-draw]` (default: 50 then 200; the flag turns on the per-realization
+//! calibration draw, the wells' scores standing for the held-out ones). For each count it prints the wall seconds, the CPU seconds of the process and the peak
 //! resident memory during that run (VmHWM from `/proc/self/status`, reset before each run through
 //! `/proc/self/clear_refs`), so one can see that memory does not grow with the count.
 
@@ -106,8 +107,11 @@ fn smooth(i: usize, j: usize, a: f64, b: f64) -> f64 {
 }
 
 fn main() {
-    let counts: Vec<usize> = std::env::args()
-        .skip(1)
+    let args: Vec<String> = std::env::args().skip(1).collect();
+    let draw = args.iter().any(|a| a == "--calibration-draw");
+    let counts: Vec<usize> = args
+        .iter()
+        .filter(|a| *a != "--calibration-draw")
         .map(|a| a.parse().expect("realization counts are whole numbers"))
         .collect();
     let counts = if counts.is_empty() {
@@ -201,7 +205,7 @@ fn main() {
         let dists: [(&str, usize, &dyn NodeDistribution); 3] =
             [("dP", 0, &dp[s]), ("dSw", 1, &dsw[s]), ("dSg", 2, &dsg[s])];
         for (target, field, dist) in dists {
-            let wells = well_xy
+            let wells: Vec<WellScore> = well_xy
                 .iter()
                 .enumerate()
                 .map(|(w, &(x, y))| WellScore {
@@ -214,6 +218,7 @@ fn main() {
             layers.push(Layer {
                 name: format!("{target} {step}"),
                 field,
+                calibration: wells.clone(),
                 wells,
                 distribution: dist,
             });
@@ -290,6 +295,7 @@ fn main() {
         let settings = TotalsSettings {
             realizations: count,
             seed: 11,
+            calibration_draw: draw,
             ..TotalsSettings::default()
         };
         let (t, c) = (Instant::now(), cpu_seconds());

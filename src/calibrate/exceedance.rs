@@ -53,6 +53,34 @@ pub fn bounded_cdf(p: f64, t: f64, bounds: (f64, f64)) -> f64 {
     }
 }
 
+/// `P(Y <= t)` (or `P(Y < t)` when `strict`) made consistent with a band: a distribution whose
+/// quantile at level `u_k` is `y_k` (`Q(u) = inf{y : F(y) >= u}`) has `F(t) >= u_k` for
+/// `t >= y_k` and `F(t) < u_k` for `t < y_k` (for `P(Y < t)`: `>= u_k` when `t > y_k`, `<= u_k`
+/// when `t <= y_k`). `p` is clipped to the interval those constraints leave (closed at its upper
+/// end), so that the band's quantiles and the crossing probabilities describe one distribution.
+/// A `NaN` `p` or band value leaves `p` as it is.
+pub fn band_consistent(p: f64, t: f64, strict: bool, band: &[(f64, f64)]) -> f64 {
+    if p.is_nan() || t.is_nan() {
+        return p;
+    }
+    let (mut lo, mut hi) = (0.0f64, 1.0f64);
+    for &(u, y) in band {
+        if y.is_nan() || u.is_nan() {
+            continue;
+        }
+        let reached = if strict { t > y } else { t >= y };
+        if reached {
+            lo = lo.max(u);
+        } else {
+            hi = hi.min(u);
+        }
+    }
+    if lo > hi {
+        return p;
+    }
+    p.clamp(lo, hi)
+}
+
 /// Mondrian conformal predictive system (Vovk et al. 2019): sorted held-out residuals per bin of
 /// the predicted value, with cumulative well weights. Residuals may be scaled by a local spread
 /// `s` (`a_i = (y_i - mid_i)/s_i`, and `Q(t)` uses `(t - mid)/s`), which keeps the system's
@@ -288,5 +316,26 @@ mod tests {
         assert!((r.apply(0.0) - 0.2).abs() < 1e-12);
         assert!((r.apply(0.5) - 0.6).abs() < 1e-12);
         assert!((r.apply(1.0) - 1.0).abs() < 1e-12);
+    }
+
+    #[test]
+    fn probabilities_are_clipped_to_what_the_band_allows() {
+        // Band: Q(0.1) = -5, Q(0.5) = -1, Q(0.9) = 2. Worked by hand from the definition
+        // Q(u) = inf{y : F(y) >= u}: t >= y_k needs F(t) >= u_k, t < y_k needs F(t) < u_k.
+        let band = [(0.1, -5.0), (0.5, -1.0), (0.9, 2.0)];
+        // t = -2 lies between P10 and P50: F(-2) in [0.1, 0.5]
+        assert_eq!(band_consistent(0.7, -2.0, false, &band), 0.5);
+        assert_eq!(band_consistent(0.05, -2.0, false, &band), 0.1);
+        assert_eq!(band_consistent(0.3, -2.0, false, &band), 0.3);
+        // t below P10: F(t) <= 0.1; at P50 exactly: F(t) >= 0.5 for P(Y <= t), <= 0.5 for P(Y < t)
+        assert_eq!(band_consistent(0.4, -6.0, false, &band), 0.1);
+        assert_eq!(band_consistent(0.3, -1.0, false, &band), 0.5);
+        assert_eq!(band_consistent(0.7, -1.0, true, &band), 0.5);
+        // above P90: F(t) >= 0.9
+        assert_eq!(band_consistent(0.2, 3.0, false, &band), 0.9);
+        // NaN band values are left out, NaN probabilities stay NaN
+        let partial = [(0.1, f64::NAN), (0.5, -1.0), (0.9, f64::NAN)];
+        assert_eq!(band_consistent(0.05, -2.0, false, &partial), 0.05);
+        assert!(band_consistent(f64::NAN, -2.0, false, &band).is_nan());
     }
 }

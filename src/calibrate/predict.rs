@@ -8,10 +8,14 @@
 //! target's probability of a change is adjusted to the share of change of the whole mapped
 //! population ([`CalibratedTarget::set_prior`], [`super::prior`]), which is estimated once from
 //! all the nodes and then applied to each row alike.
+//!
+//! With the nodes' context the spread rule widens the band, and the same stretch about the middle
+//! is applied to the distribution the probabilities come from, so the band and the probability
+//! maps stay one distribution per node; a last step clips any probability the band contradicts.
 
 use super::conformal::{BandBase, BandMethod};
 use super::error::CalibrateError;
-use super::exceedance::{ExceedMethod, bounded_cdf, crossing_probability};
+use super::exceedance::{ExceedMethod, band_consistent, bounded_cdf, crossing_probability};
 use super::hurdle;
 use super::prior::PriorShift;
 use super::stages::hurdle::{self as stage, CpsAt, HurdleModel};
@@ -30,6 +34,14 @@ struct EnsemblePass {
     local_q: Option<Vec<(Option<f64>, Option<f64>)>>,
     /// Booster prediction (when the booster has weight in the point prediction).
     boost: Option<Vec<f64>>,
+}
+
+/// The conditional part of a hurdle target at every row (its middle; `None` for a continuous
+/// target, whose middle is the band's) and every row's residual scale.
+#[derive(Clone, Copy)]
+struct Conditional<'a> {
+    mid: Option<&'a [f64]>,
+    scale: &'a [f64],
 }
 
 /// Where the predicted rows lie relative to the training wells.
@@ -57,25 +69,129 @@ impl CalibratedTarget {
         context: Option<NodeContext>,
     ) -> Result<TargetPrediction, CalibrateError> {
         let (parts, scale) = self.continuous_parts(x)?;
-        let mut out = match &self.hurdle {
-            Some(h) => self.mixture(h, x, &parts, &scale),
-            None => parts,
+        let (mut out, cond_mid) = match &self.hurdle {
+            Some(h) => {
+                let out = self.mixture(h, x, &parts, &scale);
+                (out, Some(parts.mid))
+            }
+            None => (parts, None),
         };
         if let (Some(sp), Some(c)) = (&self.spread, context) {
-            for i in 0..out.mid.len() {
-                let (lo, hi) = sp.apply(
-                    out.mid[i],
-                    out.lo[i],
-                    out.hi[i],
-                    c.dissimilarity.get(i).copied().unwrap_or(f64::NAN),
-                    c.distance.get(i).copied().unwrap_or(f64::NAN),
-                    self.bounds,
-                );
+            let mut factors = vec![(1.0, 1.0); out.mid.len()];
+            for (i, f) in factors.iter_mut().enumerate() {
+                let di = c.dissimilarity.get(i).copied().unwrap_or(f64::NAN);
+                let dist = c.distance.get(i).copied().unwrap_or(f64::NAN);
+                *f = sp.factors(out.mid[i], out.lo[i], out.hi[i], di, dist);
+                let (lo, hi) = sp.apply(out.mid[i], out.lo[i], out.hi[i], di, dist, self.bounds);
                 out.lo[i] = lo;
                 out.hi[i] = hi;
             }
+            let cond = Conditional {
+                mid: cond_mid.as_deref(),
+                scale: &scale,
+            };
+            self.widen_exceedance(x, &mut out, &factors, cond);
         }
+        self.make_consistent(&mut out);
         Ok(out)
+    }
+
+    /// The spread rule applied to the whole predictive distribution, not only its band: each
+    /// side is stretched about the middle by its factor `s` ([`super::stages::spread::Spread::factors`]), so that
+    /// `F(t) = F0(mid + (t - mid) / s)` with `F0` the distribution the probability of threshold
+    /// `t` was computed from (the conformal predictive system, the recalibrated forest CDF, or
+    /// the recalibrated hurdle mixture). Rows whose factor on the threshold's side is 1 keep
+    /// their probability bit for bit.
+    fn widen_exceedance(
+        &self,
+        x: ArrayView2<f64>,
+        out: &mut TargetPrediction,
+        factors: &[(f64, f64)],
+        cond: Conditional,
+    ) {
+        let n = out.mid.len();
+        for (k, th) in self.thresholds.iter().enumerate() {
+            let t0: Vec<f64> = (0..n)
+                .map(|i| {
+                    let mid = out.mid[i];
+                    let s = if th.value < mid {
+                        factors[i].0
+                    } else {
+                        factors[i].1
+                    };
+                    if mid.is_nan() || s == 1.0 {
+                        f64::NAN
+                    } else {
+                        mid + (th.value - mid) / s
+                    }
+                })
+                .collect();
+            if t0.iter().all(|v| v.is_nan()) {
+                continue;
+            }
+            let forest_cdf = match (&self.hurdle, self.exceed_methods[k]) {
+                (None, ExceedMethod::ForestRecalibrated) => Some(self.forest.cdf_at(x, 0, &t0)),
+                _ => None,
+            };
+            let old = &out.exceed[k];
+            let p_change = out.p_change.as_deref();
+            let new: Vec<f64> = (0..n)
+                .into_par_iter()
+                .map(|i| {
+                    let t = t0[i];
+                    if t.is_nan() {
+                        return old[i];
+                    }
+                    let below = match (&self.hurdle, &forest_cdf, cond.mid, p_change) {
+                        (Some(h), _, Some(m), Some(p)) => {
+                            let g = CpsAt {
+                                cps: &self.cps,
+                                mid: m[i],
+                                scale: cond.scale[i],
+                                bounds: self.bounds,
+                            };
+                            let e = stage::crossing(p[i], &g, t, th.above, Some(&h.recalibration));
+                            crossing_probability(e, th.above)
+                        }
+                        (Some(_), ..) => return old[i],
+                        (None, Some(c), ..) => {
+                            bounded_cdf(self.recalibration.apply(c[i]), t, self.bounds)
+                        }
+                        (None, None, ..) => {
+                            self.cps
+                                .prob_below(out.mid[i], cond.scale[i], t, self.bounds)
+                        }
+                    };
+                    crossing_probability(bounded_cdf(below, th.value, self.bounds), th.above)
+                })
+                .collect();
+            out.exceed[k] = new;
+        }
+    }
+
+    /// Crossing probabilities made consistent with the band ([`band_consistent`]): where the
+    /// two models disagree on the order of a threshold and a band edge, the probability moves to
+    /// the nearest value one distribution can have, so that a node's band and its probabilities
+    /// never contradict each other (the band wins: it is written as calibrated quantiles). A band
+    /// at the physical bounds for want of wells states no quantile and is left out.
+    fn make_consistent(&self, out: &mut TargetPrediction) {
+        if self.band.too_few_wells() {
+            return;
+        }
+        let a = (1.0 - self.level) / 2.0;
+        for (k, th) in self.thresholds.iter().enumerate() {
+            let strict = !th.above;
+            for i in 0..out.mid.len() {
+                let band = [(a, out.lo[i]), (0.5, out.mid[i]), (1.0 - a, out.hi[i])]
+                    .map(|(u, y)| (u, if y.is_finite() { y } else { f64::NAN }));
+                let e = out.exceed[k][i];
+                let below = crossing_probability(e, th.above);
+                let c = band_consistent(below, th.value, strict, &band);
+                if c != below {
+                    out.exceed[k][i] = crossing_probability(c, th.above);
+                }
+            }
+        }
     }
 
     /// The uncalibrated quantile forest on all the target's rows: the forest itself for a

@@ -1,28 +1,35 @@
 //! Every node's full calibrated predictive distribution, as a quantile function for the field
 //! totals ([`crate::spatial::totals`]), and the spatial correlation of the wells' held-out errors.
 //!
-//! **Node distributions** ([`CalibratedNodes`]). The maps give three quantiles per node (the band
-//! edges and the middle, after the spread rule); the model's predictive system gives the shape
-//! between and beyond them: the conformal predictive system around the node's conditional middle
-//! (Vovk, Shen, Manokhin & Xie 2019), mixed with the "no change" atom for a hurdle target
-//! (Mullahy 1986; [`crate::calibrate::hurdle`]). The quantile function is that base quantile
-//! function `Qb`, read at levels warped piecewise linearly so that the map's levels land on the
-//! levels the band was made at (for a hurdle target the band edges sit at the conformal PIT
-//! levels of the mixture, Czado, Gneiting & Held 2009), and rescaled piecewise linearly in value
-//! so that it passes exactly through the written map values:
+//! **Node distributions** ([`CalibratedNodes`]). One distribution per node, the same for the
+//! band, the exceedance maps and the totals. The maps give three quantiles per node (the band
+//! edges and the middle, after the spread rule) and, per threshold, the probability of crossing
+//! it, which [`crate::calibrate::CalibratedTarget::predict_at`] has already widened with the
+//! band (the spread stretches the whole distribution about the middle) and made consistent with
+//! it. The node's quantile function passes through all of them: the points `(u, y)` are the
+//! band's `((1 - level)/2, lo)`, `(1/2, mid)`, `((1 + level)/2, hi)` and each threshold's
+//! `(P(Y below t), t)`. The model's predictive system gives the shape between and beyond them:
+//! the conformal predictive system around the node's conditional middle (Vovk, Shen, Manokhin &
+//! Xie 2019), made continuous by linear interpolation between its residuals' levels, mixed with
+//! the "no change" atom for a hurdle target (Mullahy 1986; [`crate::calibrate::hurdle`]). That
+//! base quantile function `Qb` is read at levels warped piecewise linearly so that the map's
+//! band levels land on the levels the band was made at (for a hurdle target the band edges sit at
+//! the conformal PIT levels of the mixture, Czado, Gneiting & Held 2009), and each stretch
+//! between two points is rescaled in value to join them:
 //!
 //! ```text
-//! Q(u) = lo  + (mid - lo) (Qb(v) - Qb(v_lo)) / (Qb(v_mid) - Qb(v_lo))   for u in [u_lo, 1/2]
-//! Q(u) = mid + (hi - mid) (Qb(v) - Qb(v_mid)) / (Qb(v_hi) - Qb(v_mid))  for u in [1/2, u_hi]
+//! Q(u) = y_k + (y_k+1 - y_k) f,   f = 0.99 (Qb(v) - Qb(v_k)) / (Qb(v_k+1) - Qb(v_k))
+//!                                     + 0.01 (u - u_k) / (u_k+1 - u_k)
 //! ```
 //!
-//! with the outer segments' scale carried into the tails, and everything clipped to the target's
-//! bounds. At `u = (1 - level)/2, 1/2, (1 + level)/2` it gives the written P10, P50 and P90
-//! exactly; the spread rule, which widens the band about the middle, widens the tails by the same
-//! factor; the atom at zero stays an atom. The exceedance maps come from the same predictive
-//! system (or the recalibrated forest CDF, whichever scored better out of fold), so the crossing
-//! frequency of realizations matches them only as far as the band and that system agree; the
-//! tests measure how far.
+//! with the outer band segments' scale carried into the tails, and everything clipped to the
+//! target's bounds. The hundredth of plain level keeps `Q` strictly increasing where the base is
+//! flat (its atom, a stretch the two models disagree on), so the level of a threshold's point is
+//! exactly the probability of lying below it. At the band levels it gives the written P10, P50
+//! and P90 exactly; at each threshold, the written probability; the atom at zero stays an atom.
+//! A threshold's point that contradicts the band or an earlier point is left out (`predict_at`
+//! clips every probability to what the band allows, but two thresholds of one target whose
+//! probabilities come from different methods could still disagree with each other).
 //!
 //! **Error correlation** ([`correlation`]). Each target's held-out well rows carry their PIT value
 //! under the cross-fitted predictive system (randomised at the atom for a hurdle target); their
@@ -161,6 +168,49 @@ impl CpsLevels {
     }
 }
 
+impl CpsLevels {
+    /// The quantile function of bin `b` made continuous: linear in the level between two
+    /// consecutive residuals' levels (the system's own quantile, [`Self::quantile_in_bin`], is a
+    /// step function). It passes
+    /// through the system's quantile at every residual's level and increases strictly between
+    /// distinct residuals, so a quantile function rescaled through it has no flat stretch where
+    /// a written probability would otherwise fall. Below the first and above the last
+    /// residual's level it continues with the bin's mean slope (the system itself puts that
+    /// mass at the bounds, the new point's own weight at infinity), and values are not clipped
+    /// to the target's bounds: a clip would make it flat. Callers clip the final value.
+    pub fn interpolated_in_bin(
+        &self,
+        cps: &PredictiveSystem,
+        b: usize,
+        mid: f64,
+        scale: f64,
+        v: f64,
+    ) -> f64 {
+        if !mid.is_finite() || scale.is_nan() || scale <= 0.0 || v.is_nan() {
+            return f64::NAN;
+        }
+        let k = self.first_reaching(b, v);
+        let r = &cps.residuals[b];
+        let levels = &self.levels[b];
+        let n = r.len();
+        // The bin's mean slope, level to residual, carries the ends.
+        let slope = if n > 1 && levels[n - 1] > levels[0] {
+            (r[n - 1] - r[0]) / (levels[n - 1] - levels[0])
+        } else {
+            0.0
+        };
+        if k == n {
+            return mid + scale * (r[n - 1] + slope * (v - levels[n - 1]));
+        }
+        if k == 0 {
+            return mid + scale * (r[0] - slope * (levels[0] - v));
+        }
+        let (l0, l1) = (levels[k - 1], levels[k]);
+        let f = ((v - l0) / (l1 - l0)).clamp(0.0, 1.0);
+        mid + scale * lerp(r[k - 1], r[k], f)
+    }
+}
+
 /// One target's calibrated distribution at every node of one step.
 pub struct CalibratedNodes<'a> {
     cal: &'a CalibratedTarget,
@@ -179,6 +229,51 @@ pub struct CalibratedNodes<'a> {
     v: [f64; 3],
     /// Base quantiles at `v`, per node.
     knots: Vec<[f64; 3]>,
+    /// Per node, `per` points `(level, value, base quantile)` of the quantile function sorted by
+    /// level: the band's three and each threshold's (its written probability of lying below the
+    /// threshold), `NaN` levels padding the unused slots.
+    points: Vec<Point>,
+    /// Points per node: 3 + the target's thresholds.
+    per: usize,
+}
+
+/// Share of the level (against the base quantile) in the interpolation between two points and
+/// in the tails: the base can be flat over a stretch of levels (the hurdle's atom, a clip at a
+/// bound), and a little of the level keeps the quantile function strictly increasing between
+/// distinct points, so that a point's level is exactly the probability of lying below it.
+/// Common practice, no published source.
+const LEVEL_SHARE: f64 = 0.01;
+
+/// Value per level of a tail's level share: the band half's `s`, or where that half has no width
+/// the points' overall slope, or 1.
+fn per_level(s: f64, pts: &[Point]) -> f64 {
+    if s > 0.0 {
+        return s;
+    }
+    let (first, last) = (pts[0], pts[pts.len() - 1]);
+    let overall = (last.y - first.y) / (last.u - first.u);
+    if overall > 0.0 && overall.is_finite() {
+        overall
+    } else {
+        1.0
+    }
+}
+
+/// A point `(u, y)` the node's quantile function passes through, with the base quantile `b` at
+/// the warped level of `u`.
+#[derive(Clone, Copy, Debug)]
+struct Point {
+    u: f64,
+    y: f64,
+    b: f64,
+}
+
+impl Point {
+    const NONE: Point = Point {
+        u: f64::NAN,
+        y: f64::NAN,
+        b: f64::NAN,
+    };
 }
 
 impl<'a> CalibratedNodes<'a> {
@@ -227,12 +322,55 @@ impl<'a> CalibratedNodes<'a> {
             u,
             v,
             knots: Vec::new(),
+            points: Vec::new(),
+            per: 3 + cal.thresholds.len().min(maps.exceed.len()),
         };
         out.knots = (0..maps.mid.len())
             .into_par_iter()
             .map(|i| v.map(|l| out.base(i, l)))
             .collect();
+        out.points = (0..maps.mid.len())
+            .into_par_iter()
+            .flat_map_iter(|i| out.node_points(i))
+            .collect();
         Ok(out)
+    }
+
+    /// Node `i`'s points, `per` of them: the band's, then every threshold's whose written
+    /// probability is consistent with the points kept before it (a quantile function is
+    /// non-decreasing), sorted by level and value.
+    fn node_points(&self, i: usize) -> Vec<Point> {
+        let mut pts = Vec::with_capacity(self.per);
+        let band = [self.maps.lo[i], self.maps.mid[i], self.maps.hi[i]];
+        for (k, &y) in band.iter().enumerate() {
+            pts.push(Point {
+                u: self.u[k],
+                y,
+                b: self.knots[i][k],
+            });
+        }
+        let (lo_b, hi_b) = self.cal.bounds;
+        for (k, th) in self.cal.thresholds.iter().enumerate().take(self.per - 3) {
+            let e = self.maps.exceed[k][i];
+            let u = if th.above { 1.0 - e } else { e };
+            let t = th.value;
+            if !((0.0..=1.0).contains(&u) && t > lo_b && t < hi_b) {
+                continue;
+            }
+            let fits = pts.iter().all(|p| {
+                !(p.y.is_finite()) || (p.u < u && p.y <= t) || (p.u > u && p.y >= t) || p.u == u
+            });
+            if fits {
+                pts.push(Point {
+                    u,
+                    y: t,
+                    b: self.base(i, self.warp(u)),
+                });
+            }
+        }
+        pts.sort_by(|a, b| a.u.total_cmp(&b.u).then(a.y.total_cmp(&b.y)));
+        pts.resize(self.per, Point::NONE);
+        pts
     }
 
     /// The model's own quantile function at node `i`: the conditional predictive system, or
@@ -240,11 +378,10 @@ impl<'a> CalibratedNodes<'a> {
     /// per node).
     fn base(&self, i: usize, level: f64) -> f64 {
         let (mid, scale) = (self.cond.0[i], self.cond.1[i]);
-        let bounds = self.cal.bounds;
         let b = self.bin[i] as usize;
         let g = |v: f64| {
             self.table
-                .quantile_in_bin(&self.cal.cps, b, mid, scale, v, bounds)
+                .interpolated_in_bin(&self.cal.cps, b, mid, scale, v)
         };
         let p = match (&self.cal.hurdle, &self.maps.p_change) {
             (Some(_), Some(p)) => p[i],
@@ -283,49 +420,52 @@ impl<'a> CalibratedNodes<'a> {
 
 impl NodeDistribution for CalibratedNodes<'_> {
     fn quantile(&self, i: usize, u: f64) -> f64 {
-        // A level within rounding of a map level is that level (`(1 - 0.8) / 2` is not 0.1).
-        let u = self
-            .u
-            .iter()
-            .copied()
-            .find(|k| (u - k).abs() <= 1e-12)
-            .unwrap_or(u);
         let (lo, mid, hi) = (self.maps.lo[i], self.maps.mid[i], self.maps.hi[i]);
         if !(lo.is_finite() && mid.is_finite() && hi.is_finite()) {
             return f64::NAN;
         }
+        let bounds = self.cal.bounds;
+        // A level within rounding of a map level gives the written value (`(1 - 0.8) / 2` is not
+        // 0.1).
+        if let Some(k) = self.u.iter().position(|k| (u - k).abs() <= 1e-12) {
+            return [lo, mid, hi][k].clamp(bounds.0, bounds.1);
+        }
+        let pts = &self.points[i * self.per..(i + 1) * self.per];
+        let pts = &pts[..pts.iter().take_while(|p| !p.u.is_nan()).count()];
         let [b_lo, b_mid, b_hi] = self.knots[i];
         let b = self.base(i, self.warp(u));
-        let y = if u < self.u[0] {
+        let j = pts.partition_point(|p| p.u < u);
+        let y = if j == 0 {
             let s = if b_mid > b_lo {
                 (mid - lo) / (b_mid - b_lo)
             } else {
                 1.0
             };
-            lo - s * (b_lo - b).max(0.0)
-        } else if u <= self.u[1] {
-            let f = if b_mid > b_lo {
-                ((b - b_lo) / (b_mid - b_lo)).clamp(0.0, 1.0)
-            } else {
-                (u - self.u[0]) / (self.u[1] - self.u[0])
-            };
-            lerp(lo, mid, f)
-        } else if u <= self.u[2] {
-            let f = if b_hi > b_mid {
-                ((b - b_mid) / (b_hi - b_mid)).clamp(0.0, 1.0)
-            } else {
-                (u - self.u[1]) / (self.u[2] - self.u[1])
-            };
-            lerp(mid, hi, f)
-        } else {
+            let s_u = per_level((mid - lo) / (self.u[1] - self.u[0]), pts);
+            let f = pts[0].u - u;
+            pts[0].y - (1.0 - LEVEL_SHARE) * s * (pts[0].b - b).max(0.0) - LEVEL_SHARE * s_u * f
+        } else if j == pts.len() {
             let s = if b_hi > b_mid {
                 (hi - mid) / (b_hi - b_mid)
             } else {
                 1.0
             };
-            hi + s * (b - b_hi).max(0.0)
+            let s_u = per_level((hi - mid) / (self.u[2] - self.u[1]), pts);
+            let last = pts[j - 1];
+            let f = u - last.u;
+            last.y + (1.0 - LEVEL_SHARE) * s * (b - last.b).max(0.0) + LEVEL_SHARE * s_u * f
+        } else {
+            let (a, c) = (pts[j - 1], pts[j]);
+            let by_level = (u - a.u) / (c.u - a.u);
+            let f = if c.b > a.b {
+                let by_base = ((b - a.b) / (c.b - a.b)).clamp(0.0, 1.0);
+                (1.0 - LEVEL_SHARE) * by_base + LEVEL_SHARE * by_level
+            } else {
+                by_level
+            };
+            lerp(a.y, c.y, f)
         };
-        y.clamp(self.cal.bounds.0, self.cal.bounds.1)
+        y.clamp(bounds.0, bounds.1)
     }
 }
 

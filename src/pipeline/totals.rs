@@ -83,6 +83,21 @@ pub struct TotalsRecord {
     /// back).
     #[serde(default, skip_deserializing)]
     pub correlations: Vec<Correlation>,
+    /// The calibration draw per layer (empty when `[totals] calibration_uncertainty` is off).
+    #[serde(default)]
+    pub calibration_draw: Vec<DrawSummary>,
+}
+
+/// One layer's calibration draw ([`crate::spatial::bootstrap`]): the realizations' shared shift
+/// of the wells' mean normal score.
+#[derive(Clone, Debug, Serialize, Deserialize)]
+pub struct DrawSummary {
+    /// Target and step, e.g. `dP m2`.
+    pub layer: String,
+    /// Held-out wells whose scores are reweighted.
+    pub wells: usize,
+    /// Standard deviation of the shift, in normal scores.
+    pub shift_sd: f64,
 }
 
 /// What the stage computed: the record and the engine's full output (node crossing frequencies
@@ -213,6 +228,11 @@ pub fn compute(
             } else {
                 Vec::new()
             },
+            calibration: scores[t]
+                .iter()
+                .filter(|(st, _)| *st == s)
+                .map(|(_, w)| w.clone())
+                .collect(),
             distribution: d as &dyn NodeDistribution,
         })
         .collect();
@@ -223,6 +243,7 @@ pub fn compute(
         seed: derive_seed(seed, &[STREAM_TOTALS]),
         keep_maps: opts.keep.unwrap_or(section.keep_realizations),
         convention: model.convention,
+        calibration_draw: section.calibration_uncertainty,
         ..TotalsSettings::default()
     };
     let output = engine::simulate(
@@ -259,6 +280,16 @@ pub fn compute(
             })
             .collect(),
         correlations,
+        calibration_draw: output
+            .layers
+            .iter()
+            .filter(|l| l.calibration_wells > 0)
+            .map(|l| DrawSummary {
+                layer: l.name.clone(),
+                wells: l.calibration_wells,
+                shift_sd: l.calibration_shift_sd,
+            })
+            .collect(),
     };
     let layers = layer_keys
         .iter()
@@ -441,6 +472,8 @@ pub struct TotalsSummary {
     pub quantities: Vec<QuantitySummary>,
     /// Error correlation per target used.
     pub variograms: Vec<Correlation>,
+    /// The calibration draw per layer (empty when it is off).
+    pub calibration_draw: Vec<DrawSummary>,
 }
 
 /// One total in `summary.json`.
@@ -481,6 +514,7 @@ impl TotalsRecord {
                 })
                 .collect(),
             variograms: self.correlations.clone(),
+            calibration_draw: self.calibration_draw.clone(),
         }
     }
 }
@@ -611,7 +645,7 @@ pub fn score_totals(
 
 /// The page's totals section from the record (the truth is added by `score`).
 pub fn report_section(record: &TotalsRecord) -> crate::report::totals::TotalsReport {
-    use crate::report::totals::{TotalEntry, TotalsReport, VariogramEntry};
+    use crate::report::totals::{DrawEntry, TotalEntry, TotalsReport, VariogramEntry};
     let variograms = record
         .correlations
         .iter()
@@ -661,5 +695,14 @@ pub fn report_section(record: &TotalsRecord) -> crate::report::totals::TotalsRep
             })
             .collect(),
         variograms,
+        calibration_draw: record
+            .calibration_draw
+            .iter()
+            .map(|d| DrawEntry {
+                layer: d.layer.clone(),
+                wells: d.wells,
+                shift_sd: d.shift_sd,
+            })
+            .collect(),
     }
 }

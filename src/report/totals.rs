@@ -44,6 +44,37 @@ pub struct TotalsReport {
     pub quantities: Vec<TotalEntry>,
     /// One entry per target used.
     pub variograms: Vec<VariogramEntry>,
+    /// The calibration draw per layer (empty when it was off).
+    pub calibration_draw: Vec<DrawEntry>,
+}
+
+/// One layer's calibration draw: the realizations' shared shift of the held-out wells' mean
+/// normal score (a Bayesian bootstrap over the wells).
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+pub struct DrawEntry {
+    /// Target and step.
+    pub layer: String,
+    /// Wells reweighted.
+    pub wells: usize,
+    /// Standard deviation of the shift, in normal scores.
+    pub shift_sd: f64,
+}
+
+/// The sentence on the calibration draw.
+fn draw_sentence(draws: &[DrawEntry]) -> String {
+    if draws.is_empty() {
+        return "The calibration was not drawn per realization (<code>[totals]                 calibration_uncertainty = false</code>): the range leaves out that every node                 shares the same calibration wells."
+            .to_string();
+    }
+    let (lo, hi) = draws.iter().fold((f64::INFINITY, 0.0f64), |(a, b), d| {
+        (a.min(d.shift_sd), b.max(d.shift_sd))
+    });
+    format!(
+        "Each realization also redraws the calibration (a Bayesian bootstrap over the held-out          wells of their mean normal score, shared by every node the wells leave free; shift sd          {} to {} normal scores over {} target-steps), so the range carries the uncertainty all          nodes share because they were calibrated on the same wells.",
+        fmt(lo),
+        fmt(hi),
+        draws.len()
+    )
 }
 
 /// One total at one step.
@@ -282,9 +313,10 @@ pub fn section(h: &mut String, totals: Option<&TotalsReport>) {
          true total fell inside P10-P90 far less often than 80 % of the time, because node \
          probabilities calibrated at the wells are biased between them; read the range as the \
          spread the node bands imply and have it reviewed before it informs any reserves \
-         figure.</p>",
+         figure. {}</p>",
         t.realizations,
-        escape(&t.convention)
+        escape(&t.convention),
+        draw_sentence(&t.calibration_draw)
     );
     h.push_str(
         "<table><tr><th class=\"l\">quantity</th><th class=\"l\">step</th><th>P10</th>\
@@ -377,11 +409,17 @@ mod tests {
             realizations: 200,
             quantities: vec![entry()],
             variograms: Vec::new(),
+            calibration_draw: vec![DrawEntry {
+                layer: "dSw m1".into(),
+                wells: 40,
+                shift_sd: 0.15,
+            }],
         };
         let mut h = String::new();
         section(&mut h, Some(&report));
         assert!(h.contains("swept &lt;area&gt; (km2)"), "{h}");
         assert!(h.contains("<td>2.500</td>"), "the truth is shown");
+        assert!(h.contains("redraws the calibration"), "{h}");
         assert_eq!(h.matches("data:image/png;base64,").count(), 1);
         let json = serde_json::to_string(&report).unwrap();
         assert_eq!(serde_json::from_str::<TotalsReport>(&json).unwrap(), report);

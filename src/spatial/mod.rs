@@ -19,11 +19,14 @@
 //! - [`totals`]: the realization engine, the totals and the two naive rules beside them, and the
 //!   manifest types that define totals.
 //! - [`normal`]: the standard normal distribution function and its inverse.
+//! - [`bootstrap`]: the calibration's uncertainty shared by all nodes, drawn per realization by a
+//!   Bayesian bootstrap over the wells (Rubin 1981, *Ann. Stat.* 9:130).
 //!
 //! Coordinates here are grid-local metres (`x = i dx`, `y = j dy`); the grid's rotation does not
 //! change a distance, so it plays no part. Maps are `Vec<f64>` indexed `j * nx + i` as everywhere
 //! in tidemark.
 
+pub mod bootstrap;
 pub mod field;
 pub mod krige;
 pub mod model;

@@ -42,6 +42,7 @@ use rand::{RngExt, SeedableRng};
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
+use super::bootstrap::{LayerScores, apply_shift, dirichlet_weights_seeded, unit_variance_factors};
 use super::field::{CirculantField, EmbeddingReport, EmbeddingSettings, Workspace};
 use super::krige::{Conditioning, ConditioningReport, LagTable, WellScore};
 use super::model::VariogramModel;
@@ -51,6 +52,7 @@ use crate::project::{Convention, Direction};
 
 const STREAM_FIELD: u64 = 0xF1E1D;
 const STREAM_INDEPENDENT: u64 = 0x1DE9;
+const STREAM_BOOTSTRAP: u64 = 0xB007;
 
 /// A node's predictive distribution, as its quantile function. Implemented for closures
 /// `Fn(node, u) -> y`.
@@ -326,6 +328,10 @@ pub struct TotalsSection {
     /// Realization maps to keep and write (the first ones), default 0.
     #[serde(default)]
     pub keep_realizations: usize,
+    /// Draw the calibration per realization, so that totals carry its uncertainty
+    /// ([`super::bootstrap`]); default on.
+    #[serde(default = "default_true")]
+    pub calibration_uncertainty: bool,
     /// The totals.
     #[serde(default)]
     pub quantities: Vec<TotalSpec>,
@@ -333,6 +339,10 @@ pub struct TotalsSection {
     /// relative to the manifest's folder (the project resolves them when it loads).
     #[serde(default, skip_serializing_if = "std::collections::BTreeMap::is_empty")]
     pub maps: std::collections::BTreeMap<String, String>,
+}
+
+fn default_true() -> bool {
+    true
 }
 
 impl TotalsSection {
@@ -387,6 +397,9 @@ pub struct Layer<'a> {
     pub field: usize,
     /// Wells to condition to (grid-local metres); may be empty.
     pub wells: Vec<WellScore>,
+    /// The held-out wells' normal scores at this step that the calibration rests on, for the
+    /// calibration draw ([`TotalsSettings::calibration_draw`]); may be empty (no draw).
+    pub calibration: Vec<WellScore>,
     /// The nodes' predictive distributions.
     pub distribution: &'a dyn NodeDistribution,
 }
@@ -455,6 +468,10 @@ pub struct TotalsSettings {
     /// Pairs of realizations per parallel chunk (bounds the results in flight; no effect on
     /// the numbers).
     pub chunk: usize,
+    /// Draw the calibration per realization (a Bayesian bootstrap over the wells of their mean
+    /// normal score, shared by every node; [`super::bootstrap`]).
+    #[serde(default)]
+    pub calibration_draw: bool,
 }
 
 impl Default for TotalsSettings {
@@ -467,6 +484,7 @@ impl Default for TotalsSettings {
             independent_rule: true,
             embedding: EmbeddingSettings::default(),
             chunk: 16,
+            calibration_draw: false,
         }
     }
 }
@@ -601,6 +619,12 @@ pub struct LayerReport {
     pub active_nodes: usize,
     /// What happened to its wells.
     pub conditioning: ConditioningReport,
+    /// Wells behind the calibration draw (0: no draw).
+    #[serde(default)]
+    pub calibration_wells: usize,
+    /// Standard deviation of the drawn shift of the wells' mean normal score (0: no draw).
+    #[serde(default)]
+    pub calibration_shift_sd: f64,
 }
 
 /// A kept realization map.
@@ -651,9 +675,18 @@ struct SumPrep {
     weights: Vec<f64>,
 }
 
+/// A layer's calibration draw: its wells' scores, the share of each node left free by the
+/// wells and the unit-variance factors.
+struct Draw {
+    scores: LayerScores,
+    free: Vec<f64>,
+    factor: Vec<f64>,
+}
+
 struct PreparedLayer<'a> {
     field: usize,
     conditioning: Conditioning,
+    draw: Option<Draw>,
     distribution: &'a dyn NodeDistribution,
     active: Vec<bool>,
     areas: Vec<AreaPrep>,
@@ -683,6 +716,8 @@ struct Engine<'a> {
     sims: Vec<Option<CirculantField>>,
     layers: Vec<PreparedLayer<'a>>,
     n_quantities: usize,
+    /// Wells per field for the calibration draw.
+    field_wells: Vec<usize>,
 }
 
 impl<'a> Engine<'a> {
@@ -724,6 +759,8 @@ impl<'a> Engine<'a> {
                 let base = if t == 0 { &a } else { &b };
                 // kriging residuals of this realization, one per distinct set of well nodes
                 let mut residuals: Vec<(usize, Vec<f64>)> = Vec::new();
+                // the field's calibration draw of this realization, shared by its layers
+                let mut weights: Option<Vec<f64>> = None;
                 for (li, layer) in self.layers.iter().enumerate() {
                     if layer.field != f {
                         continue;
@@ -749,6 +786,19 @@ impl<'a> Engine<'a> {
                             }
                         }
                         None => z.copy_from_slice(res),
+                    }
+                    if let Some(draw) = &layer.draw {
+                        let w = weights.get_or_insert_with(|| {
+                            dirichlet_weights_seeded(
+                                self.field_wells[f],
+                                derive_seed(
+                                    self.settings.seed,
+                                    &[STREAM_BOOTSTRAP, f as u64, r as u64],
+                                ),
+                            )
+                        });
+                        let d = draw.scores.shift(w);
+                        apply_shift(&mut z, d, &draw.free, &draw.factor);
                     }
                     self.evaluate(li, layer, &z, r, t, area_offsets[li], &mut out);
                 }
@@ -878,6 +928,55 @@ fn input_error(what: &str, problem: impl Into<String>) -> SpatialError {
     }
 }
 
+/// A layer's calibration draw (`None` with fewer than two finite scores): the scores by well
+/// index in the field, and the share of every node the wells leave free, `1 - sum of the
+/// simple-kriging weights` (the kriged value of scores all 1; 1 everywhere without wells).
+fn prepare_draw(
+    l: &Layer<'_>,
+    names: &[String],
+    table: Arc<LagTable>,
+    conditioning: &Conditioning,
+) -> Result<Option<Draw>, SpatialError> {
+    let scores: Vec<(usize, f64)> = l
+        .calibration
+        .iter()
+        .filter(|w| w.score.is_finite())
+        .filter_map(|w| {
+            names
+                .iter()
+                .position(|n| *n == w.name)
+                .map(|k| (k, w.score))
+        })
+        .collect();
+    let Some(scores) = LayerScores::new(scores) else {
+        return Ok(None);
+    };
+    let n = table.lattice().len();
+    let free: Vec<f64> = if conditioning.kriged_mean().is_some() {
+        let ones: Vec<WellScore> = l
+            .wells
+            .iter()
+            .map(|w| WellScore {
+                score: 1.0,
+                ..w.clone()
+            })
+            .collect();
+        let unit = Conditioning::new(&l.name, table, &ones)?;
+        match unit.kriged_mean() {
+            Some(k) => k.iter().map(|&v| (1.0 - v).clamp(0.0, 1.0)).collect(),
+            None => vec![1.0; n],
+        }
+    } else {
+        vec![1.0; n]
+    };
+    let factor = unit_variance_factors(scores.variance, &free);
+    Ok(Some(Draw {
+        scores,
+        free,
+        factor,
+    }))
+}
+
 /// Runs the realizations and returns every total with its naive-rule companions. Errors name the
 /// field, layer or quantity whose input is unusable.
 pub fn simulate(
@@ -973,10 +1072,26 @@ pub fn simulate(
         })
         .collect::<Result<_, _>>()?;
 
+    // the wells of each field, by name, for the calibration draw
+    let mut well_names: Vec<Vec<String>> = vec![Vec::new(); input.fields.len()];
+    if settings.calibration_draw {
+        for l in &input.layers {
+            for w in &l.calibration {
+                if !well_names[l.field].contains(&w.name) {
+                    well_names[l.field].push(w.name.clone());
+                }
+            }
+        }
+    }
     let mut layers = Vec::with_capacity(input.layers.len());
     for (li, l) in input.layers.iter().enumerate() {
         let table = tables[l.field].clone().expect("table of a used field");
-        let conditioning = Conditioning::new(&l.name, table, &l.wells)?;
+        let conditioning = Conditioning::new(&l.name, table.clone(), &l.wells)?;
+        let draw = if settings.calibration_draw {
+            prepare_draw(l, &well_names[l.field], table, &conditioning)?
+        } else {
+            None
+        };
         let dist = l.distribution;
         let active: Vec<bool> = (0..n)
             .into_par_iter()
@@ -1030,6 +1145,7 @@ pub fn simulate(
         layers.push(PreparedLayer {
             field: l.field,
             conditioning,
+            draw,
             distribution: dist,
             active,
             areas,
@@ -1043,6 +1159,7 @@ pub fn simulate(
         sims,
         layers,
         n_quantities: input.quantities.len(),
+        field_wells: well_names.iter().map(Vec::len).collect(),
     };
 
     let r_total = settings.realizations;
@@ -1156,6 +1273,8 @@ pub fn simulate(
             name: l.name.clone(),
             active_nodes: p.active.iter().filter(|&&a| a).count(),
             conditioning: p.conditioning.report().clone(),
+            calibration_wells: p.draw.as_ref().map_or(0, |d| d.scores.scores.len()),
+            calibration_shift_sd: p.draw.as_ref().map_or(0.0, |d| d.scores.variance.sqrt()),
         })
         .collect();
     Ok(TotalsOutput {

@@ -1,6 +1,7 @@
 //! Integration tests: spatial (normal scores, variograms and their fit, circulant-embedding
 //! fields, conditioning by kriging, field totals and their manifest types).
 
+mod bootstrap;
 mod field;
 mod krige;
 mod scores;

@@ -115,6 +115,7 @@ fn input<'a>(
             Layer {
                 name: "dSw m1".into(),
                 field: 0,
+                calibration: wells.clone(),
                 wells,
                 distribution: hurdle,
             },
@@ -122,6 +123,7 @@ fn input<'a>(
                 name: "dP m1".into(),
                 field: 1,
                 wells: Vec::new(),
+                calibration: Vec::new(),
                 distribution: closure,
             },
         ],
@@ -409,6 +411,7 @@ fn comonotone_rule_and_conventions_by_hand() {
                 name: "x m1".into(),
                 field: 0,
                 wells: Vec::new(),
+                calibration: Vec::new(),
                 distribution: &dist,
             }],
             quantities: vec![
@@ -517,4 +520,51 @@ fn bad_input_names_the_item() {
         .unwrap_err()
         .to_string();
     assert!(e.contains("well X9 of dSw m1"), "{e}");
+}
+
+/// The calibration draw (spatial::bootstrap) moves no node's distribution: without conditioning
+/// the crossing frequencies still follow the node distributions, while a shift shared by every
+/// node widens an area total. Same numbers for any thread count.
+#[test]
+fn the_calibration_draw_keeps_node_distributions_and_widens_totals() {
+    let n = NX * NY;
+    let hurdle = Hurdle::new(n);
+    let weights = vec![1.0; n];
+    let mut inp = input(&hurdle, &normal_nodes, &weights, wells());
+    // the wells' scores drive the draw only (no conditioning), so every node keeps its marginal
+    inp.layers[0].wells.clear();
+    let r = 400;
+    let run = |draw: bool, threads: usize| {
+        let pool = rayon::ThreadPoolBuilder::new()
+            .num_threads(threads)
+            .build()
+            .unwrap();
+        pool.install(|| {
+            simulate(
+                &inp,
+                &TotalsSettings {
+                    realizations: r,
+                    seed: 31,
+                    calibration_draw: draw,
+                    ..TotalsSettings::default()
+                },
+            )
+            .unwrap()
+        })
+    };
+    let (plain, drawn) = (run(false, 2), run(true, 2));
+    assert_eq!(fingerprint(&drawn), fingerprint(&run(true, 1)));
+    let rf = r as f64;
+    let swept = drawn.quantities[0].mean_indicator.as_ref().unwrap();
+    for (i, &f) in swept.iter().enumerate() {
+        let p = 1.0 - hurdle.cdf(i, 0.15);
+        assert!(binomial_ok(f * rf, rf, p), "node {i}: {f} vs {p}");
+    }
+    // the layer without calibration scores is untouched
+    assert_eq!(plain.quantities[2].totals, drawn.quantities[2].totals);
+    let (a, b) = (
+        plain.quantities[0].summary.sd,
+        drawn.quantities[0].summary.sd,
+    );
+    assert!(b > a, "swept area sd {b} with the draw, {a} without");
 }

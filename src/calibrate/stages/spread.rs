@@ -115,4 +115,65 @@ impl Spread {
         let (l, h) = self.beyond.widen(l, h, self.beyond.weight(di, dist));
         (l.clamp(bounds.0, bounds.1), h.clamp(bounds.0, bounds.1))
     }
+
+    /// The factors `(s_lo, s_hi)` by which [`Self::apply`] stretches the band's two sides about
+    /// `mid` before clipping: the lower edge becomes `mid - s_lo (mid - lo)`, the upper one
+    /// `mid + s_hi (hi - mid)`. Applied to the whole distribution (`Q(u) = mid + s (Q0(u) - mid)`
+    /// on each side, so `F(t) = F0(mid + (t - mid) / s)`), they make the exceedance maps the
+    /// distribution whose quantiles the widened band gives. A side of zero width cannot be
+    /// scaled and keeps the factor 1 (the exceedance maps are then made consistent with the band
+    /// by [`crate::calibrate::CalibratedTarget::predict_at`]).
+    pub fn factors(&self, mid: f64, lo: f64, hi: f64, di: f64, dist: f64) -> (f64, f64) {
+        if mid.is_nan() {
+            return (1.0, 1.0);
+        }
+        let k = self.profile.at(di);
+        let (l, h) = (mid - k * (mid - lo), mid + k * (hi - mid));
+        let (l, h) = self.beyond.widen(l, h, self.beyond.weight(di, dist));
+        let side = |wide: f64, plain: f64| {
+            let s = wide / plain;
+            if plain > 0.0 && s.is_finite() && s > 0.0 {
+                s
+            } else {
+                1.0
+            }
+        };
+        (side(mid - l, mid - lo), side(h - mid, hi - mid))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn the_factors_reproduce_the_widened_band() {
+        let spread = Spread {
+            profile: Profile {
+                di: vec![0.2, 0.8],
+                scale: vec![0.9, 1.6],
+                ..Profile::flat()
+            },
+            beyond: Beyond {
+                di_max: 1.0,
+                distance_max: 500.0,
+                envelope_lo: -30.0,
+                envelope_hi: 10.0,
+            },
+        };
+        let bounds = (-60.0, 60.0);
+        for (mid, lo, hi, di, dist) in [
+            (-4.0, -9.0, 1.0, 0.1, 100.0),
+            (-4.0, -9.0, 1.0, 0.5, 100.0),
+            (-4.0, -9.0, 1.0, 1.5, 100.0),
+            (2.0, 0.5, 3.0, 0.5, 800.0),
+        ] {
+            let (l, h) = spread.apply(mid, lo, hi, di, dist, bounds);
+            let (s_lo, s_hi) = spread.factors(mid, lo, hi, di, dist);
+            assert!((mid - s_lo * (mid - lo) - l).abs() < 1e-12, "{di} {dist}");
+            assert!((mid + s_hi * (hi - mid) - h).abs() < 1e-12, "{di} {dist}");
+        }
+        // a side of zero width cannot be scaled
+        assert_eq!(spread.factors(0.0, 0.0, 1.0, 1.5, 100.0).0, 1.0);
+    }
 }
