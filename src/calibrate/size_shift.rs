@@ -228,64 +228,6 @@ pub fn estimate(
     })
 }
 
-/// One-parameter exponential tilt of the bin shares, `pi_b = pi_t,b e^(theta b) / sum`, with
-/// `theta` in `[-ln(max_ratio), ln(max_ratio)]` maximising the weighted log-likelihood of the
-/// population's bin posteriors `sum_i w_i ln(sum_b m_ib e^(theta b) / sum_b pi_t,b e^(theta b))`
-/// (golden-section search; the likelihood of Saerens et al. 2002 restricted to a log-linear
-/// ratio, an exponential tilt of the target's distribution).
-pub fn estimate_tilt(
-    masses: &[Vec<f64>],
-    weight: &[f64],
-    training: &[f64],
-    max_ratio: f64,
-) -> Option<BinEstimate> {
-    let k = training.len();
-    if k < 2 || training.iter().any(|t| !(t.is_finite() && *t > 0.0)) {
-        return None;
-    }
-    let rows: Vec<(&Vec<f64>, f64)> = masses
-        .iter()
-        .zip(weight)
-        .filter(|(m, w)| {
-            m.len() == k
-                && w.is_finite()
-                && **w > 0.0
-                && m.iter().all(|x| x.is_finite())
-                && m.iter().sum::<f64>() > 0.0
-        })
-        .map(|(m, &w)| (m, w))
-        .collect();
-    if rows.is_empty() {
-        return None;
-    }
-    let scale = (k - 1) as f64;
-    let loglik = |theta: f64| -> f64 {
-        let e: Vec<f64> = (0..k).map(|b| (theta * b as f64 / scale).exp()).collect();
-        let norm: f64 = training.iter().zip(&e).map(|(t, e)| t * e).sum::<f64>().ln();
-        rows.iter()
-            .map(|(m, w)| w * (m.iter().zip(&e).map(|(m, e)| m * e).sum::<f64>().ln() - norm))
-            .sum()
-    };
-    let bound = max_ratio.ln();
-    let (mut a, mut b) = (-bound, bound);
-    let g = (5f64.sqrt() - 1.0) / 2.0;
-    let mut iterations = 0;
-    while b - a > 1e-9 && iterations < MAX_ITERATIONS {
-        let c = b - g * (b - a);
-        let d = a + g * (b - a);
-        if loglik(c) >= loglik(d) { b = d } else { a = c }
-        iterations += 1;
-    }
-    let theta = 0.5 * (a + b);
-    let e: Vec<f64> = (0..k).map(|b| (theta * b as f64 / scale).exp()).collect();
-    let total: f64 = training.iter().zip(&e).map(|(t, e)| t * e).sum();
-    Some(BinEstimate {
-        shares: training.iter().zip(&e).map(|(t, e)| t * e / total).collect(),
-        iterations,
-        converged: b - a <= 1e-9,
-    })
-}
-
 /// The bins of a hurdle target's change given a change, and the wells' shares in them.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct SizeBins {
@@ -319,21 +261,11 @@ pub struct SizeShift {
 impl SizeShift {
     /// Estimate from each node's bin masses and weight (its probability of a change).
     pub fn fit(bins: &SizeBins, masses: &[Vec<f64>], weight: &[f64]) -> Option<Self> {
-        let rmax = std::env::var("TIDEMARK_SIZE_RMAX")
-            .ok()
-            .and_then(|v| v.parse().ok())
-            .unwrap_or(MAX_RATIO);
-        let use_obs = std::env::var("TIDEMARK_SIZE_TRAIN").is_ok_and(|v| v == "obs");
-        let training = if use_obs { &bins.observed } else { &bins.training };
-        let e = if std::env::var("TIDEMARK_SIZE_MODE").is_ok_and(|v| v == "tilt") {
-            estimate_tilt(masses, weight, training, rmax)?
-        } else {
-            estimate(masses, weight, training, rmax)?
-        };
+        let e = estimate(masses, weight, &bins.training, MAX_RATIO)?;
         let ratio = e
             .shares
             .iter()
-            .zip(training)
+            .zip(&bins.training)
             .map(|(s, t)| s / t)
             .collect();
         Some(Self {
