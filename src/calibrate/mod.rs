@@ -38,7 +38,6 @@ pub mod predict;
 pub mod prior;
 pub mod profile;
 pub mod shift;
-pub mod size_shift;
 pub mod stages;
 pub mod target;
 pub mod units;

@@ -14,7 +14,6 @@ use super::error::CalibrateError;
 use super::exceedance::{ExceedMethod, bounded_cdf, crossing_probability};
 use super::hurdle;
 use super::prior::PriorShift;
-use super::size_shift::{SizeShift, bin_masses};
 use super::stages::hurdle::{self as stage, CpsAt, HurdleModel};
 use super::target::{CalibratedTarget, TargetPrediction};
 use ndarray::{Array2, ArrayView2};
@@ -150,6 +149,7 @@ impl CalibratedTarget {
                 h.prior.as_ref().map_or(p, |s| s.apply(p))
             })
             .collect();
+        let (u_lo, u_mid, u_hi) = h.levels;
         let nt = self.thresholds.len();
         let rows: Vec<(f64, f64, f64, Vec<f64>)> = (0..n)
             .into_par_iter()
@@ -163,10 +163,13 @@ impl CalibratedTarget {
                     scale: scale[i],
                     bounds: self.bounds,
                 };
-                match &h.size {
-                    Some(s) => self.mixture_row(h, p[i], &s.apply(&g)),
-                    None => self.mixture_row(h, p[i], &g),
-                }
+                let q = |u: f64| hurdle::quantile(p[i], &g, u);
+                let e = self
+                    .thresholds
+                    .iter()
+                    .map(|th| stage::crossing(p[i], &g, th.value, th.above, Some(&h.recalibration)))
+                    .collect();
+                (q(u_lo), q(u_mid), q(u_hi), e)
             })
             .collect();
         TargetPrediction {
@@ -177,60 +180,6 @@ impl CalibratedTarget {
                 .map(|t| rows.iter().map(|r| r.3[t]).collect())
                 .collect(),
             p_change: Some(p),
-        }
-    }
-
-    /// Lower edge, middle, upper edge and exceedance probabilities of the mixture of `p` and `g`.
-    fn mixture_row<G: hurdle::Conditional>(
-        &self,
-        h: &HurdleModel,
-        p: f64,
-        g: &G,
-    ) -> (f64, f64, f64, Vec<f64>) {
-        let (u_lo, u_mid, u_hi) = h.levels;
-        let q = |u: f64| hurdle::quantile(p, g, u);
-        let e = self
-            .thresholds
-            .iter()
-            .map(|th| stage::crossing(p, g, th.value, th.above, Some(&h.recalibration)))
-            .collect();
-        (q(u_lo), q(u_mid), q(u_hi), e)
-    }
-
-    /// Each row's conditional mass in the bins of a hurdle target's change given a change
-    /// ([`crate::calibrate::size_shift`], before any [`SizeShift`]); `None` for a continuous
-    /// target or a model without the bins.
-    pub fn size_masses(&self, x: ArrayView2<f64>) -> Result<Option<Vec<Vec<f64>>>, CalibrateError> {
-        let Some(bins) = self.hurdle.as_ref().and_then(|h| h.size_bins.as_ref()) else {
-            return Ok(None);
-        };
-        let (mid, scale) = self.conditional_at(x)?;
-        let masses = (0..mid.len())
-            .into_par_iter()
-            .map(|i| {
-                if !mid[i].is_finite() {
-                    return vec![f64::NAN; bins.edges.len() + 1];
-                }
-                let g = CpsAt {
-                    cps: &self.cps,
-                    mid: mid[i],
-                    scale: scale[i],
-                    bounds: self.bounds,
-                };
-                bin_masses(&g, &bins.edges)
-            })
-            .collect();
-        Ok(Some(masses))
-    }
-
-    /// Reweights a hurdle target's conditional distribution to the nodes' bin shares from now
-    /// on; `None` restores the wells' shares. Does nothing for a continuous target.
-    pub fn set_size(&mut self, shift: Option<SizeShift>) {
-        if let Some(h) = &mut self.hurdle {
-            h.size = shift.clone();
-            if let Some(d) = &mut self.diagnostics.hurdle {
-                d.size = shift;
-            }
         }
     }
 

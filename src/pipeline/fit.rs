@@ -251,9 +251,6 @@ pub fn fit_model(
     }
     bar.finish_and_clear();
     node_priors(survey, &mut calibrated)?;
-    if std::env::var("TIDEMARK_SIZE_SHIFT").is_ok_and(|v| v == "1") {
-        node_sizes(survey, &mut calibrated)?;
-    }
     stages.done("fit and calibrate");
 
     let model = SavedModel {
@@ -333,63 +330,6 @@ pub fn node_priors(
             ));
         }
         cal.set_prior(shift);
-    }
-    Ok(())
-}
-
-/// Reweights every hurdle target's conditional distribution (the change given a change) to the
-/// nodes' shares of the bins of the change ([`crate::calibrate::size_shift`]): each mapped node's
-/// conditional mass per bin, weighted by its (adjusted) probability of a change, one EM estimate
-/// over all steps together, set on the target.
-pub fn node_sizes(
-    survey: &Survey,
-    calibrated: &mut [CalibratedTarget],
-) -> Result<(), PipelineError> {
-    let targets: Vec<usize> = (0..calibrated.len())
-        .filter(|&t| {
-            calibrated[t]
-                .hurdle
-                .as_ref()
-                .is_some_and(|h| h.size_bins.is_some())
-        })
-        .collect();
-    if targets.is_empty() {
-        return Ok(());
-    }
-    let mut masses: Vec<Vec<Vec<f64>>> = vec![Vec::new(); targets.len()];
-    let mut weights: Vec<Vec<f64>> = vec![Vec::new(); targets.len()];
-    for s in 0..survey.project.steps.len() {
-        let x = sample::node_features(survey, s);
-        let n_attr = x.ncols() - 1;
-        let valid: Vec<usize> = (0..x.nrows())
-            .filter(|&r| x.row(r).iter().take(n_attr).all(|v| v.is_finite()))
-            .collect();
-        let compact = x.select(Axis(0), &valid);
-        for (k, &t) in targets.iter().enumerate() {
-            let cal = &calibrated[t];
-            let err = |source| PipelineError::Calibrate {
-                target: cal.name.clone(),
-                source,
-            };
-            let m = cal.size_masses(compact.view()).map_err(err)?;
-            let p = cal.change_probability(compact.view()).map_err(err)?;
-            if let (Some(m), Some((p, _))) = (m, p) {
-                let prior = cal.hurdle.as_ref().and_then(|h| h.prior.as_ref());
-                weights[k].extend(p.iter().map(|&v| prior.map_or(v, |s| s.apply(v))));
-                masses[k].extend(m);
-            }
-        }
-    }
-    for (k, &t) in targets.iter().enumerate() {
-        let cal = &mut calibrated[t];
-        let bins = cal
-            .hurdle
-            .as_ref()
-            .and_then(|h| h.size_bins.clone())
-            .expect("checked");
-        let shift = calibrate::size_shift::SizeShift::fit(&bins, &masses[k], &weights[k]);
-        eprintln!("size shift {}: {:?}", cal.name, shift.as_ref().map(|s| (&s.bins, &s.estimated, &s.ratio, s.iterations)));
-        cal.set_size(shift);
     }
     Ok(())
 }

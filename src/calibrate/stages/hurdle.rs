@@ -37,7 +37,6 @@ use crate::calibrate::hurdle::{self, Conditional, ZeroRule};
 use crate::calibrate::input::{CalibrationSettings, Space, TargetData};
 use crate::calibrate::isotonic::{IsotonicMap, IsotonicSettings, cross_fit};
 use crate::calibrate::prior::PriorShift;
-use crate::calibrate::size_shift::{SizeBins, SizeShift, bin_masses};
 use crate::calibrate::units::{Units, count_wells, pick};
 use crate::ensemble::{Forest, ForestSettings};
 use crate::metrics::brier;
@@ -99,14 +98,6 @@ pub struct HurdleModel {
     /// estimated it ([`crate::calibrate::prior`]); `None`: the wells' share stands.
     #[serde(default)]
     pub prior: Option<PriorShift>,
-    /// Bins of the change given a change and the wells' shares in them (absent in models
-    /// written before they were kept).
-    #[serde(default)]
-    pub size_bins: Option<SizeBins>,
-    /// The conditional distribution reweighted to the nodes' shares of those bins, when the
-    /// caller estimated them ([`crate::calibrate::size_shift`]).
-    #[serde(default)]
-    pub size: Option<SizeShift>,
 }
 
 /// What the hurdle did, for `summary.json` and the report.
@@ -134,9 +125,6 @@ pub struct HurdleDiagnostics {
     /// [`HurdleModel::prior`]).
     #[serde(default)]
     pub prior: Option<PriorShift>,
-    /// The nodes' shares of the bins of the change given a change (as [`HurdleModel::size`]).
-    #[serde(default)]
-    pub size: Option<SizeShift>,
 }
 
 /// What the hurdle stage returns to the assembly of the target.
@@ -322,7 +310,6 @@ pub fn calibrate(
         levels,
         zero_coverage,
         prior: None,
-        size: None,
     };
     let total_weight: f64 = data.weight.iter().sum();
     let training_prior = (total_weight > 0.0).then(|| {
@@ -343,8 +330,6 @@ pub fn calibrate(
             reference,
             training_prior,
             prior: None,
-            size_bins: size_bins(data, &changed, &g),
-            size: None,
         },
         diagnostics,
         truth,
@@ -383,67 +368,6 @@ pub fn crossing<G: Conditional>(
     } else {
         r(hurdle::cdf_left(p, g, t))
     }
-}
-
-/// Number of bins of the change given a change.
-pub fn size_bin_count() -> usize {
-    std::env::var("TIDEMARK_SIZE_BINS")
-        .ok()
-        .and_then(|v| v.parse().ok())
-        .unwrap_or(5)
-}
-
-/// The bins of the change given a change: interior edges at the weighted quantiles `k / K` of
-/// the changed rows' values, the wells' shares (weighted mean of each changed row's conditional
-/// mass per bin, held out) and the observed shares. `None` with fewer than two bins' worth of
-/// distinct values.
-fn size_bins<G: Conditional>(
-    data: &TargetData,
-    changed: &[f64],
-    g: &dyn Fn(usize) -> G,
-) -> Option<SizeBins> {
-    let k = size_bin_count();
-    let rows: Vec<usize> = (0..changed.len()).filter(|&i| changed[i] > 0.5).collect();
-    if k < 2 || rows.len() < 2 * k {
-        return None;
-    }
-    let mut vw: Vec<(f64, f64)> = rows.iter().map(|&i| (data.y[i], data.weight[i])).collect();
-    vw.sort_by(|a, b| a.0.total_cmp(&b.0));
-    let total: f64 = vw.iter().map(|p| p.1).sum();
-    let mut edges = Vec::new();
-    for j in 1..k {
-        let target = total * j as f64 / k as f64;
-        let mut c = 0.0;
-        let mut e = vw[vw.len() - 1].0;
-        for p in &vw {
-            c += p.1;
-            if c >= target - 1e-12 * total {
-                e = p.0;
-                break;
-            }
-        }
-        if edges.last().is_none_or(|&l| e > l) {
-            edges.push(e);
-        }
-    }
-    if edges.is_empty() {
-        return None;
-    }
-    let nb = edges.len() + 1;
-    let mut training = vec![0.0; nb];
-    let mut observed = vec![0.0; nb];
-    for &i in &rows {
-        let w = data.weight[i];
-        for (b, m) in bin_masses(&g(i), &edges).iter().enumerate() {
-            training[b] += w * m / total;
-        }
-        observed[edges.partition_point(|&e| e < data.y[i])] += w / total;
-    }
-    Some(SizeBins {
-        edges,
-        training,
-        observed,
-    })
 }
 
 /// Out-of-fold estimates of the change forests, and the forest fitted on all rows.
