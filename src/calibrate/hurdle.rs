@@ -186,6 +186,44 @@ impl ZeroRule {
     /// `2 sd`. `auto` turns the atom on when at least 20 % of rows lie within the tolerance and the
     /// noise estimate is at most a quarter of the 90th percentile of `|y|`.
     pub fn decide(y: &[f64], setting: ZeroChange, tolerance: Option<f64>) -> ZeroRule {
+        Self::decide_for(y, setting, tolerance, &[])
+    }
+
+    /// As [`Self::decide`], knowing the target's decision thresholds. A tolerance that reaches a
+    /// non-zero threshold would score every measured change up to that threshold as "no
+    /// change", so the maps would under-state the probability of crossing it: `auto` then
+    /// declines the atom and says why, and a manifest's `zero_change = true` keeps it with that
+    /// caution in the reason.
+    pub fn decide_for(
+        y: &[f64],
+        setting: ZeroChange,
+        tolerance: Option<f64>,
+        thresholds: &[f64],
+    ) -> ZeroRule {
+        let mut rule = Self::decide_plain(y, setting, tolerance);
+        let swallowed = thresholds
+            .iter()
+            .copied()
+            .filter(|t| t.is_finite() && *t != 0.0 && t.abs() <= rule.tolerance)
+            .min_by(|a, b| a.abs().total_cmp(&b.abs()));
+        if let (true, Some(t)) = (rule.enabled, swallowed) {
+            let why = format!(
+                "the tolerance {:.4} reaches the decision threshold {t}, so changes up to it                  would count as no change",
+                rule.tolerance
+            );
+            match setting {
+                ZeroChange::Auto => {
+                    rule.enabled = false;
+                    rule.reason = format!("auto: {why}; no atom");
+                }
+                _ => rule.reason = format!("{}; caution: {why}", rule.reason),
+            }
+        }
+        rule
+    }
+
+    /// The decision from the wells alone.
+    fn decide_plain(y: &[f64], setting: ZeroChange, tolerance: Option<f64>) -> ZeroRule {
         let finite: Vec<f64> = y.iter().copied().filter(|v| v.is_finite()).collect();
         let n = finite.len().max(1) as f64;
         let sign = if finite.iter().sum::<f64>() >= 0.0 {
@@ -314,5 +352,28 @@ mod tests {
         assert!(!r.enabled, "{}", r.reason);
         let r = ZeroRule::decide(&p, ZeroChange::On, Some(0.5));
         assert!(r.enabled && r.tolerance == 0.5);
+    }
+
+    #[test]
+    fn auto_declines_an_atom_whose_tolerance_reaches_a_decision_threshold() {
+        // Depletion-like: 30 wells near zero (noise sd 1) and 50 real drops of 3-8 units, one
+        // decision threshold at -2: the estimated tolerance (2 sd, about 2) reaches it.
+        let mut y: Vec<f64> = (0..30)
+            .map(|i| (if i % 2 == 0 { 1.0 } else { -1.0 }) * (0.4 + (i % 6) as f64 * 0.3))
+            .collect();
+        y.extend((0..50).map(|i| -3.0 - 0.1 * i as f64));
+        let plain = ZeroRule::decide(&y, ZeroChange::Auto, None);
+        assert!(plain.enabled, "{}", plain.reason);
+        assert!(plain.tolerance >= 2.0, "{}", plain.tolerance);
+        let r = ZeroRule::decide_for(&y, ZeroChange::Auto, None, &[-2.0]);
+        assert!(!r.enabled, "{}", r.reason);
+        assert!(r.reason.contains("threshold -2"), "{}", r.reason);
+        assert_eq!(r.tolerance, plain.tolerance);
+        // A threshold beyond the tolerance leaves the decision as it was.
+        let far = ZeroRule::decide_for(&y, ZeroChange::Auto, None, &[-6.0]);
+        assert_eq!(far, plain);
+        // The manifest's word stands, with the caution.
+        let on = ZeroRule::decide_for(&y, ZeroChange::On, None, &[-2.0]);
+        assert!(on.enabled && on.reason.contains("caution"), "{}", on.reason);
     }
 }

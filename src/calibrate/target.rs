@@ -217,7 +217,8 @@ pub fn calibrate_target(
     settings: &CalibrationSettings,
 ) -> Result<CalibratedTarget, CalibrateError> {
     data.check(settings)?;
-    let rule = ZeroRule::decide(data.y, data.zero.change, data.zero.tolerance);
+    let limits: Vec<f64> = data.thresholds.iter().map(|t| t.value).collect();
+    let rule = ZeroRule::decide_for(data.y, data.zero.change, data.zero.tolerance, &limits);
     let mut target = if rule.enabled {
         with_atom(data, settings, &rule)?
     } else {
