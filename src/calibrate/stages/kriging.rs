@@ -443,6 +443,57 @@ fn band_scale(
     Some(BandScale { c, r_max, r_floor })
 }
 
+/// Out-of-fold weighted MSE without and with the kriged error `est` subtracted from the errors
+/// `e`, the gain in % and one standard error of it (wells' paired differences).
+fn mse_gain(e: &[f64], est: &[f64], w: &[f64], group: &[usize]) -> (f64, f64, f64, f64) {
+    let n = e.len();
+    let mse_plain = wmean(e.iter().map(|v| v * v), w);
+    let mse_kriged = wmean((0..n).map(|i| (e[i] - est[i]).powi(2)), w);
+    let mut per_well: BTreeMap<usize, f64> = BTreeMap::new();
+    for i in 0..n {
+        *per_well.entry(group[i]).or_default() += w[i] * (e[i] * e[i] - (e[i] - est[i]).powi(2));
+    }
+    let nw = per_well.len() as f64;
+    let d_mean = per_well.values().sum::<f64>() / nw;
+    let d_var = per_well.values().map(|d| (d - d_mean).powi(2)).sum::<f64>() / (nw - 1.0).max(1.0);
+    let se = (d_var / nw).sqrt();
+    (
+        mse_plain,
+        mse_kriged,
+        100.0 * (mse_plain - mse_kriged) / mse_plain,
+        100.0 * se / mse_plain,
+    )
+}
+
+/// The band scaled by `c r` for every held-out row, `c` from the other folds' normalised
+/// `score`s; `rows` holds the middle and the unscaled band. `None` when a fold has too few wells
+/// for the conformal quantile.
+fn cross_fitted_band(
+    input: &KrigingInput,
+    score: &[f64],
+    r: &[f64],
+    w: &[f64],
+    rows: (&[f64], &[f64], &[f64]),
+) -> Option<(Vec<f64>, Vec<f64>)> {
+    let n = score.len();
+    let (mid, lo_b, hi_b) = rows;
+    let (mut lo_s, mut hi_s) = (lo_b.to_vec(), hi_b.to_vec());
+    let mut folds: Vec<usize> = input.folds.to_vec();
+    folds.sort_unstable();
+    folds.dedup();
+    for &k in &folds {
+        let train: Vec<usize> = (0..n).filter(|&i| input.folds[i] != k).collect();
+        // Each held-out row's r already sits at or above its fold's floor.
+        let b = band_scale(score, r, w, &train, input.level, 0.0)?;
+        for i in (0..n).filter(|&i| input.folds[i] == k) {
+            let (l, h) = scaled(mid[i], lo_b[i], hi_b[i], b.factor(r[i]), input.bounds);
+            lo_s[i] = l;
+            hi_s[i] = h;
+        }
+    }
+    Some((lo_s, hi_s))
+}
+
 /// Fit the stage (see the module docs).
 pub fn fit(input: &KrigingInput) -> Kriged {
     let n = input.y.len();
@@ -454,20 +505,7 @@ pub fn fit(input: &KrigingInput) -> Kriged {
     let pts_all = data(input, &e, &rms_all, &all);
     let full = variogram_of(&pts_all, diag);
     let (est, r, fallen) = cross_fit(input, &e, &w, diag);
-    let mse_plain = wmean(e.iter().map(|v| v * v), &w);
-    let mse_kriged = wmean((0..n).map(|i| (e[i] - est[i]).powi(2)), &w);
-    // Paired differences per well.
-    let mut per_well: BTreeMap<usize, f64> = BTreeMap::new();
-    for i in 0..n {
-        *per_well.entry(input.group[i]).or_default() +=
-            w[i] * (e[i] * e[i] - (e[i] - est[i]).powi(2));
-    }
-    let nw = per_well.len() as f64;
-    let d_mean = per_well.values().sum::<f64>() / nw;
-    let d_var = per_well.values().map(|d| (d - d_mean).powi(2)).sum::<f64>() / (nw - 1.0).max(1.0);
-    let se = (d_var / nw).sqrt();
-    let gain = 100.0 * (mse_plain - mse_kriged) / mse_plain;
-    let gain_se = 100.0 * se / mse_plain;
+    let (mse_plain, mse_kriged, gain, gain_se) = mse_gain(&e, &est, &w, input.group);
     let full_ok = full.as_ref().is_some_and(|(_, f)| !f.fallback);
     let shift_kept = input.correct_middle && full_ok && fallen == 0 && gain > 0.0 && gain > gain_se;
     let sh = if shift_kept { 1.0 } else { 0.0 };
@@ -499,25 +537,11 @@ pub fn fit(input: &KrigingInput) -> Kriged {
     let score: Vec<f64> = (0..n)
         .map(|i| needed_scale(input.y[i], mid[i], lo_b[i], hi_b[i]) / r[i].max(1e-12))
         .collect();
-    let mut lo_s = lo_b.clone();
-    let mut hi_s = hi_b.clone();
-    let mut scaled_ok = full_ok && fallen == 0;
-    let mut folds: Vec<usize> = input.folds.to_vec();
-    folds.sort_unstable();
-    folds.dedup();
-    for &k in &folds {
-        let train: Vec<usize> = (0..n).filter(|&i| input.folds[i] != k).collect();
-        // Each held-out row's r already sits at or above its fold's floor.
-        let Some(b) = band_scale(&score, &r, &w, &train, input.level, 0.0) else {
-            scaled_ok = false;
-            break;
-        };
-        for i in (0..n).filter(|&i| input.folds[i] == k) {
-            let (l, h) = scaled(mid[i], lo_b[i], hi_b[i], b.factor(r[i]), input.bounds);
-            lo_s[i] = l;
-            hi_s[i] = h;
-        }
-    }
+    let scaled_band = (full_ok && fallen == 0)
+        .then(|| cross_fitted_band(input, &score, &r, &w, (&mid, &lo_b, &hi_b)))
+        .flatten();
+    let scaled_ok = scaled_band.is_some();
+    let (lo_s, hi_s) = scaled_band.unwrap_or_else(|| (lo_b.clone(), hi_b.clone()));
     let is_scaled = if scaled_ok {
         is(&lo_s, &hi_s)
     } else {
@@ -557,16 +581,16 @@ pub fn fit(input: &KrigingInput) -> Kriged {
             if b { "kept" } else { "not kept" }
         ),
     };
-    let model = (shift_kept || band_kept).then(|| ResidualKriging {
-        variogram: full
-            .as_ref()
-            .map(|(_, f)| f.model)
-            .expect("kept only with a fit"),
-        step_rms: rms_all.iter().map(|(&k, &v)| (k, v)).collect(),
-        data: pts_all,
-        shift: shift_kept,
-        band: if band_kept { band_final } else { None },
-    });
+    let model = full
+        .as_ref()
+        .filter(|_| shift_kept || band_kept)
+        .map(|(_, f)| ResidualKriging {
+            variogram: f.model,
+            step_rms: rms_all.iter().map(|(&k, &v)| (k, v)).collect(),
+            data: pts_all,
+            shift: shift_kept,
+            band: if band_kept { band_final } else { None },
+        });
     let diagnostics = KrigingDiagnostics {
         applied: model.is_some(),
         decision,
