@@ -10,7 +10,8 @@
 //! uncalibrated quantile forest (and the gain in %), the best gain any rescaling of the band about
 //! its P50 could reach (an oracle that picks the scale with the truth; it tells whether the band's
 //! width or its shape stands between the band and the goal), and coverage in the bottom and top
-//! deciles of the truth. Each figure is shown as the mean over seeds with the smallest and largest value.
+//! deciles of the truth, coverage, mean width and P50 error within half a well spacing of a well
+//! and farther away, and the residual kriging's out-of-fold decision. Each figure is shown as the mean over seeds with the smallest and largest value.
 //!
 //! With `--perturb EPS` every training attribute (the attributes sampled at the wells, not the
 //! step index) is multiplied by `1 + EPS u`, `u` uniform in [-1, 1] from a seeded generator, the
@@ -27,6 +28,7 @@ use std::path::{Path, PathBuf};
 use std::time::Instant;
 use tidemark::io::geotiff;
 use tidemark::pipeline::fit;
+use tidemark::pipeline::model::SavedModel;
 use tidemark::pipeline::outputs::{Formats, Writer, write_step_maps};
 use tidemark::pipeline::run::{self, RunOptions};
 use tidemark::pipeline::score::{BandFigures, SetFigures, TruthScore, score_with};
@@ -188,6 +190,95 @@ fn oracle_scaled_gain(
     Ok(100.0 * (forest_is - best) / forest_is)
 }
 
+/// Coverage, mean width and P50 mean absolute error of the band at nodes within half a well
+/// spacing of a well and farther away (the spacing is the mean distance from a well to its
+/// nearest neighbour), all steps pooled; and the residual kriging's out-of-fold decision.
+fn near_well_figures(
+    manifest: &Path,
+    results: &Path,
+    field: &Path,
+    target: &str,
+) -> Result<BTreeMap<String, f64>, Box<dyn std::error::Error>> {
+    let survey = run::load(manifest)?;
+    let grid = &survey.project.grid;
+    let model = SavedModel::load(&results.join("model.json"))?;
+    let wells: Vec<(f64, f64)> = model.wells.iter().map(|w| (w.1, w.2)).collect();
+    let nearest = |x: f64, y: f64, skip: Option<usize>| {
+        wells
+            .iter()
+            .enumerate()
+            .filter(|(k, _)| Some(*k) != skip)
+            .map(|(_, w)| (w.0 - x).hypot(w.1 - y))
+            .fold(f64::INFINITY, f64::min)
+    };
+    let spacing = wells
+        .iter()
+        .enumerate()
+        .map(|(k, w)| nearest(w.0, w.1, Some(k)))
+        .sum::<f64>()
+        / wells.len().max(1) as f64;
+    let node_d: Vec<f64> = grid
+        .node_coordinates()
+        .iter()
+        .map(|&(x, y)| nearest(x, y, None))
+        .collect();
+    // [near, far] x (count, covered, width, abs error)
+    let mut acc = [[0.0f64; 4]; 2];
+    for step in &survey.project.steps {
+        let maps = results.join("maps").join(&step.name);
+        let read = |p: PathBuf| geotiff::read_on_grid(&p, grid);
+        let t = read(
+            field
+                .join("truth")
+                .join(&step.name)
+                .join(format!("{target}.tif")),
+        )?;
+        let l = read(maps.join(format!("{target}_p10.tif")))?;
+        let m = read(maps.join(format!("{target}_p50.tif")))?;
+        let h = read(maps.join(format!("{target}_p90.tif")))?;
+        for i in 0..t.len() {
+            if ![t[i], l[i], m[i], h[i]].iter().all(|v| v.is_finite()) {
+                continue;
+            }
+            let a = &mut acc[usize::from(node_d[i] >= 0.5 * spacing)];
+            a[0] += 1.0;
+            a[1] += f64::from(u8::from(t[i] >= l[i] && t[i] <= h[i]));
+            a[2] += h[i] - l[i];
+            a[3] += (t[i] - m[i]).abs();
+        }
+    }
+    let mut f = BTreeMap::new();
+    for (k, name) in ["near wells", "far from wells"].iter().enumerate() {
+        let a = acc[k];
+        f.insert(format!("coverage {name}"), a[1] / a[0]);
+        f.insert(format!("mean width {name}"), a[2] / a[0]);
+        f.insert(format!("P50 MAE {name}"), a[3] / a[0]);
+        f.insert(
+            format!("share of nodes {name}"),
+            a[0] / (acc[0][0] + acc[1][0]),
+        );
+    }
+    let kr = model
+        .calibrated
+        .iter()
+        .find(|c| c.name == target)
+        .and_then(|c| c.diagnostics.kriging.as_ref());
+    let flag = |b: bool| if b { 1.0 } else { 0.0 };
+    f.insert(
+        "kriging: out-of-fold MSE gain %".into(),
+        kr.map_or(f64::NAN, |k| k.mse_gain_pct),
+    );
+    f.insert(
+        "kriging: middle corrected".into(),
+        kr.map_or(f64::NAN, |k| flag(k.shift_kept && k.applied)),
+    );
+    f.insert(
+        "kriging: band scaled".into(),
+        kr.map_or(f64::NAN, |k| flag(k.band_kept && k.applied)),
+    );
+    Ok(f)
+}
+
 /// The goal figures of one target, by name, from its pooled band figures.
 fn figures(sets: &[SetFigures]) -> BTreeMap<String, f64> {
     let mut f = BTreeMap::new();
@@ -284,6 +375,16 @@ fn rows(regions: &[String]) -> Vec<(String, Option<&'static str>)> {
         ("coverage top decile".into(), Some(">= 0.75")),
         ("coverage all".into(), None),
         ("mean width all".into(), None),
+        ("share of nodes near wells".into(), None),
+        ("coverage near wells".into(), None),
+        ("coverage far from wells".into(), None),
+        ("mean width near wells".into(), None),
+        ("mean width far from wells".into(), None),
+        ("P50 MAE near wells".into(), None),
+        ("P50 MAE far from wells".into(), None),
+        ("kriging: out-of-fold MSE gain %".into(), None),
+        ("kriging: middle corrected".into(), None),
+        ("kriging: band scaled".into(), None),
     ]);
     r
 }
@@ -398,6 +499,9 @@ fn main() {
             )
             .unwrap_or_else(|e| panic!("seed {seed}: {}: oracle: {e}", t.target));
             f.insert("oracle-scaled interval score gain %".into(), oracle);
+            let near = near_well_figures(&manifest, &results, &field_dir, &t.target)
+                .unwrap_or_else(|e| panic!("seed {seed}: {}: near wells: {e}", t.target));
+            f.extend(near);
             if let Some((p, _)) = &perturbed {
                 let pt = p.targets.iter().find(|x| x.target == t.target).unwrap();
                 let pf = figures(&pt.pooled_figures);

@@ -14,7 +14,10 @@
 //!   Patterson & Candes 2019), in Mondrian bins of the predicted value (Vovk et al. 2005),
 //! - and calibrates exceedance probabilities ([`exceedance`]: conformal predictive systems,
 //!   Vovk, Shen, Manokhin & Xie 2019; isotonic recalibration of the forest's CDF, Kuleshov,
-//!   Fenner & Ermon 2018).
+//!   Fenner & Ermon 2018),
+//! - and corrects the middle and band by kriging the held-out wells' errors (regression kriging,
+//!   Odeh, McBratney & Chittleborough 1995; [`kriging`] for the solver, [`stages::kriging`] for
+//!   the decision).
 //!
 //! When the wells are too few for a finite band at the requested level, the answer says so and the
 //! band widens to the target's physical bounds.
@@ -24,7 +27,8 @@
 //! [`CalibratedTarget::predict`] applies the result at the grid nodes, with a hurdle target's
 //! probability of a change adjusted to the nodes' share of change when the caller has set one
 //! ([`prior`]; Saerens, Latinne & Decaestecker 2002). The method modules
-//! ([`folds`], [`isotonic`], [`conformal`], [`exceedance`], [`shift`], [`units`], [`prior`]) sit below the
+//! ([`folds`], [`isotonic`], [`conformal`], [`exceedance`], [`shift`], [`units`], [`prior`],
+//! [`kriging`]) sit below the
 //! stages and know nothing of them; this module only declares and re-exports.
 
 pub mod conformal;
@@ -34,6 +38,7 @@ pub mod folds;
 pub mod hurdle;
 pub mod input;
 pub mod isotonic;
+pub mod kriging;
 pub mod predict;
 pub mod prior;
 pub mod profile;

@@ -51,6 +51,23 @@ pub struct NodeContext<'a> {
     pub dissimilarity: &'a [f64],
     /// Distance of each row to the nearest training well, in map units.
     pub distance: &'a [f64],
+    /// Location of each row (world coordinates, as the wells'); with `step`, the target's
+    /// residual kriging applies.
+    pub xy: Option<&'a [(f64, f64)]>,
+    /// Step index of each row.
+    pub step: Option<&'a [usize]>,
+}
+
+impl<'a> NodeContext<'a> {
+    /// A context with dissimilarity and distance only (no kriging).
+    pub fn new(dissimilarity: &'a [f64], distance: &'a [f64]) -> Self {
+        Self {
+            dissimilarity,
+            distance,
+            xy: None,
+            step: None,
+        }
+    }
 }
 
 impl CalibratedTarget {
@@ -62,13 +79,17 @@ impl CalibratedTarget {
     }
 
     /// As [`Self::predict`]; with a `context`, the band also widens with each row's
-    /// dissimilarity and beyond the ground cross-validation spanned (the target's spread rule).
+    /// dissimilarity and beyond the ground cross-validation spanned (the target's spread rule),
+    /// and, when the context has locations and steps, the middle takes the kriged held-out error
+    /// and the band the kriging-variance scale (the target's residual kriging, before the
+    /// spread).
     pub fn predict_at(
         &self,
         x: ArrayView2<f64>,
         context: Option<NodeContext>,
     ) -> Result<TargetPrediction, CalibrateError> {
-        let (parts, scale) = self.continuous_parts(x)?;
+        let adj = context.and_then(|c| self.kriging_at(x.nrows(), c));
+        let (parts, scale) = self.continuous_parts(x, adj.as_deref())?;
         let (mut out, cond_mid) = match &self.hurdle {
             Some(h) => {
                 let out = self.mixture(h, x, &parts, &scale);
@@ -194,6 +215,22 @@ impl CalibratedTarget {
         }
     }
 
+    /// `(shift of the middle, band factor)` of every row from the residual kriging, when the
+    /// target has one (continuous targets only) and `c` gives locations and steps.
+    fn kriging_at(&self, n: usize, c: NodeContext) -> Option<Vec<(f64, f64)>> {
+        let (k, xy, step) = (self.kriging.as_ref()?, c.xy?, c.step?);
+        if self.hurdle.is_some() || xy.len() != n || step.len() != n {
+            return None;
+        }
+        let systems = k.systems();
+        Some(
+            (0..n)
+                .into_par_iter()
+                .map(|i| k.at(&systems, [xy[i].0, xy[i].1], step[i]))
+                .collect(),
+        )
+    }
+
     /// The uncalibrated quantile forest on all the target's rows: the forest itself for a
     /// continuous target, the hurdle's reference forest for a target with an atom at zero.
     pub fn reference_forest(&self) -> &crate::ensemble::Forest {
@@ -245,7 +282,7 @@ impl CalibratedTarget {
         &self,
         x: ArrayView2<f64>,
     ) -> Result<(Vec<f64>, Vec<f64>), CalibrateError> {
-        let (p, scale) = self.continuous_parts(x)?;
+        let (p, scale) = self.continuous_parts(x, None)?;
         Ok((p.mid, scale))
     }
 
@@ -299,10 +336,13 @@ impl CalibratedTarget {
         }
     }
 
-    /// The continuous model's prediction at every row, and each row's residual scale.
+    /// The continuous model's prediction at every row, and each row's residual scale; `adj`
+    /// (per row, the kriged shift of the middle and the band factor) moves the middle before the
+    /// band and the predictive system are placed around it, and scales both.
     fn continuous_parts(
         &self,
         x: ArrayView2<f64>,
+        adj: Option<&[(f64, f64)]>,
     ) -> Result<(TargetPrediction, Vec<f64>), CalibrateError> {
         if x.ncols() != self.n_features {
             return Err(CalibrateError::Length {
@@ -314,23 +354,37 @@ impl CalibratedTarget {
         }
         let n = x.nrows();
         let pass = self.ensemble_pass(x);
+        let adj_of = |i: usize| adj.map_or((0.0, 1.0), |a| a[i]);
         let mids: Vec<f64> = (0..n)
             .into_par_iter()
-            .map(|i| self.middle(&pass, i))
+            .map(|i| {
+                let m = self.middle(&pass, i) + adj_of(i).0;
+                m.clamp(self.bounds.0, self.bounds.1)
+            })
             .collect();
         let edges: Vec<(f64, f64)> = (0..n)
             .into_par_iter()
-            .map(|i| self.edges(&pass, i, mids[i]))
+            .map(|i| {
+                let (lo, hi) = self.edges(&pass, i, mids[i]);
+                let (m, f) = (mids[i], adj_of(i).1);
+                if f == 1.0 {
+                    return (lo, hi);
+                }
+                (
+                    (m - f * (m - lo)).clamp(self.bounds.0, self.bounds.1),
+                    (m + f * (hi - m)).clamp(self.bounds.0, self.bounds.1),
+                )
+            })
             .collect();
         let exceed: Vec<Vec<f64>> = (0..self.thresholds.len())
             .map(|t| {
                 (0..n)
                     .into_par_iter()
-                    .map(|i| self.probability(&pass, t, i, mids[i]))
+                    .map(|i| self.probability(&pass, t, i, mids[i], adj_of(i).1))
                     .collect()
             })
             .collect();
-        let scale: Vec<f64> = (0..n).map(|i| self.scale(&pass, i)).collect();
+        let scale: Vec<f64> = (0..n).map(|i| self.scale(&pass, i) * adj_of(i).1).collect();
         let out = TargetPrediction {
             lo: edges.iter().map(|e| e.0).collect(),
             mid: mids,
@@ -446,8 +500,9 @@ impl CalibratedTarget {
         (lo, hi)
     }
 
-    /// Probability that row `i` (middle `mid`) crosses threshold `t` in its direction.
-    fn probability(&self, pass: &EnsemblePass, t: usize, i: usize, mid: f64) -> f64 {
+    /// Probability that row `i` (middle `mid`, residual scale multiplied by `factor`) crosses
+    /// threshold `t` in its direction.
+    fn probability(&self, pass: &EnsemblePass, t: usize, i: usize, mid: f64, factor: f64) -> f64 {
         if mid.is_nan() {
             return f64::NAN;
         }
@@ -458,7 +513,7 @@ impl CalibratedTarget {
             }
             _ => self
                 .cps
-                .prob_below(mid, self.scale(pass, i), th.value, self.bounds),
+                .prob_below(mid, self.scale(pass, i) * factor, th.value, self.bounds),
         };
         crossing_probability(below, th.above)
     }

@@ -15,8 +15,9 @@ use std::path::Path;
 ///
 /// Version 2 added the ground check ([`SavedModel::ground`]) and the range tolerance of the area
 /// of applicability; version 1 models still load and map with the row check alone (no ground
-/// check, plain range).
-pub const MODEL_FORMAT: u32 = 2;
+/// check, plain range). Version 3 added each target's residual kriging
+/// ([`CalibratedTarget::kriging`]); version 1 and 2 models load without it and map as before.
+pub const MODEL_FORMAT: u32 = 3;
 
 /// Oldest `model.json` format this build reads.
 pub const OLDEST_MODEL_FORMAT: u32 = 1;
@@ -206,9 +207,26 @@ impl SavedModel {
                     .fold(f64::INFINITY, f64::min)
             })
             .collect();
+        let node_xy: Vec<(f64, f64)> = valid
+            .iter()
+            .map(|&r| xy.get(r).copied().unwrap_or((f64::NAN, f64::NAN)))
+            .collect();
+        // The step feature (last column) of each row; a row without one is not kriged.
+        let step: Vec<usize> = valid
+            .iter()
+            .map(|&r| {
+                let s = x[[r, n_attr]];
+                if s.is_finite() && s >= 0.0 {
+                    s.round() as usize
+                } else {
+                    usize::MAX
+                }
+            })
+            .collect();
         let context = NodeContext {
-            dissimilarity: &di,
-            distance: &distance,
+            xy: Some(&node_xy),
+            step: Some(&step),
+            ..NodeContext::new(&di, &distance)
         };
         let mut targets = Vec::new();
         for cal in &self.calibrated {

@@ -74,7 +74,7 @@ fn saved_models_carry_the_ground_check_and_old_ones_still_load() {
     let f = fixture();
     let path = f.out.join("model.json");
     let model = SavedModel::load(&path).unwrap();
-    assert_eq!(model.format, 2);
+    assert_eq!(model.format, 3);
     assert!(model.ground.is_some(), "the ground check is saved");
     assert!(model.applicability.range_margin > 0.0);
     // A model of format 1 has neither: it loads and maps with the row check and the plain range.
@@ -91,7 +91,15 @@ fn saved_models_carry_the_ground_check_and_old_ones_still_load() {
     std::fs::create_dir_all(&dir).unwrap();
     let old = dir.join("model.json");
     std::fs::write(&old, serde_json::to_string(&v).unwrap()).unwrap();
+    // Nor does it have residual kriging (format 3): its targets load without it.
+    for t in v["calibrated"].as_array_mut().unwrap() {
+        let t = t.as_object_mut().unwrap();
+        t.remove("kriging");
+        t["diagnostics"].as_object_mut().unwrap().remove("kriging");
+    }
+    std::fs::write(&old, serde_json::to_string(&v).unwrap()).unwrap();
     let back = SavedModel::load(&old).unwrap();
+    assert!(back.calibrated.iter().all(|c| c.kriging.is_none()));
     assert!(back.ground.is_none());
     assert_eq!(back.applicability.range_margin, 0.0);
     let survey = project::load_survey(&f.project).unwrap();

@@ -8,6 +8,7 @@ mod folds;
 mod generated;
 mod hurdle;
 mod isotonic;
+mod kriging;
 mod local;
 mod metrics;
 mod pit;

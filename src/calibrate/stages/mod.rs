@@ -17,6 +17,7 @@
 //! | exceedance | [`exceedance::calibrate`] | corrected prediction, band scale, forest CDF -> [`exceedance::Exceedance`] |
 //! | metrics | [`metrics::score`] | out-of-fold middle, band, probabilities -> [`metrics::OofScores`] |
 //! | final models | [`models::fit_final`] | all rows -> [`models::FinalModels`] |
+//! | residual kriging | [`kriging::fit`] | held-out errors at well locations -> [`kriging::Kriged`] (corrected middle, band scale; before the spread) |
 //!
 //! Every out-of-fold quantity after the predictions is cross-fitted on the same folds: the value
 //! of a held-out row comes from a map fitted on the other folds' out-of-fold rows, and the final
@@ -35,6 +36,7 @@ pub mod band;
 pub mod correction;
 pub mod exceedance;
 pub mod hurdle;
+pub mod kriging;
 pub mod learner;
 pub mod metrics;
 pub mod models;
