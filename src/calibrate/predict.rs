@@ -231,6 +231,19 @@ impl CalibratedTarget {
         )
     }
 
+    /// Errors unless `x` has the training rows' feature columns.
+    fn check_columns(&self, x: ArrayView2<f64>) -> Result<(), CalibrateError> {
+        if x.ncols() == self.n_features {
+            return Ok(());
+        }
+        Err(CalibrateError::Length {
+            target: self.name.clone(),
+            what: "feature columns",
+            got: x.ncols(),
+            expected: self.n_features,
+        })
+    }
+
     /// The uncalibrated quantile forest on all the target's rows: the forest itself for a
     /// continuous target, the hurdle's reference forest for a target with an atom at zero.
     pub fn reference_forest(&self) -> &crate::ensemble::Forest {
@@ -251,14 +264,7 @@ impl CalibratedTarget {
         else {
             return Ok(None);
         };
-        if x.ncols() != self.n_features {
-            return Err(CalibrateError::Length {
-                target: self.name.clone(),
-                what: "feature columns",
-                got: x.ncols(),
-                expected: self.n_features,
-            });
-        }
+        self.check_columns(x)?;
         let raw = h.forest.predict(x);
         let p = raw.column(0).iter().map(|&r| h.map.predict(r)).collect();
         Ok(Some((p, training)))
@@ -344,14 +350,7 @@ impl CalibratedTarget {
         x: ArrayView2<f64>,
         adj: Option<&[(f64, f64)]>,
     ) -> Result<(TargetPrediction, Vec<f64>), CalibrateError> {
-        if x.ncols() != self.n_features {
-            return Err(CalibrateError::Length {
-                target: self.name.clone(),
-                what: "feature columns",
-                got: x.ncols(),
-                expected: self.n_features,
-            });
-        }
+        self.check_columns(x)?;
         let n = x.nrows();
         let pass = self.ensemble_pass(x);
         let adj_of = |i: usize| adj.map_or((0.0, 1.0), |a| a[i]);
