@@ -153,17 +153,7 @@ fn oracle_scaled_gain(
     let grid = &survey.project.grid;
     let (mut y, mut lo, mut mid, mut hi) = (Vec::new(), Vec::new(), Vec::new(), Vec::new());
     for step in &survey.project.steps {
-        let maps = results.join("maps").join(&step.name);
-        let read = |p: PathBuf| geotiff::read_on_grid(&p, grid);
-        let t = read(
-            field
-                .join("truth")
-                .join(&step.name)
-                .join(format!("{target}.tif")),
-        )?;
-        let l = read(maps.join(format!("{target}_p10.tif")))?;
-        let m = read(maps.join(format!("{target}_p50.tif")))?;
-        let h = read(maps.join(format!("{target}_p90.tif")))?;
+        let [t, l, m, h] = step_maps(field, results, grid, &step.name, target)?;
         for i in 0..t.len() {
             if [t[i], l[i], m[i], h[i]].iter().all(|v| v.is_finite()) {
                 y.push(t[i]);
@@ -225,17 +215,7 @@ fn near_well_figures(
     // [near, far] x (count, covered, width, abs error)
     let mut acc = [[0.0f64; 4]; 2];
     for step in &survey.project.steps {
-        let maps = results.join("maps").join(&step.name);
-        let read = |p: PathBuf| geotiff::read_on_grid(&p, grid);
-        let t = read(
-            field
-                .join("truth")
-                .join(&step.name)
-                .join(format!("{target}.tif")),
-        )?;
-        let l = read(maps.join(format!("{target}_p10.tif")))?;
-        let m = read(maps.join(format!("{target}_p50.tif")))?;
-        let h = read(maps.join(format!("{target}_p90.tif")))?;
+        let [t, l, m, h] = step_maps(field, results, grid, &step.name, target)?;
         for i in 0..t.len() {
             if ![t[i], l[i], m[i], h[i]].iter().all(|v| v.is_finite()) {
                 continue;
@@ -621,4 +601,22 @@ fn main() {
         .expect("write the JSON output");
         println!("\nwritten {}", path.display());
     }
+}
+
+/// A step's truth, P10, P50 and P90 maps of `target`, read on the grid.
+fn step_maps(
+    field: &Path,
+    results: &Path,
+    grid: &tidemark::grid::Grid,
+    step: &str,
+    target: &str,
+) -> Result<[Vec<f64>; 4], Box<dyn std::error::Error>> {
+    let maps = results.join("maps").join(step);
+    let read = |p: PathBuf| geotiff::read_on_grid(&p, grid);
+    Ok([
+        read(field.join("truth").join(step).join(format!("{target}.tif")))?,
+        read(maps.join(format!("{target}_p10.tif")))?,
+        read(maps.join(format!("{target}_p50.tif")))?,
+        read(maps.join(format!("{target}_p90.tif")))?,
+    ])
 }
