@@ -69,7 +69,7 @@ fn the_engine_decomposition_is_ordinary_kriging() {
     let model = VariogramModel {
         kind: ModelKind::Exponential,
         nugget: 0.15,
-        sill: 0.85,
+        sill: 1.0,
         range: 500.0,
     };
     let mut rng = StdRng::seed_from_u64(17);
@@ -136,7 +136,7 @@ fn the_mean_of_independent_scores_is_their_plain_mean() {
     let model = VariogramModel {
         kind: ModelKind::Spherical,
         nugget: 1.0,
-        sill: 0.0,
+        sill: 1.0,
         range: 50.0,
     };
     let scores = [0.3, -1.2, 2.0, 0.9, 0.4];
