@@ -353,7 +353,10 @@ fn main() {
                         continue;
                     }
                     let n = j as usize * lo.grid.nx + i as usize;
-                    let (a, b) = (lo.values[n].min(hi.values[n]), lo.values[n].max(hi.values[n]));
+                    let (a, b) = (
+                        lo.values[n].min(hi.values[n]),
+                        lo.values[n].max(hi.values[n]),
+                    );
                     if a.is_finite() && b.is_finite() {
                         e.0 += 1;
                         e.1 += (v >= a && v <= b) as usize;

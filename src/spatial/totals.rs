@@ -56,8 +56,8 @@ use super::bootstrap::{LayerScores, apply_shift, dirichlet_weights_seeded, unit_
 use super::field::{CirculantField, EmbeddingReport, EmbeddingSettings, Workspace};
 use super::krige::{Conditioning, ConditioningReport, LagTable, WellScore};
 use super::model::VariogramModel;
-use super::unknown_mean::{MeanEstimate, MeanRule, add_mean, drawn_mean};
 use super::normal::{self, LEVEL_MAX, LEVEL_MIN};
+use super::unknown_mean::{MeanEstimate, MeanRule, add_mean, drawn_mean};
 use super::{Lattice, SpatialError, derive_seed};
 use crate::project::{Convention, Direction};
 

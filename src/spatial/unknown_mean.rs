@@ -111,7 +111,11 @@ pub fn ordinary_kriging(
     a[n * (m + 1) + m] = 1.0;
     for col in 0..m {
         let pivot = (col..m)
-            .max_by(|&p, &q| a[p * (m + 1) + col].abs().total_cmp(&a[q * (m + 1) + col].abs()))
+            .max_by(|&p, &q| {
+                a[p * (m + 1) + col]
+                    .abs()
+                    .total_cmp(&a[q * (m + 1) + col].abs())
+            })
             .unwrap_or(col);
         if a[pivot * (m + 1) + col].abs() < 1e-14 {
             return Err(SpatialError::Input {
@@ -136,7 +140,9 @@ pub fn ordinary_kriging(
             }
         }
     }
-    let x: Vec<f64> = (0..m).map(|i| a[i * (m + 1) + m] / a[i * (m + 1) + i]).collect();
+    let x: Vec<f64> = (0..m)
+        .map(|i| a[i * (m + 1) + m] / a[i * (m + 1) + i])
+        .collect();
     let weights = x[..n].to_vec();
     let lagrange = x[n];
     let variance = c_00 - weights.iter().zip(c_w0).map(|(w, c)| w * c).sum::<f64>() - lagrange;

@@ -145,8 +145,12 @@ fn the_mean_of_independent_scores_is_their_plain_mean() {
         .enumerate()
         .map(|(k, &s)| well(&format!("W{k}"), 30.0 * k as f64, 15.0 * k as f64, s))
         .collect();
-    let cond = Conditioning::new("layer", Arc::new(LagTable::new(lat, &model).unwrap()), &wells)
-        .unwrap();
+    let cond = Conditioning::new(
+        "layer",
+        Arc::new(LagTable::new(lat, &model).unwrap()),
+        &wells,
+    )
+    .unwrap();
     let est = cond.mean_estimate().unwrap();
     assert!((est.mean - 0.48).abs() < 1e-8, "{}", est.mean);
     assert!((est.plain_mean - 0.48).abs() < 1e-12);
@@ -271,7 +275,13 @@ fn engine_input<'a>(
     }
 }
 
-fn run(inp: &TotalsInput<'_>, rule: MeanRule, r: usize, keep: usize, threads: usize) -> TotalsOutput {
+fn run(
+    inp: &TotalsInput<'_>,
+    rule: MeanRule,
+    r: usize,
+    keep: usize,
+    threads: usize,
+) -> TotalsOutput {
     let pool = rayon::ThreadPoolBuilder::new()
         .num_threads(threads)
         .build()
@@ -293,7 +303,11 @@ fn run(inp: &TotalsInput<'_>, rule: MeanRule, r: usize, keep: usize, threads: us
 }
 
 fn bits(out: &TotalsOutput) -> Vec<u64> {
-    let mut v: Vec<u64> = out.quantities[0].totals.iter().map(|x| x.to_bits()).collect();
+    let mut v: Vec<u64> = out.quantities[0]
+        .totals
+        .iter()
+        .map(|x| x.to_bits())
+        .collect();
     for k in &out.kept {
         v.extend(k.values.iter().map(|x| x.to_bits()));
     }
