@@ -26,6 +26,7 @@ use crate::spatial::totals::{
     self as engine, Band, ErrorField, Layer, Measure, NodeDistribution, Quantity, Summary,
     TotalDefinition, TotalRule, TotalsInput, TotalsOutput, TotalsSettings,
 };
+use crate::spatial::unknown_mean::MeanRule;
 use crate::spatial::{Lattice, derive_seed};
 use serde::{Deserialize, Serialize};
 use std::path::Path;
@@ -313,21 +314,7 @@ pub fn compute(
                 shift_sd: l.calibration_shift_sd,
             })
             .collect(),
-        means: output
-            .layers
-            .iter()
-            .filter_map(|l| {
-                l.mean.map(|m| MeanSummary {
-                    layer: l.name.clone(),
-                    rule: section.mean.name().to_string(),
-                    applied: l.mean_applied,
-                    wells: m.wells,
-                    mean: m.mean,
-                    se: m.se,
-                    plain_mean: m.plain_mean,
-                })
-            })
-            .collect(),
+        means: mean_summaries(&output, section.mean),
     };
     let layers = layer_keys
         .iter()
@@ -338,6 +325,25 @@ pub fn compute(
         output,
         layers,
     }))
+}
+
+/// Every conditioned layer's estimated mean normal score, under the run's rule.
+fn mean_summaries(output: &TotalsOutput, rule: MeanRule) -> Vec<MeanSummary> {
+    output
+        .layers
+        .iter()
+        .filter_map(|l| {
+            l.mean.map(|m| MeanSummary {
+                layer: l.name.clone(),
+                rule: rule.name().to_string(),
+                applied: l.mean_applied,
+                wells: m.wells,
+                mean: m.mean,
+                se: m.se,
+                plain_mean: m.plain_mean,
+            })
+        })
+        .collect()
 }
 
 /// A weight map of `[totals.maps]`: name, file, values.
