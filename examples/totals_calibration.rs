@@ -13,9 +13,15 @@
 //! spacings), by step, and by whether the node's P50 is the "no change" atom.
 //!
 //! `cargo run --release --example totals_calibration -- [--seeds N] [--first S] [--out DIR]
-//! [--no-calibration-draw] [--no-atom TARGET]...` (defaults: 30 seeds from 1, fields under
-//! `target/totals_calibration`; `--no-calibration-draw` sets `[totals] calibration_uncertainty =
-//! false` in every manifest, `--no-atom dP` sets `zero_change = false` for that target).
+//! [--no-calibration-draw] [--no-atom TARGET]... [--mean zero|estimated]` (defaults: 30 seeds
+//! from 1, fields under `target/totals_calibration`; `--no-calibration-draw` sets `[totals]
+//! calibration_uncertainty = false` in every manifest, `--no-atom dP` sets `zero_change = false`
+//! for that target, `--mean` sets `[totals] mean`).
+//!
+//! Every case (seed, quantity, step) is also written to `cases.csv` under the output folder:
+//! the truth, the realizations' P10 / P90, mean and sd, and the layer's estimated mean normal
+//! score of its wells with its standard error (`summary.json` `totals.means`), so that the
+//! totals' errors can be set against the wells' per-step errors.
 
 use std::collections::BTreeMap;
 use std::path::PathBuf;
@@ -173,6 +179,11 @@ fn main() {
     let mut first = 1u64;
     let mut draw = true;
     let mut no_atom: Vec<String> = Vec::new();
+    let mut mean_rule: Option<String> = None;
+    let mut in_sample: BTreeMap<String, (usize, usize)> = BTreeMap::new();
+    let mut cases = String::from(
+        "seed,quantity,step,truth,p10,p90,mean,sd,wells_mean,wells_se,wells_plain_mean,wells\n",
+    );
     let mut out = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("target/totals_calibration");
     let mut args = std::env::args().skip(1);
     while let Some(a) = args.next() {
@@ -182,6 +193,7 @@ fn main() {
             "--out" => out = PathBuf::from(args.next().expect("--out DIR")),
             "--no-calibration-draw" => draw = false,
             "--no-atom" => no_atom.push(args.next().expect("--no-atom TARGET")),
+            "--mean" => mean_rule = Some(args.next().expect("--mean zero|estimated")),
             other => panic!("unknown argument {other}"),
         }
     }
@@ -215,6 +227,11 @@ fn main() {
             let key = format!("name = \"{target}\"\n");
             assert!(text.contains(&key), "no target {target}");
             let text = text.replacen(&key, &format!("{key}zero_change = false\n"), 1);
+            std::fs::write(&manifest, text).expect("manifest");
+        }
+        if let Some(rule) = &mean_rule {
+            let text = std::fs::read_to_string(&manifest).expect("manifest");
+            let text = text.replacen("[totals]\n", &format!("[totals]\nmean = \"{rule}\"\n"), 1);
             std::fs::write(&manifest, text).expect("manifest");
         }
         if !draw {
@@ -265,6 +282,88 @@ fn main() {
                 )
             })
             .collect();
+        let record: serde_json::Value = serde_json::from_str(
+            &std::fs::read_to_string(results.join("totals.json")).expect("totals.json"),
+        )
+        .expect("totals JSON");
+        let target_of: BTreeMap<String, String> = record["quantities"]
+            .as_array()
+            .into_iter()
+            .flatten()
+            .map(|q| {
+                (
+                    q["quantity"].as_str().unwrap_or("?").to_string(),
+                    q["target"].as_str().unwrap_or("?").to_string(),
+                )
+            })
+            .collect();
+        let layer_means: BTreeMap<String, &serde_json::Value> = summary["totals"]["means"]
+            .as_array()
+            .into_iter()
+            .flatten()
+            .map(|m| (m["layer"].as_str().unwrap_or("?").to_string(), m))
+            .collect();
+        for t in &score.totals {
+            let target = target_of.get(&t.quantity).cloned().unwrap_or_default();
+            let m = layer_means.get(&format!("{target} {}", t.step));
+            let (mean, sd) = sds
+                .get(&(t.quantity.clone(), t.step.clone()))
+                .copied()
+                .unwrap_or((f64::NAN, f64::NAN));
+            let field = |k: &str| m.and_then(|m| m[k].as_f64()).unwrap_or(f64::NAN);
+            cases.push_str(&format!(
+                "{seed},{},{},{},{},{},{},{},{},{},{},{}\n",
+                t.quantity,
+                t.step,
+                t.truth,
+                t.p10,
+                t.p90,
+                mean,
+                sd,
+                field("mean"),
+                field("se"),
+                field("plain_mean"),
+                field("wells"),
+            ));
+        }
+        // the final model at the wells it was fitted on: the measured value inside the written
+        // P10-P90 at the well's node (held-out wells are inside about 80 % of the time)
+        for step in &field.step_names {
+            for (k, target) in field.target_names.iter().enumerate() {
+                let read = |suffix: &str| {
+                    tidemark::io::geotiff::read(
+                        &results
+                            .join("maps")
+                            .join(step)
+                            .join(format!("{target}_{suffix}.tif")),
+                    )
+                };
+                let (Ok(lo), Ok(hi)) = (read("p10"), read("p90")) else {
+                    continue;
+                };
+                let e = in_sample.entry(target.clone()).or_default();
+                for (_, x, y, st, values) in &field.well_rows {
+                    let v = values.get(k).copied().unwrap_or(f64::NAN);
+                    if st != step || !v.is_finite() {
+                        continue;
+                    }
+                    let (fi, fj) = lo.grid.fractional_ij(*x, *y);
+                    let (i, j) = (fi.round(), fj.round());
+                    if i < 0.0 || j < 0.0 || i >= lo.grid.nx as f64 || j >= lo.grid.ny as f64 {
+                        continue;
+                    }
+                    let n = j as usize * lo.grid.nx + i as usize;
+                    let (a, b) = (
+                        lo.values[n].min(hi.values[n]),
+                        lo.values[n].max(hi.values[n]),
+                    );
+                    if a.is_finite() && b.is_finite() {
+                        e.0 += 1;
+                        e.1 += (v >= a && v <= b) as usize;
+                    }
+                }
+            }
+        }
         for t in &score.totals {
             let e = tallies.entry(t.quantity.clone()).or_default();
             let (lo, hi) = (t.p10.min(t.p90), t.p10.max(t.p90));
@@ -379,6 +478,13 @@ fn main() {
     }
     for (q, d) in &diagnoses {
         print_diagnosis(q, d);
+    }
+    std::fs::write(out.join("cases.csv"), cases).expect("cases.csv");
+    for (target, (n, inside)) in &in_sample {
+        println!(
+            "{target}: measured value inside the written P10-P90 at the well's own node: {inside} of {n} well rows ({:.2})",
+            *inside as f64 / (*n).max(1) as f64
+        );
     }
     for (target, n) in &fallbacks {
         println!("variogram fallback for {target}: {n} of {seeds} seeds");

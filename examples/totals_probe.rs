@@ -6,8 +6,9 @@
 //! part (the "no change" hurdle shape), every parameter varying smoothly over the grid.
 //!
 //! Run with `cargo run --release --example totals_probe [-- REALIZATIONS...]
-//! [--calibration-draw]` (default: 50 then 200; the flag turns on the per-realization
-//! calibration draw, the wells' scores standing for the held-out ones). For each count it prints the wall seconds, the CPU seconds of the process and the peak
+//! [--calibration-draw] [--mean-estimated]` (default: 50 then 200; the first flag turns on the
+//! per-realization calibration draw, the wells' scores standing for the held-out ones; the
+//! second conditions with an unknown mean per layer, `[totals] mean = "estimated"`). For each count it prints the wall seconds, the CPU seconds of the process and the peak
 //! resident memory during that run (VmHWM from `/proc/self/status`, reset before each run through
 //! `/proc/self/clear_refs`), so one can see that memory does not grow with the count.
 
@@ -109,9 +110,10 @@ fn smooth(i: usize, j: usize, a: f64, b: f64) -> f64 {
 fn main() {
     let args: Vec<String> = std::env::args().skip(1).collect();
     let draw = args.iter().any(|a| a == "--calibration-draw");
+    let estimated = args.iter().any(|a| a == "--mean-estimated");
     let counts: Vec<usize> = args
         .iter()
-        .filter(|a| *a != "--calibration-draw")
+        .filter(|a| *a != "--calibration-draw" && *a != "--mean-estimated")
         .map(|a| a.parse().expect("realization counts are whole numbers"))
         .collect();
     let counts = if counts.is_empty() {
@@ -296,6 +298,11 @@ fn main() {
             realizations: count,
             seed: 11,
             calibration_draw: draw,
+            mean: if estimated {
+                tidemark::spatial::unknown_mean::MeanRule::Estimated
+            } else {
+                tidemark::spatial::unknown_mean::MeanRule::Zero
+            },
             ..TotalsSettings::default()
         };
         let (t, c) = (Instant::now(), cpu_seconds());

@@ -26,6 +26,7 @@ use crate::spatial::totals::{
     self as engine, Band, ErrorField, Layer, Measure, NodeDistribution, Quantity, Summary,
     TotalDefinition, TotalRule, TotalsInput, TotalsOutput, TotalsSettings,
 };
+use crate::spatial::unknown_mean::MeanRule;
 use crate::spatial::{Lattice, derive_seed};
 use serde::{Deserialize, Serialize};
 use std::path::Path;
@@ -86,6 +87,28 @@ pub struct TotalsRecord {
     /// The calibration draw per layer (empty when `[totals] calibration_uncertainty` is off).
     #[serde(default)]
     pub calibration_draw: Vec<DrawSummary>,
+    /// The mean of each conditioned layer's well scores ([`crate::spatial::unknown_mean`]).
+    #[serde(default)]
+    pub means: Vec<MeanSummary>,
+}
+
+/// One layer's estimated mean normal score (generalised least squares over its wells).
+#[derive(Clone, Debug, Serialize, Deserialize)]
+pub struct MeanSummary {
+    /// Target and step, e.g. `dP m2`.
+    pub layer: String,
+    /// The rule of the run (`zero` or `estimated`).
+    pub rule: String,
+    /// Whether the realizations carry the estimated mean (rule `estimated`).
+    pub applied: bool,
+    /// Distinct well nodes.
+    pub wells: usize,
+    /// The estimate `1' C^-1 z / 1' C^-1 1`.
+    pub mean: f64,
+    /// Its standard error `sqrt(1 / 1' C^-1 1)`.
+    pub se: f64,
+    /// Plain mean of the well scores.
+    pub plain_mean: f64,
 }
 
 /// One layer's calibration draw ([`crate::spatial::bootstrap`]): the realizations' shared shift
@@ -244,6 +267,7 @@ pub fn compute(
         keep_maps: opts.keep.unwrap_or(section.keep_realizations),
         convention: model.convention,
         calibration_draw: section.calibration_uncertainty,
+        mean: section.mean,
         ..TotalsSettings::default()
     };
     let output = engine::simulate(
@@ -290,6 +314,7 @@ pub fn compute(
                 shift_sd: l.calibration_shift_sd,
             })
             .collect(),
+        means: mean_summaries(&output, section.mean),
     };
     let layers = layer_keys
         .iter()
@@ -300,6 +325,25 @@ pub fn compute(
         output,
         layers,
     }))
+}
+
+/// Every conditioned layer's estimated mean normal score, under the run's rule.
+fn mean_summaries(output: &TotalsOutput, rule: MeanRule) -> Vec<MeanSummary> {
+    output
+        .layers
+        .iter()
+        .filter_map(|l| {
+            l.mean.map(|m| MeanSummary {
+                layer: l.name.clone(),
+                rule: rule.name().to_string(),
+                applied: l.mean_applied,
+                wells: m.wells,
+                mean: m.mean,
+                se: m.se,
+                plain_mean: m.plain_mean,
+            })
+        })
+        .collect()
 }
 
 /// A weight map of `[totals.maps]`: name, file, values.
@@ -474,6 +518,8 @@ pub struct TotalsSummary {
     pub variograms: Vec<Correlation>,
     /// The calibration draw per layer (empty when it is off).
     pub calibration_draw: Vec<DrawSummary>,
+    /// The estimated mean normal score per conditioned layer and whether it was applied.
+    pub means: Vec<MeanSummary>,
 }
 
 /// One total in `summary.json`.
@@ -515,6 +561,7 @@ impl TotalsRecord {
                 .collect(),
             variograms: self.correlations.clone(),
             calibration_draw: self.calibration_draw.clone(),
+            means: self.means.clone(),
         }
     }
 }

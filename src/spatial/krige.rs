@@ -32,6 +32,7 @@ use std::sync::Arc;
 use serde::{Deserialize, Serialize};
 
 use super::model::VariogramModel;
+use super::unknown_mean::MeanEstimate;
 use super::{Lattice, SpatialError};
 
 /// First diagonal regularisation tried.
@@ -300,6 +301,36 @@ impl Conditioning {
     /// (`None` without wells, where it is zero).
     pub fn kriged_mean(&self) -> Option<&[f64]> {
         (!self.nodes.is_empty()).then_some(&self.mean[..])
+    }
+
+    /// The generalised-least-squares estimate of an unknown constant mean of the (merged) well
+    /// scores and its standard error ([`super::unknown_mean`]); `None` without wells.
+    pub fn mean_estimate(&self) -> Option<MeanEstimate> {
+        let n = self.nodes.len();
+        if n == 0 {
+            return None;
+        }
+        let mut a = vec![1.0; n];
+        cholesky_solve(&self.chol, n, &mut a);
+        let s: f64 = a.iter().sum();
+        let weighted: f64 = a.iter().zip(&self.data).map(|(a, z)| a * z).sum();
+        (s > 0.0 && s.is_finite()).then(|| MeanEstimate {
+            wells: n,
+            mean: weighted / s,
+            se: (1.0 / s).sqrt(),
+            plain_mean: self.data.iter().sum::<f64>() / n as f64,
+        })
+    }
+
+    /// `1 - sum of the simple-kriging weights` at every node: the share of a constant mean the
+    /// wells leave free (0 at a well node, about 1 far from the wells; 1 everywhere without
+    /// wells).
+    pub fn free_share(&self) -> Vec<f64> {
+        let mut free = vec![1.0; self.table.lattice().len()];
+        if !self.nodes.is_empty() {
+            self.add_kriged(vec![-1.0; self.nodes.len()], &mut free);
+        }
+        free
     }
 
     /// True when both use the same well nodes in the same order on the same lattice and

@@ -18,6 +18,8 @@
 //!   Huijbregts 1978, *Mining Geostatistics*, section VII.C).
 //! - [`totals`]: the realization engine, the totals and the two naive rules beside them, and the
 //!   manifest types that define totals.
+//! - [`unknown_mean`]: conditioning with an unknown mean per step (ordinary kriging, Journel &
+//!   Huijbregts 1978; Chiles & Delfiner 2012), the field-wide error shared by every node.
 //! - [`normal`]: the standard normal distribution function and its inverse.
 //! - [`bootstrap`]: the calibration's uncertainty shared by all nodes, drawn per realization by a
 //!   Bayesian bootstrap over the wells (Rubin 1981, *Ann. Stat.* 9:130).
@@ -33,6 +35,7 @@ pub mod model;
 pub mod normal;
 pub mod scores;
 pub mod totals;
+pub mod unknown_mean;
 pub mod variogram;
 
 use serde::{Deserialize, Serialize};

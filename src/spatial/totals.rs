@@ -12,6 +12,15 @@
 //! not change any total's distribution. Fields are rescaled to unit variance, so `Phi(z)` is
 //! uniform at every node before conditioning and each realization honours the node's band.
 //!
+//! **Unknown mean** ([`TotalsSettings::mean`], [`super::unknown_mean`]). With
+//! [`MeanRule::Estimated`] each conditioned layer's mean normal score is estimated from its
+//! wells (generalised least squares) and drawn per realization from its estimation error,
+//! `m = m_hat + se xi` with one standard normal `xi` per field and realization (seeded
+//! `(seed, field, realization)`, shared by the field's steps), and added where the wells leave
+//! the field free: `z += m (1 - sum of the simple-kriging weights)`. That is conditional
+//! simulation with an unknown mean (ordinary kriging); it replaces the calibration draw, whose
+//! shift of the wells' mean is the same uncertainty. Unconditioned layers keep the mean at zero.
+//!
 //! **Totals.** An area total is `scale x cell area x #{nodes where the value crosses the
 //! threshold}`; crossing is decided in normal-score space, `z > Phi^-1(F(t))` for "above" and
 //! `z < Phi^-1(F(t-))` for "below", which is `Q(Phi(z)) > t` (resp. `< t`) for the generalised
@@ -39,6 +48,7 @@ use std::sync::Arc;
 
 use rand::rngs::StdRng;
 use rand::{RngExt, SeedableRng};
+use rand_distr::{Distribution, StandardNormal};
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
@@ -47,12 +57,14 @@ use super::field::{CirculantField, EmbeddingReport, EmbeddingSettings, Workspace
 use super::krige::{Conditioning, ConditioningReport, LagTable, WellScore};
 use super::model::VariogramModel;
 use super::normal::{self, LEVEL_MAX, LEVEL_MIN};
+use super::unknown_mean::{MeanEstimate, MeanRule, add_mean, drawn_mean};
 use super::{Lattice, SpatialError, derive_seed};
 use crate::project::{Convention, Direction};
 
 const STREAM_FIELD: u64 = 0xF1E1D;
 const STREAM_INDEPENDENT: u64 = 0x1DE9;
 const STREAM_BOOTSTRAP: u64 = 0xB007;
+const STREAM_MEAN: u64 = 0x3EA7;
 
 /// A node's predictive distribution, as its quantile function. Implemented for closures
 /// `Fn(node, u) -> y`.
@@ -329,9 +341,14 @@ pub struct TotalsSection {
     #[serde(default)]
     pub keep_realizations: usize,
     /// Draw the calibration per realization, so that totals carry its uncertainty
-    /// ([`super::bootstrap`]); default on.
+    /// ([`super::bootstrap`]); default on. Not used when `mean = "estimated"`, which carries
+    /// the same uncertainty.
     #[serde(default = "default_true")]
     pub calibration_uncertainty: bool,
+    /// The mean of each step's normal scores: `"zero"` (known, simple kriging) or
+    /// `"estimated"` (unknown, estimated from the wells per step; [`super::unknown_mean`]).
+    #[serde(default)]
+    pub mean: MeanRule,
     /// The totals.
     #[serde(default)]
     pub quantities: Vec<TotalSpec>,
@@ -472,6 +489,10 @@ pub struct TotalsSettings {
     /// normal score, shared by every node; [`super::bootstrap`]).
     #[serde(default)]
     pub calibration_draw: bool,
+    /// How the conditioning treats the mean of each layer's normal scores
+    /// ([`super::unknown_mean`]); [`MeanRule::Estimated`] switches the calibration draw off.
+    #[serde(default)]
+    pub mean: MeanRule,
 }
 
 impl Default for TotalsSettings {
@@ -485,6 +506,7 @@ impl Default for TotalsSettings {
             embedding: EmbeddingSettings::default(),
             chunk: 16,
             calibration_draw: false,
+            mean: MeanRule::Zero,
         }
     }
 }
@@ -625,6 +647,13 @@ pub struct LayerReport {
     /// Standard deviation of the drawn shift of the wells' mean normal score (0: no draw).
     #[serde(default)]
     pub calibration_shift_sd: f64,
+    /// The generalised-least-squares estimate of the mean of the conditioning wells' scores
+    /// (absent without wells), reported under either rule.
+    #[serde(default)]
+    pub mean: Option<MeanEstimate>,
+    /// Whether the realizations carry that mean ([`MeanRule::Estimated`]).
+    #[serde(default)]
+    pub mean_applied: bool,
 }
 
 /// A kept realization map.
@@ -687,6 +716,9 @@ struct PreparedLayer<'a> {
     field: usize,
     conditioning: Conditioning,
     draw: Option<Draw>,
+    /// The estimated mean and the share of every node the wells leave free (rule
+    /// [`MeanRule::Estimated`] with wells only).
+    unknown_mean: Option<(MeanEstimate, Vec<f64>)>,
     distribution: &'a dyn NodeDistribution,
     active: Vec<bool>,
     areas: Vec<AreaPrep>,
@@ -761,6 +793,8 @@ impl<'a> Engine<'a> {
                 let mut residuals: Vec<(usize, Vec<f64>)> = Vec::new();
                 // the field's calibration draw of this realization, shared by its layers
                 let mut weights: Option<Vec<f64>> = None;
+                // the field's standard normal draw of the unknown mean, shared by its layers
+                let mut xi: Option<f64> = None;
                 for (li, layer) in self.layers.iter().enumerate() {
                     if layer.field != f {
                         continue;
@@ -786,6 +820,16 @@ impl<'a> Engine<'a> {
                             }
                         }
                         None => z.copy_from_slice(res),
+                    }
+                    if let Some((estimate, free)) = &layer.unknown_mean {
+                        let xi = *xi.get_or_insert_with(|| {
+                            let mut rng = StdRng::seed_from_u64(derive_seed(
+                                self.settings.seed,
+                                &[STREAM_MEAN, f as u64, r as u64],
+                            ));
+                            StandardNormal.sample(&mut rng)
+                        });
+                        add_mean(&mut z, drawn_mean(estimate, xi), free);
                     }
                     if let Some(draw) = &layer.draw {
                         let w = weights.get_or_insert_with(|| {
@@ -1074,7 +1118,7 @@ pub fn simulate(
 
     // the wells of each field, by name, for the calibration draw
     let mut well_names: Vec<Vec<String>> = vec![Vec::new(); input.fields.len()];
-    if settings.calibration_draw {
+    if settings.calibration_draw && settings.mean == MeanRule::Zero {
         for l in &input.layers {
             for w in &l.calibration {
                 if !well_names[l.field].contains(&w.name) {
@@ -1087,7 +1131,15 @@ pub fn simulate(
     for (li, l) in input.layers.iter().enumerate() {
         let table = tables[l.field].clone().expect("table of a used field");
         let conditioning = Conditioning::new(&l.name, table.clone(), &l.wells)?;
-        let draw = if settings.calibration_draw {
+        let estimated = settings.mean == MeanRule::Estimated;
+        let unknown_mean = if estimated {
+            conditioning
+                .mean_estimate()
+                .map(|e| (e, conditioning.free_share()))
+        } else {
+            None
+        };
+        let draw = if settings.calibration_draw && !estimated {
             prepare_draw(l, &well_names[l.field], table, &conditioning)?
         } else {
             None
@@ -1146,6 +1198,7 @@ pub fn simulate(
             field: l.field,
             conditioning,
             draw,
+            unknown_mean,
             distribution: dist,
             active,
             areas,
@@ -1275,6 +1328,8 @@ pub fn simulate(
             conditioning: p.conditioning.report().clone(),
             calibration_wells: p.draw.as_ref().map_or(0, |d| d.scores.scores.len()),
             calibration_shift_sd: p.draw.as_ref().map_or(0.0, |d| d.scores.variance.sqrt()),
+            mean: p.conditioning.mean_estimate(),
+            mean_applied: p.unknown_mean.is_some(),
         })
         .collect();
     Ok(TotalsOutput {

@@ -7,6 +7,7 @@ mod krige;
 mod scores;
 mod spec;
 mod totals;
+mod unknown_mean;
 mod variogram;
 
 use ndarray::Array2;
