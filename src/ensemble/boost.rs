@@ -35,7 +35,7 @@ use super::persist::{
     self, BOOSTER_FORMAT, BOOSTER_VERSION, QUANTILE_BOOSTERS_FORMAT, QUANTILE_BOOSTERS_VERSION,
 };
 use super::quantile::weighted_quantile;
-use super::tree::{Binned, GrowParams, Tree, grow};
+use super::tree::{Binned, GrowJob, GrowParams, Tree, grow};
 use super::{
     EnsembleError, PREDICT_CHUNK, check_training_x, check_weights, copy_rows_wide, derive_seed,
     invalid,
@@ -446,7 +446,18 @@ impl BoostSettings {
             for i in 0..nt {
                 grad[i] = loss.negative_gradient(yt[i] - f[i]);
             }
-            let grown = grow(&data, &grad, 1, &rw, rows, Vec::new(), &params, &mut rng);
+            let grown = grow(
+                GrowJob {
+                    data: &data,
+                    targets: &grad,
+                    k: 1,
+                    weight: &rw,
+                    rows,
+                    routed: Vec::new(),
+                    params: &params,
+                },
+                &mut rng,
+            );
             let mut values = Vec::with_capacity(grown.leaf_ranges.len());
             for &(a, b) in &grown.leaf_ranges {
                 res.clear();
@@ -600,9 +611,7 @@ impl Booster {
 
     /// Loads a booster saved by [`Booster::to_json`].
     pub fn from_json(s: &str) -> Result<Booster, EnsembleError> {
-        let b: Booster = persist::from_json(s, BOOSTER_FORMAT, BOOSTER_VERSION)?;
-        b.validate().map_err(EnsembleError::CorruptModel)?;
-        Ok(b)
+        persist::from_json_checked(s, BOOSTER_FORMAT, BOOSTER_VERSION, Booster::validate)
     }
 
     fn validate(&self) -> Result<(), String> {
@@ -705,16 +714,16 @@ impl QuantileBoosters {
 
     /// Loads boosters saved by [`QuantileBoosters::to_json`].
     pub fn from_json(s: &str) -> Result<QuantileBoosters, EnsembleError> {
-        let q: QuantileBoosters =
-            persist::from_json(s, QUANTILE_BOOSTERS_FORMAT, QUANTILE_BOOSTERS_VERSION)?;
-        if q.levels.len() != q.boosters.len() || q.levels.is_empty() {
-            return Err(EnsembleError::CorruptModel(
-                "levels and boosters differ in number".into(),
-            ));
-        }
-        for b in &q.boosters {
-            b.validate().map_err(EnsembleError::CorruptModel)?;
-        }
-        Ok(q)
+        persist::from_json_checked(
+            s,
+            QUANTILE_BOOSTERS_FORMAT,
+            QUANTILE_BOOSTERS_VERSION,
+            |q: &QuantileBoosters| {
+                if q.levels.len() != q.boosters.len() || q.levels.is_empty() {
+                    return Err("levels and boosters differ in number".into());
+                }
+                q.boosters.iter().try_for_each(Booster::validate)
+            },
+        )
     }
 }

@@ -30,7 +30,7 @@ use serde::{Deserialize, Serialize};
 use super::binning::BinMapper;
 use super::persist::{self, FOREST_FORMAT, FOREST_VERSION, exact_vec};
 use super::quantile::QrfKernel;
-use super::tree::{Binned, GrowParams, Tree, grow};
+use super::tree::{Binned, GrowJob, GrowParams, Tree, grow};
 use super::{
     EnsembleError, PREDICT_CHUNK, check_training_x, check_weights, copy_rows, copy_rows_wide,
     derive_seed, invalid,
@@ -284,7 +284,18 @@ impl ForestSettings {
         // out-of-bag rows are routed to their leaves while the tree grows
         let mut oob_rows: Vec<u32> = Vec::with_capacity(n - rows.len());
         oob_rows.extend((0..n as u32).filter(|&r| !in_tree[r as usize]));
-        let grown = grow(data, z, k, &rw, rows, oob_rows, params, &mut rng);
+        let grown = grow(
+            GrowJob {
+                data,
+                targets: z,
+                k,
+                weight: &rw,
+                rows,
+                routed: oob_rows,
+                params,
+            },
+            &mut rng,
+        );
         let n_leaves = grown.leaf_ranges.len();
 
         let mut values = vec![0.0; n_leaves * k];
@@ -948,9 +959,7 @@ impl Forest {
     /// Loads a forest saved by [`Forest::to_json`]; a different format version gives
     /// [`EnsembleError::FormatVersion`], an inconsistent model [`EnsembleError::CorruptModel`].
     pub fn from_json(s: &str) -> Result<Forest, EnsembleError> {
-        let f: Forest = persist::from_json(s, FOREST_FORMAT, FOREST_VERSION)?;
-        f.validate().map_err(EnsembleError::CorruptModel)?;
-        Ok(f)
+        persist::from_json_checked(s, FOREST_FORMAT, FOREST_VERSION, Forest::validate)
     }
 
     fn validate(&self) -> Result<(), String> {

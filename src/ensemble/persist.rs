@@ -47,6 +47,19 @@ pub(crate) fn to_json<T: Serialize>(
     })?)
 }
 
+/// Reads a model written by [`to_json`] (format name and version checked first), then checks
+/// its consistency with `validate`, whose message becomes [`EnsembleError::CorruptModel`].
+pub(crate) fn from_json_checked<T: DeserializeOwned>(
+    s: &str,
+    format: &'static str,
+    version: u32,
+    validate: impl FnOnce(&T) -> Result<(), String>,
+) -> Result<T, EnsembleError> {
+    let model: T = from_json(s, format, version)?;
+    validate(&model).map_err(EnsembleError::CorruptModel)?;
+    Ok(model)
+}
+
 /// Reads a model written by [`to_json`], checking format name and version first.
 pub(crate) fn from_json<T: DeserializeOwned>(
     s: &str,

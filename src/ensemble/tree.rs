@@ -462,7 +462,7 @@ struct Best {
 
 /// Grows one tree.
 ///
-/// `targets` is `n x k` row-major (standardised outputs for a forest, pseudo-residuals for
+/// In `job`, `targets` is `n x k` row-major (standardised outputs for a forest, pseudo-residuals for
 /// boosting); `weight[r]` is the effective weight of row `r` (sample weight times in-bag count);
 /// `rows` lists the distinct rows to use (all with positive weight). The rows `routed` (for
 /// a forest, the out-of-bag rows) take no part in the fit; they are sent down the tree as it
@@ -474,17 +474,7 @@ struct Best {
 /// shifts and bit scans without extra moves). Both copies do the same floating-point
 /// operations in the same order (Rust never fuses or reorders them, and FMA is not enabled),
 /// so they grow bit-for-bit the same trees.
-#[allow(clippy::too_many_arguments)]
-pub(crate) fn grow(
-    data: &Binned<'_>,
-    targets: &[f64],
-    k: usize,
-    weight: &[f64],
-    rows: Vec<u32>,
-    routed: Vec<u32>,
-    params: &GrowParams,
-    rng: &mut StdRng,
-) -> Grown {
+pub(crate) fn grow(job: GrowJob<'_>, rng: &mut StdRng) -> Grown {
     #[cfg(target_arch = "x86_64")]
     if std::is_x86_feature_detected!("avx2")
         && std::is_x86_feature_detected!("bmi1")
@@ -493,42 +483,49 @@ pub(crate) fn grow(
         && std::is_x86_feature_detected!("popcnt")
     {
         // SAFETY: the processor supports every feature `grow_x86_v3` is compiled for.
-        return unsafe { grow_x86_v3(data, targets, k, weight, rows, routed, params, rng) };
+        return unsafe { grow_x86_v3(job, rng) };
     }
-    grow_any(data, targets, k, weight, rows, routed, params, rng)
+    grow_any(job, rng)
+}
+
+/// What [`grow`] grows a tree from (see there for each part).
+pub(crate) struct GrowJob<'a> {
+    /// Binned features.
+    pub data: &'a Binned<'a>,
+    /// `n x k` row-major targets.
+    pub targets: &'a [f64],
+    /// Outputs per row.
+    pub k: usize,
+    /// Effective weight per row.
+    pub weight: &'a [f64],
+    /// Distinct rows to fit on.
+    pub rows: Vec<u32>,
+    /// Rows sent down the tree without taking part in the fit.
+    pub routed: Vec<u32>,
+    /// Growing settings.
+    pub params: &'a GrowParams,
 }
 
 /// [`grow`] compiled for AVX2 and BMI1/2 (the body is [`grow_any`], inlined).
 #[cfg(target_arch = "x86_64")]
 #[target_feature(enable = "avx2,bmi1,bmi2,lzcnt,popcnt")]
-#[allow(clippy::too_many_arguments)]
-fn grow_x86_v3(
-    data: &Binned<'_>,
-    targets: &[f64],
-    k: usize,
-    weight: &[f64],
-    rows: Vec<u32>,
-    routed: Vec<u32>,
-    params: &GrowParams,
-    rng: &mut StdRng,
-) -> Grown {
-    grow_any(data, targets, k, weight, rows, routed, params, rng)
+fn grow_x86_v3(job: GrowJob<'_>, rng: &mut StdRng) -> Grown {
+    grow_any(job, rng)
 }
 
 /// The body of [`grow`], inlined into each compiled copy together with everything it calls
 /// on the hot path.
 #[inline(always)]
-#[allow(clippy::too_many_arguments)]
-fn grow_any(
-    data: &Binned<'_>,
-    targets: &[f64],
-    k: usize,
-    weight: &[f64],
-    rows: Vec<u32>,
-    routed: Vec<u32>,
-    params: &GrowParams,
-    rng: &mut StdRng,
-) -> Grown {
+fn grow_any(job: GrowJob<'_>, rng: &mut StdRng) -> Grown {
+    let GrowJob {
+        data,
+        targets,
+        k,
+        weight,
+        rows,
+        routed,
+        params,
+    } = job;
     let stride = k + 2;
     let mut wy = vec![0.0; data.n * k];
     let mut q = vec![0.0; data.n];
@@ -1389,7 +1386,18 @@ mod tests {
             n_try: x.ncols(),
         };
         let mut rng = StdRng::seed_from_u64(1);
-        grow(&data, y, 1, &w, rows, Vec::new(), &params, &mut rng)
+        grow(
+            GrowJob {
+                data: &data,
+                targets: y,
+                k: 1,
+                weight: &w,
+                rows,
+                routed: Vec::new(),
+                params: &params,
+            },
+            &mut rng,
+        )
     }
 
     #[test]
@@ -1485,7 +1493,18 @@ mod tests {
             n_try: 2,
         };
         let mut rng = StdRng::seed_from_u64(7);
-        let g = grow(&data, &y, 1, &w, rows, routed, &params, &mut rng);
+        let g = grow(
+            GrowJob {
+                data: &data,
+                targets: &y,
+                k: 1,
+                weight: &w,
+                rows,
+                routed,
+                params: &params,
+            },
+            &mut rng,
+        );
         assert!(g.leaf_ranges.len() > 50);
         assert_eq!(g.routed.len(), n / 2);
         let mut seen = vec![false; n];
@@ -1528,11 +1547,19 @@ mod tests {
             };
             let run = |portable: bool| {
                 let mut rng = StdRng::seed_from_u64(11);
-                let (rows, routed) = (rows.clone(), routed.clone());
+                let job = GrowJob {
+                    data: &data,
+                    targets: &y,
+                    k,
+                    weight: &w,
+                    rows: rows.clone(),
+                    routed: routed.clone(),
+                    params: &params,
+                };
                 if portable {
-                    grow_any(&data, &y, k, &w, rows, routed, &params, &mut rng)
+                    grow_any(job, &mut rng)
                 } else {
-                    grow(&data, &y, k, &w, rows, routed, &params, &mut rng)
+                    grow(job, &mut rng)
                 }
             };
             let (a, b) = (run(false), run(true));

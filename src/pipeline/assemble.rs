@@ -10,6 +10,7 @@ use super::model::{SavedModel, convention_text};
 use super::stages::Timing;
 use super::studies::{Infill, Sensitivity, Summary, TargetSummary};
 use crate::calibrate::shift::ShiftSummary;
+use crate::calibrate::stages::kriging::KrigingDiagnostics;
 use crate::calibrate::stages::spread::Spread;
 use crate::calibrate::{OofRow, TargetDiagnostics};
 use crate::metrics::quantile_sorted;
@@ -279,6 +280,33 @@ fn target_report(t: &TargetSummary, studies: &Sensitivity) -> ri::TargetReport {
             tolerance: opt(z.tolerance),
             zero_share: opt(z.zero_share),
         }),
+        kriging: d
+            .kriging
+            .as_ref()
+            .map(|k| kriging_summary(k, d.hurdle.is_some())),
+    }
+}
+
+/// The residual-kriging stage as the page shows it. The band without the kriging scale is the
+/// band after the (possibly) corrected middle, the one the scaled band was tested against.
+fn kriging_summary(k: &KrigingDiagnostics, measured_only: bool) -> ri::KrigingSummary {
+    let v = k.variogram.as_ref();
+    ri::KrigingSummary {
+        model: v.map_or_else(String::new, |v| v.model.kind.name().to_string()),
+        nugget: v.and_then(|v| opt(v.model.nugget)),
+        sill: v.and_then(|v| opt(v.model.sill)),
+        range: v.and_then(|v| opt(v.model.range)),
+        pairs: v.map(|v| v.lags.iter().map(|l| l.1).sum()),
+        fallback: v.is_some_and(|v| v.fallback),
+        applied: k.applied,
+        measured_only,
+        band_kept: k.band_kept,
+        is_scaled: opt(k.is_scaled),
+        is_without: opt(k.is_shifted),
+        mse_gain_pct: opt(k.mse_gain_pct),
+        mse_gain_se_pct: opt(k.mse_gain_se_pct),
+        middle_applied: k.shift_kept && !measured_only,
+        decision: k.decision.clone(),
     }
 }
 

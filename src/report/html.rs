@@ -764,6 +764,7 @@ fn calibration_section(h: &mut String, input: &ReportInput) {
             }
             _ => h.push_str("<p class=\"nc\">PIT histogram: not computed.</p>\n"),
         }
+        super::kriging::kriging_block(h, t, &input.xy_unit);
         super::spread::spread_block(h, t, &input.xy_unit);
         super::spread::zero_block(h, t);
     }

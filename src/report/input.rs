@@ -128,6 +128,46 @@ pub struct TargetReport {
     pub spread: Option<SpreadProfile>,
     /// Whether the target was modelled with a "no change" atom at zero, and why.
     pub zero_change: Option<ZeroDecision>,
+    /// Regression kriging of the held-out wells' errors: variogram, band decision, middle gain.
+    pub kriging: Option<KrigingSummary>,
+}
+
+/// The residual-kriging stage of a target, as the page shows it: the variogram fitted to the
+/// held-out wells' standardised errors, whether the band scaled by the kriging variance was kept
+/// (its out-of-fold interval score against the band without it), and the middle's measured gain.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct KrigingSummary {
+    /// Variogram model kind (`exponential`, `spherical`, `matern32`); empty when no variogram.
+    pub model: String,
+    /// Nugget of the standardised errors.
+    pub nugget: Option<f64>,
+    /// Total sill of the standardised errors.
+    pub sill: Option<f64>,
+    /// Range in map units.
+    pub range: Option<f64>,
+    /// Pairs of well rows over every lag of the experimental variogram.
+    pub pairs: Option<usize>,
+    /// The fit fell back (nothing kriged then).
+    pub fallback: bool,
+    /// The target's maps use the stage.
+    pub applied: bool,
+    /// A target with a "no change" atom: the stage is measured only.
+    pub measured_only: bool,
+    /// The band scaled by the kriging variance passed its test.
+    pub band_kept: bool,
+    /// Out-of-fold interval score of the band scaled by the kriging variance.
+    pub is_scaled: Option<f64>,
+    /// Out-of-fold interval score of the band without the scaling.
+    pub is_without: Option<f64>,
+    /// Out-of-fold MSE gain of adding the kriged error to the middle, in %.
+    pub mse_gain_pct: Option<f64>,
+    /// One standard error of that gain, in %.
+    pub mse_gain_se_pct: Option<f64>,
+    /// The middle was corrected.
+    pub middle_applied: bool,
+    /// The stage's decision in words.
+    pub decision: String,
 }
 
 /// Leave-wells-out skill of a target (steps pooled, or one step) with its verdict.

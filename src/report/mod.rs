@@ -7,6 +7,8 @@
 //! - [`labels`]: point labels placed clear of each other and of the symbols.
 //! - [`markup`]: escaping, number formats and embedded figures shared by the page's parts.
 //! - [`input`]: [`ReportInput`], the plain serialisable data the page is built from.
+//! - [`kriging`]: per target, the variogram of the held-out wells' errors, the band decision and
+//!   the middle's measured gain.
 //! - [`html`]: [`render_html`], one self-contained HTML page (pictures as data URIs, inline CSS, no
 //!   scripts, no network), and [`write_html`] (temporary file + rename).
 //!
@@ -18,6 +20,7 @@ pub mod colormap;
 pub mod font;
 pub mod html;
 pub mod input;
+pub mod kriging;
 pub mod labels;
 pub mod markup;
 pub mod picture;

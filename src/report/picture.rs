@@ -49,6 +49,61 @@ fn series_colour(k: usize) -> RGBColor {
     RGBColor(c[0], c[1], c[2])
 }
 
+/// A chart with two numeric axes, as the cross-plots, line plots and bar charts draw on.
+type Chart2d<'a, 'b> = ChartContext<
+    'a,
+    BitMapBackend<'b>,
+    Cartesian2d<plotters::coord::types::RangedCoordf64, plotters::coord::types::RangedCoordf64>,
+>;
+
+/// The chart of a cross-plot or line plot: title, axes over `x` and `y` with their labels, and a
+/// light grey mesh with ticks formatted for each axis's span.
+fn xy_chart<'a, 'b: 'a>(
+    root: &'a DrawingArea<BitMapBackend<'b>, Shift>,
+    title: &str,
+    x_label: &str,
+    y_label: &str,
+    x: std::ops::Range<f64>,
+    y: std::ops::Range<f64>,
+) -> Result<Chart2d<'a, 'b>, ReportError> {
+    let (sx, sy) = (x.end - x.start, y.end - y.start);
+    let mut chart = ChartBuilder::on(root)
+        .margin(12)
+        .caption(title, (FAMILY, 17, FontStyle::Bold))
+        .x_label_area_size(44)
+        .y_label_area_size(64)
+        .build_cartesian_2d(x, y)
+        .map_err(draw_err)?;
+    chart
+        .configure_mesh()
+        .light_line_style(WHITE)
+        .bold_line_style(RGBColor(0xdd, 0xdd, 0xdd))
+        .x_desc(x_label)
+        .y_desc(y_label)
+        .label_style((FAMILY, 12))
+        .axis_desc_style((FAMILY, 13))
+        .x_label_formatter(&|v| format_tick(*v, sx))
+        .y_label_formatter(&|v| format_tick(*v, sy))
+        .draw()
+        .map_err(draw_err)?;
+    Ok(chart)
+}
+
+/// The legend box of a chart's named series, in one corner.
+fn series_legend<'a, 'b: 'a>(
+    chart: &mut Chart2d<'a, 'b>,
+    corner: SeriesLabelPosition,
+) -> Result<(), ReportError> {
+    chart
+        .configure_series_labels()
+        .position(corner)
+        .background_style(WHITE.mix(0.85))
+        .border_style(RGBColor(0x99, 0x99, 0x99))
+        .label_font((FAMILY, 12))
+        .draw()
+        .map_err(draw_err)
+}
+
 fn draw_err<E: std::fmt::Display>(e: E) -> ReportError {
     ReportError::Draw(e.to_string())
 }
@@ -1401,26 +1456,7 @@ pub fn crossplot_png(p: &CrossPlot, width: u32, height: u32) -> Result<Vec<u8>, 
     {
         let root = BitMapBackend::with_buffer(&mut buf, (width, height)).into_drawing_area();
         root.fill(&WHITE).map_err(draw_err)?;
-        let mut chart = ChartBuilder::on(&root)
-            .margin(12)
-            .caption(&p.title, (FAMILY, 17, FontStyle::Bold))
-            .x_label_area_size(44)
-            .y_label_area_size(64)
-            .build_cartesian_2d(lo..hi, lo..hi)
-            .map_err(draw_err)?;
-        let span = hi - lo;
-        chart
-            .configure_mesh()
-            .light_line_style(WHITE)
-            .bold_line_style(RGBColor(0xdd, 0xdd, 0xdd))
-            .x_desc(&p.x_label)
-            .y_desc(&p.y_label)
-            .label_style((FAMILY, 12))
-            .axis_desc_style((FAMILY, 13))
-            .x_label_formatter(&|v| format_tick(*v, span))
-            .y_label_formatter(&|v| format_tick(*v, span))
-            .draw()
-            .map_err(draw_err)?;
+        let mut chart = xy_chart(&root, &p.title, &p.x_label, &p.y_label, lo..hi, lo..hi)?;
         if p.one_to_one {
             chart
                 .draw_series(LineSeries::new([(lo, lo), (hi, hi)], BLACK.stroke_width(1)))
@@ -1441,14 +1477,7 @@ pub fn crossplot_png(p: &CrossPlot, width: u32, height: u32) -> Result<Vec<u8>, 
                 .label(&s.name)
                 .legend(move |(x, y)| Circle::new((x + 9, y), 4, colour.filled()));
         }
-        chart
-            .configure_series_labels()
-            .position(SeriesLabelPosition::UpperLeft)
-            .background_style(WHITE.mix(0.85))
-            .border_style(RGBColor(0x99, 0x99, 0x99))
-            .label_font((FAMILY, 12))
-            .draw()
-            .map_err(draw_err)?;
+        series_legend(&mut chart, SeriesLabelPosition::UpperLeft)?;
         root.present().map_err(draw_err)?;
     }
     encode_png(&buf, width, height)
@@ -1563,26 +1592,7 @@ pub fn line_png(p: &LinePicture, width: u32, height: u32) -> Result<Vec<u8>, Rep
     {
         let root = BitMapBackend::with_buffer(&mut buf, (width, height)).into_drawing_area();
         root.fill(&WHITE).map_err(draw_err)?;
-        let mut chart = ChartBuilder::on(&root)
-            .margin(12)
-            .caption(&p.title, (FAMILY, 17, FontStyle::Bold))
-            .x_label_area_size(44)
-            .y_label_area_size(64)
-            .build_cartesian_2d(x0..x1, y0..y1)
-            .map_err(draw_err)?;
-        let (sx, sy) = (x1 - x0, y1 - y0);
-        chart
-            .configure_mesh()
-            .light_line_style(WHITE)
-            .bold_line_style(RGBColor(0xdd, 0xdd, 0xdd))
-            .x_desc(&p.x_label)
-            .y_desc(&p.y_label)
-            .label_style((FAMILY, 12))
-            .axis_desc_style((FAMILY, 13))
-            .x_label_formatter(&|v| format_tick(*v, sx))
-            .y_label_formatter(&|v| format_tick(*v, sy))
-            .draw()
-            .map_err(draw_err)?;
+        let mut chart = xy_chart(&root, &p.title, &p.x_label, &p.y_label, x0..x1, y0..y1)?;
         let grey = RGBColor(0x55, 0x55, 0x55);
         for r in &p.references {
             let (pts, label) = match r {
@@ -1647,18 +1657,12 @@ pub fn line_png(p: &LinePicture, width: u32, height: u32) -> Result<Vec<u8>, Rep
                 }
             }
         }
-        chart
-            .configure_series_labels()
-            .position(if p.legend_top_left {
-                SeriesLabelPosition::UpperLeft
-            } else {
-                SeriesLabelPosition::LowerRight
-            })
-            .background_style(WHITE.mix(0.85))
-            .border_style(RGBColor(0x99, 0x99, 0x99))
-            .label_font((FAMILY, 12))
-            .draw()
-            .map_err(draw_err)?;
+        let corner = if p.legend_top_left {
+            SeriesLabelPosition::UpperLeft
+        } else {
+            SeriesLabelPosition::LowerRight
+        };
+        series_legend(&mut chart, corner)?;
         root.present().map_err(draw_err)?;
     }
     encode_png(&buf, width, height)
@@ -1860,12 +1864,6 @@ pub fn bars_png(p: &BarPicture, width: u32, height: u32) -> Result<Vec<u8>, Repo
     encode_png(&buf, width, height)
 }
 
-type Chart2d<'a, 'b> = ChartContext<
-    'a,
-    BitMapBackend<'b>,
-    Cartesian2d<plotters::coord::types::RangedCoordf64, plotters::coord::types::RangedCoordf64>,
->;
-
 fn draw_bars<'a, 'b: 'a>(
     chart: &mut Chart2d<'a, 'b>,
     p: &BarPicture,
@@ -1924,14 +1922,7 @@ fn finish_legend<'a, 'b: 'a>(
     p: &BarPicture,
 ) -> Result<(), ReportError> {
     if p.series.len() > 1 || p.reference.is_some() {
-        chart
-            .configure_series_labels()
-            .position(SeriesLabelPosition::UpperRight)
-            .background_style(WHITE.mix(0.85))
-            .border_style(RGBColor(0x99, 0x99, 0x99))
-            .label_font((FAMILY, 12))
-            .draw()
-            .map_err(draw_err)?;
+        series_legend(chart, SeriesLabelPosition::UpperRight)?;
     }
     Ok(())
 }

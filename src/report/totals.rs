@@ -63,14 +63,19 @@ pub struct DrawEntry {
 /// The sentence on the calibration draw.
 fn draw_sentence(draws: &[DrawEntry]) -> String {
     if draws.is_empty() {
-        return "The calibration was not drawn per realization (<code>[totals]                 calibration_uncertainty = false</code>): the range leaves out that every node                 shares the same calibration wells."
+        return "The calibration was not drawn per realization (<code>[totals] \
+                calibration_uncertainty = false</code>): the range leaves out that every node \
+                shares the same calibration wells."
             .to_string();
     }
     let (lo, hi) = draws.iter().fold((f64::INFINITY, 0.0f64), |(a, b), d| {
         (a.min(d.shift_sd), b.max(d.shift_sd))
     });
     format!(
-        "Each realization also redraws the calibration (a Bayesian bootstrap over the held-out          wells of their mean normal score, shared by every node the wells leave free; shift sd          {} to {} normal scores over {} target-steps), so the range carries the uncertainty all          nodes share because they were calibrated on the same wells.",
+        "Each realization also redraws the calibration (a Bayesian bootstrap over the held-out \
+         wells of their mean normal score, shared by every node the wells leave free; shift sd \
+         {} to {} normal scores over {} target-steps), so the range carries the uncertainty all \
+         nodes share because they were calibrated on the same wells.",
         fmt(lo),
         fmt(hi),
         draws.len()

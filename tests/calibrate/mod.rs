@@ -17,3 +17,4 @@ mod shift;
 mod stages;
 mod target;
 mod too_few;
+mod widening;

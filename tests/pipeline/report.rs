@@ -123,3 +123,122 @@ fn learning_curve_and_ablation_equal_a_direct_computation() {
     let mean = point.r2.iter().sum::<f64>() / point.r2.len() as f64;
     assert!((last["r2_mean"].as_f64().unwrap() - mean).abs() < 1e-12);
 }
+
+/// Text of the first element after `from` that opens with `open` (up to `close`), tags kept.
+fn element_after<'a>(html: &'a str, from: usize, open: &str, close: &str) -> &'a str {
+    let start = from
+        + html[from..]
+            .find(open)
+            .unwrap_or_else(|| panic!("no {open} after byte {from}"));
+    let end = start + html[start..].find(close).unwrap();
+    &html[start + open.len()..end]
+}
+
+/// Cells of the second row of a table (the first holds the headings).
+fn value_cells(table: &str) -> Vec<String> {
+    let row = table.split("<tr>").nth(2).expect("a row of values");
+    row.split("<td>")
+        .skip(1)
+        .map(|c| c[..c.find("</td>").unwrap()].to_string())
+        .collect()
+}
+
+#[test]
+fn the_kriging_stage_on_the_page_prints_the_figures_of_the_summary() {
+    use tidemark::report::markup::{escape, num};
+    let f = fixture();
+    let html = std::fs::read_to_string(f.out.join("report.html")).unwrap();
+    let summary: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(f.out.join("summary.json")).unwrap())
+            .unwrap();
+    let calibration = html
+        .find("<section id=\"calibration\">")
+        .expect("calibration section");
+    let targets = summary["targets"].as_array().unwrap();
+    assert!(!targets.is_empty());
+    for t in targets {
+        let name = t["name"].as_str().unwrap();
+        let d = &t["diagnostics"];
+        let k = &d["kriging"];
+        let measured_only = !d["hurdle"].is_null();
+        let heading = calibration
+            + html[calibration..]
+                .find(&format!("<h3>{}</h3>", escape(name)))
+                .unwrap_or_else(|| panic!("{name}: no heading in the calibration section"));
+        // The block belongs to this target: no other target's heading before it.
+        let block = heading + html[heading..].find("Kriging the held-out wells").unwrap();
+        assert!(
+            !html[heading + 4..block].contains("<h3>"),
+            "{name}: kriging block under another target"
+        );
+        // The variogram: model, nugget, sill, range and pairs as in summary.json.
+        let v = &k["variogram"];
+        let model = &v["model"];
+        let cells = value_cells(element_after(
+            &html,
+            block,
+            "<table class=\"kriging\">",
+            "</table>",
+        ));
+        let pairs: u64 = v["lags"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|l| l[1].as_u64().unwrap())
+            .sum();
+        assert_eq!(cells[0], model["kind"].as_str().unwrap(), "{name} model");
+        assert_eq!(cells[1], num(model["nugget"].as_f64()), "{name} nugget");
+        assert_eq!(cells[2], num(model["sill"].as_f64()), "{name} sill");
+        assert_eq!(cells[3], num(model["range"].as_f64()), "{name} range");
+        assert_eq!(cells[4], pairs.to_string(), "{name} pairs");
+        assert!(pairs > 0, "{name}: a fitted variogram has pairs");
+        // The band: kept or not, with both interval scores.
+        let band = element_after(&html, block, "<p class=\"note kriging-band\">", "</p>");
+        let (scaled, without) = (num(k["is_scaled"].as_f64()), num(k["is_shifted"].as_f64()));
+        assert!(
+            band.contains(&format!("{scaled}, is")) || band.contains(&format!("{scaled} against")),
+            "{name}: scaled band's interval score {scaled} in {band}"
+        );
+        assert!(
+            band.contains(&format!("{without} without it")),
+            "{name}: {band}"
+        );
+        let kept = k["band_kept"].as_bool().unwrap();
+        match (kept, measured_only) {
+            (true, false) => assert!(band.contains(": kept, because"), "{name}: {band}"),
+            (true, true) => assert!(band.contains("would pass its test"), "{name}: {band}"),
+            (false, _) => assert!(band.contains("not kept, because"), "{name}: {band}"),
+        }
+        // The sentence's comparison agrees with the numbers.
+        let (a, b) = (
+            k["is_scaled"].as_f64().unwrap(),
+            k["is_shifted"].as_f64().unwrap(),
+        );
+        assert_eq!(kept, a <= b, "{name}: kept exactly when no worse");
+        // The middle's measured gain, in %, with its direction.
+        let middle = element_after(&html, block, "<p class=\"note kriging-middle\">", "</p>");
+        let gain = k["mse_gain_pct"].as_f64().unwrap();
+        let se = k["mse_gain_se_pct"].as_f64().unwrap();
+        let verb = if gain >= 0.0 { "lower" } else { "raise" };
+        let figures = format!(
+            "the held-out wells&#39; mean squared error by {:.1} % (one standard error {se:.1} %)",
+            gain.abs()
+        );
+        if k["shift_kept"].as_bool().unwrap() && !measured_only {
+            assert!(
+                middle.contains(&format!("{verb}s {figures}")),
+                "{name}: {middle}"
+            );
+            assert!(
+                middle.contains("the P50 maps include it"),
+                "{name}: {middle}"
+            );
+        } else {
+            assert!(
+                middle.contains(&format!("would {verb} {figures}")),
+                "{name}: {middle}"
+            );
+            assert!(middle.contains("measured, not applied"), "{name}: {middle}");
+        }
+    }
+}

@@ -272,3 +272,70 @@ fn text_is_escaped_and_numbers_formatted() {
     assert!(num(Some(f64::NAN)).contains("not computed"));
     assert_eq!(pct(Some(0.8)), "80.0&nbsp;%");
 }
+
+#[test]
+fn the_kriging_sentences_follow_the_decision() {
+    use tidemark::report::kriging::{band_sentence, middle_sentence};
+    let kept = KrigingSummary {
+        model: "exponential".into(),
+        nugget: Some(0.2),
+        sill: Some(1.0),
+        range: Some(900.0),
+        pairs: Some(120),
+        applied: true,
+        band_kept: true,
+        is_scaled: Some(4.1),
+        is_without: Some(4.3),
+        mse_gain_pct: Some(12.34),
+        mse_gain_se_pct: Some(5.0),
+        middle_applied: true,
+        ..Default::default()
+    };
+    let band = band_sentence("dP", &kept);
+    assert!(band.contains(": kept, because"), "{band}");
+    assert!(
+        band.contains("4.10, is no worse than 4.30 without it"),
+        "{band}"
+    );
+    let middle = middle_sentence(&kept);
+    assert!(
+        middle.contains("lowers the held-out wells' mean squared error by 12.3 % (one standard error 5.0 %); the P50 maps include it"),
+        "{middle}"
+    );
+    // A fit that fell back tries no band and says why.
+    let fell_back = KrigingSummary {
+        model: "exponential".into(),
+        fallback: true,
+        decision: "the variogram could not be fitted".into(),
+        ..Default::default()
+    };
+    let band = band_sentence("dP", &fell_back);
+    assert!(
+        band.contains("not tried: the variogram could not be fitted"),
+        "{band}"
+    );
+    // On the page: the table marks the fallback, and a target without the stage says so.
+    let dir = tempfile::tempdir().unwrap();
+    let page = render_html(
+        &ReportInput {
+            xy_unit: "m".into(),
+            targets: vec![
+                TargetReport {
+                    name: "dP".into(),
+                    kriging: Some(fell_back),
+                    ..Default::default()
+                },
+                TargetReport {
+                    name: "dSw".into(),
+                    ..Default::default()
+                },
+            ],
+            ..Default::default()
+        },
+        dir.path(),
+    )
+    .unwrap();
+    assert!(page.contains("<td>exponential (fallback: nothing kriged)</td>"));
+    assert!(page.contains("<th>range (m)</th>"));
+    assert!(page.contains("Residual kriging: not computed."));
+}
