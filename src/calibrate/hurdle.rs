@@ -208,7 +208,8 @@ impl ZeroRule {
             .min_by(|a, b| a.abs().total_cmp(&b.abs()));
         if let (true, Some(t)) = (rule.enabled, swallowed) {
             let why = format!(
-                "the tolerance {:.4} reaches the decision threshold {t}, so changes up to it                  would count as no change",
+                "the tolerance {:.4} reaches the decision threshold {t}, so changes up to it \
+                 would count as no change",
                 rule.tolerance
             );
             match setting {
