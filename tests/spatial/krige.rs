@@ -10,16 +10,7 @@ use tidemark::spatial::{
     WellScore,
 };
 
-use super::{covariance_matrix, reference_solve, two_sided_p};
-
-fn well(name: &str, x: f64, y: f64, score: f64) -> WellScore {
-    WellScore {
-        name: name.into(),
-        x,
-        y,
-        score,
-    }
-}
+use super::{covariance_matrix, reference_solve, two_sided_p, well};
 
 #[test]
 fn conditioned_fields_equal_the_well_values_at_well_nodes() {

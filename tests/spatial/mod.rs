@@ -12,7 +12,7 @@ mod variogram;
 
 use ndarray::Array2;
 use smartcore::linalg::traits::cholesky::CholeskyDecomposable;
-use tidemark::spatial::VariogramModel;
+use tidemark::spatial::{VariogramModel, WellScore};
 
 /// The covariance matrix of `model` between `points` (metres).
 pub fn covariance_matrix(model: &VariogramModel, points: &[(f64, f64)]) -> Array2<f64> {
@@ -43,4 +43,14 @@ pub fn two_sided_p(z: f64) -> f64 {
     use statrs::distribution::{ContinuousCDF, Normal};
     let n = Normal::new(0.0, 1.0).expect("standard normal");
     2.0 * n.cdf(-z.abs())
+}
+
+/// A well score at `(x, y)` metres.
+pub fn well(name: &str, x: f64, y: f64, score: f64) -> WellScore {
+    WellScore {
+        name: name.into(),
+        x,
+        y,
+        score,
+    }
 }

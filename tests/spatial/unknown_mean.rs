@@ -17,16 +17,7 @@ use tidemark::spatial::{
     WellScore,
 };
 
-use super::{covariance_matrix, reference_solve};
-
-fn well(name: &str, x: f64, y: f64, score: f64) -> WellScore {
-    WellScore {
-        name: name.into(),
-        x,
-        y,
-        score,
-    }
-}
+use super::{covariance_matrix, reference_solve, well};
 
 /// Two data with unit variance and correlation 0.5, a target with covariances 0.6 and 0.2 to
 /// them. Worked by hand from the bordered system `lambda_1 + 0.5 lambda_2 + mu = 0.6`,
