@@ -529,6 +529,56 @@ pub fn well_scores(
         .collect()
 }
 
+/// The normal scores that make a realization reproduce each well's measured value at its node:
+/// for every row of target `t` at step `step`, the level of the measured value under the
+/// predictive distribution `dist` of the node nearest the well (the final model's, which has
+/// seen the well), turned into a normal score. Where that distribution puts mass on the value
+/// (the "no change" atom, or a step of a discrete system) the level is drawn uniformly within
+/// the mass (randomised PIT, Czado, Gneiting & Held 2009) from a stream of `seed` keyed on the
+/// row, so the draw does not depend on the thread count. Wells off the grid, at a null node or
+/// with a non-finite value are left out.
+pub fn value_scores(
+    cal: &CalibratedTarget,
+    ts: &TrainingSet,
+    t: usize,
+    grid: &Grid,
+    step: usize,
+    dist: &dyn NodeDistribution,
+    seed: u64,
+) -> Vec<WellScore> {
+    let rows = super::fit::target_rows(ts, t);
+    cal.diagnostics
+        .rows
+        .iter()
+        .zip(&rows)
+        .enumerate()
+        .filter(|(_, (row, _))| row.step == step)
+        .filter_map(|(k, (row, &r))| {
+            let (fi, fj) = grid.fractional_ij(ts.xy[r][0], ts.xy[r][1]);
+            let (i, j) = (fi.round(), fj.round());
+            let inside = i >= 0.0 && j >= 0.0 && i < grid.nx as f64 && j < grid.ny as f64;
+            if !(inside && row.truth.is_finite()) {
+                return None;
+            }
+            let node = j as usize * grid.nx + i as usize;
+            let hi = dist.cdf(node, row.truth);
+            let lo = dist.cdf_left(node, row.truth);
+            if !(hi.is_finite() && lo.is_finite()) {
+                return None;
+            }
+            let bits = crate::spatial::derive_seed(seed, &[t as u64, k as u64]) >> 11;
+            let v = (bits as f64 + 0.5) / (1u64 << 53) as f64;
+            let u = lo + v * (hi - lo).max(0.0);
+            Some(WellScore {
+                name: ts.well_names[ts.group[r]].clone(),
+                x: fi * grid.dx,
+                y: fj * grid.dy,
+                score: normal_score(u, PIT_CLAMP),
+            })
+        })
+        .collect()
+}
+
 /// The variogram of target `name`'s held-out normal scores `scores` (with their steps), pairs
 /// within a step only, fitted by weighted least squares with the stated fallback.
 pub fn correlation(

@@ -15,7 +15,7 @@
 
 use super::PipelineError;
 use super::model::{SavedModel, StepMaps, convention_text};
-use super::nodes::{CalibratedNodes, Correlation, correlation, well_scores};
+use super::nodes::{CalibratedNodes, Correlation, correlation, value_scores, well_scores};
 use super::outputs::Writer;
 use crate::grid::Grid;
 use crate::io;
@@ -24,7 +24,7 @@ use crate::sample::{self, TrainingSet};
 use crate::spatial::krige::WellScore;
 use crate::spatial::totals::{
     self as engine, Band, ErrorField, Layer, Measure, NodeDistribution, Quantity, Summary,
-    TotalDefinition, TotalRule, TotalsInput, TotalsOutput, TotalsSettings,
+    TotalDefinition, TotalRule, TotalsInput, TotalsOutput, TotalsSettings, WellConditioning,
 };
 use crate::spatial::unknown_mean::MeanRule;
 use crate::spatial::{Lattice, derive_seed};
@@ -90,6 +90,14 @@ pub struct TotalsRecord {
     /// The mean of each conditioned layer's well scores ([`crate::spatial::unknown_mean`]).
     #[serde(default)]
     pub means: Vec<MeanSummary>,
+    /// What the realizations reproduce at the well nodes (`[totals] conditioning`): `measured`
+    /// or `held_out` (absent in records written before the choice existed: `held_out`).
+    #[serde(default = "held_out_name")]
+    pub conditioning: String,
+}
+
+fn held_out_name() -> String {
+    WellConditioning::HeldOut.name().to_string()
 }
 
 /// One layer's estimated mean normal score (generalised least squares over its wells).
@@ -242,7 +250,17 @@ pub fn compute(
         .map(|(&(t, s), d)| Layer {
             name: format!("{} {}", model.targets[t].name, project.steps[s].name),
             field: field_of[t].expect("field of a used target"),
-            wells: if opts.condition {
+            wells: if opts.condition && section.conditioning == WellConditioning::Measured {
+                value_scores(
+                    &model.calibrated[t],
+                    ts,
+                    t,
+                    grid,
+                    s,
+                    d as &dyn NodeDistribution,
+                    derive_seed(seed, &[STREAM_TOTALS, 0x77e1]),
+                )
+            } else if opts.condition {
                 scores[t]
                     .iter()
                     .filter(|(st, _)| *st == s)
@@ -315,6 +333,7 @@ pub fn compute(
             })
             .collect(),
         means: mean_summaries(&output, section.mean),
+        conditioning: section.conditioning.name().to_string(),
     };
     let layers = layer_keys
         .iter()
@@ -520,6 +539,8 @@ pub struct TotalsSummary {
     pub calibration_draw: Vec<DrawSummary>,
     /// The estimated mean normal score per conditioned layer and whether it was applied.
     pub means: Vec<MeanSummary>,
+    /// What the realizations reproduce at the well nodes: `measured` or `held_out`.
+    pub conditioning: String,
 }
 
 /// One total in `summary.json`.
@@ -562,6 +583,7 @@ impl TotalsRecord {
             variograms: self.correlations.clone(),
             calibration_draw: self.calibration_draw.clone(),
             means: self.means.clone(),
+            conditioning: self.conditioning.clone(),
         }
     }
 }
@@ -725,6 +747,7 @@ pub fn report_section(record: &TotalsRecord) -> crate::report::totals::TotalsRep
         })
         .collect();
     TotalsReport {
+        conditioning: record.conditioning.clone(),
         convention: record.convention.clone(),
         realizations: record.realizations,
         quantities: record

@@ -46,6 +46,21 @@ pub struct TotalsReport {
     pub variograms: Vec<VariogramEntry>,
     /// The calibration draw per layer (empty when it was off).
     pub calibration_draw: Vec<DrawEntry>,
+    /// What the realizations reproduce at the well nodes (`measured`, `held_out`; empty when
+    /// not recorded).
+    pub conditioning: String,
+}
+
+/// The words on what the realizations are conditioned to.
+fn conditioning_words(rule: &str) -> &'static str {
+    match rule {
+        "measured" => {
+            "conditioned to give every well's measured value at its node, with the error \
+             correlation of the wells' held-out errors"
+        }
+        "held_out" => "conditioned to the wells' held-out errors",
+        _ => "conditioned to the wells",
+    }
 }
 
 /// One layer's calibration draw: the realizations' shared shift of the held-out wells' mean
@@ -311,7 +326,7 @@ pub fn section(h: &mut String, totals: Option<&TotalsReport>) {
     let _ = writeln!(
         h,
         "<p class=\"note\">{} spatially correlated realizations of every node's calibrated \
-         distribution, conditioned to the wells' held-out errors. Beside them, the two naive \
+         distribution, {}. Beside them, the two naive \
          rules: every node at its own P10 / P50 / P90 at once (far too wide when errors are not \
          perfectly correlated) and nodes drawn independently (far too narrow when they are \
          correlated). {} Decision support, not a reserves estimate: on generated fields the \
@@ -320,6 +335,7 @@ pub fn section(h: &mut String, totals: Option<&TotalsReport>) {
          spread the node bands imply and have it reviewed before it informs any reserves \
          figure. {}</p>",
         t.realizations,
+        conditioning_words(&t.conditioning),
         escape(&t.convention),
         draw_sentence(&t.calibration_draw)
     );
@@ -414,6 +430,7 @@ mod tests {
             realizations: 200,
             quantities: vec![entry()],
             variograms: Vec::new(),
+            conditioning: "measured".into(),
             calibration_draw: vec![DrawEntry {
                 layer: "dSw m1".into(),
                 wells: 40,
@@ -425,6 +442,7 @@ mod tests {
         assert!(h.contains("swept &lt;area&gt; (km2)"), "{h}");
         assert!(h.contains("<td>2.500</td>"), "the truth is shown");
         assert!(h.contains("redraws the calibration"), "{h}");
+        assert!(h.contains("give every well's measured value"), "{h}");
         assert_eq!(h.matches("data:image/png;base64,").count(), 1);
         let json = serde_json::to_string(&report).unwrap();
         assert_eq!(serde_json::from_str::<TotalsReport>(&json).unwrap(), report);

@@ -349,6 +349,10 @@ pub struct TotalsSection {
     /// `"estimated"` (unknown, estimated from the wells per step; [`super::unknown_mean`]).
     #[serde(default)]
     pub mean: MeanRule,
+    /// What the realizations reproduce at the well nodes: `"measured"` (default) or
+    /// `"held_out"` ([`WellConditioning`]).
+    #[serde(default)]
+    pub conditioning: WellConditioning,
     /// The totals.
     #[serde(default)]
     pub quantities: Vec<TotalSpec>,
@@ -356,6 +360,31 @@ pub struct TotalsSection {
     /// relative to the manifest's folder (the project resolves them when it loads).
     #[serde(default, skip_serializing_if = "std::collections::BTreeMap::is_empty")]
     pub maps: std::collections::BTreeMap<String, String>,
+}
+
+/// What the realizations are conditioned to at the well nodes (`[totals] conditioning`). The
+/// error correlation is fitted on the held-out wells' normal scores either way.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum WellConditioning {
+    /// Each well's measured value: its level under the predictive distribution of its own node
+    /// (the final model's, which has seen the well), so every realization gives the measured
+    /// value at the well's node.
+    #[default]
+    Measured,
+    /// The well's held-out normal score (its error when its fold was left out), so every
+    /// realization gives the node's value at that score's level.
+    HeldOut,
+}
+
+impl WellConditioning {
+    /// The manifest's word for the rule.
+    pub fn name(self) -> &'static str {
+        match self {
+            WellConditioning::Measured => "measured",
+            WellConditioning::HeldOut => "held_out",
+        }
+    }
 }
 
 fn default_true() -> bool {
