@@ -37,6 +37,8 @@ pub const TOTALS_JSON: &str = "totals.json";
 pub const TOTALS_CSV: &str = "totals.csv";
 /// Seed stream of the totals (mixed with the run's seed).
 const STREAM_TOTALS: u64 = 0x0707_4a15;
+/// Seed stream (under [`STREAM_TOTALS`]) of the randomised levels of measured values at wells.
+const STREAM_MEASURED: u64 = 0x77e1;
 
 /// One total at one step, as `totals.json` holds it.
 #[derive(Clone, Debug, Serialize, Deserialize)]
@@ -250,30 +252,20 @@ pub fn compute(
         .map(|(&(t, s), d)| Layer {
             name: format!("{} {}", model.targets[t].name, project.steps[s].name),
             field: field_of[t].expect("field of a used target"),
-            wells: if opts.condition && section.conditioning == WellConditioning::Measured {
-                value_scores(
+            wells: match (opts.condition, section.conditioning) {
+                (false, _) => Vec::new(),
+                (true, WellConditioning::Measured) => value_scores(
                     &model.calibrated[t],
                     ts,
                     t,
                     grid,
                     s,
                     d as &dyn NodeDistribution,
-                    derive_seed(seed, &[STREAM_TOTALS, 0x77e1]),
-                )
-            } else if opts.condition {
-                scores[t]
-                    .iter()
-                    .filter(|(st, _)| *st == s)
-                    .map(|(_, w)| w.clone())
-                    .collect()
-            } else {
-                Vec::new()
+                    derive_seed(seed, &[STREAM_TOTALS, STREAM_MEASURED]),
+                ),
+                (true, WellConditioning::HeldOut) => at_step(&scores[t], s),
             },
-            calibration: scores[t]
-                .iter()
-                .filter(|(st, _)| *st == s)
-                .map(|(_, w)| w.clone())
-                .collect(),
+            calibration: at_step(&scores[t], s),
             distribution: d as &dyn NodeDistribution,
         })
         .collect();
@@ -344,6 +336,15 @@ pub fn compute(
         output,
         layers,
     }))
+}
+
+/// The scores of `scores` at step `step`.
+fn at_step(scores: &[(usize, WellScore)], step: usize) -> Vec<WellScore> {
+    scores
+        .iter()
+        .filter(|(st, _)| *st == step)
+        .map(|(_, w)| w.clone())
+        .collect()
 }
 
 /// Every conditioned layer's estimated mean normal score, under the run's rule.

@@ -118,6 +118,32 @@ fn the_shift_reports_each_steps_share_before_and_after() {
     assert!((mean_after - s.estimated).abs() < 1e-6);
 }
 
+/// A population with more change than the wells (true prior 0.8 under a training prior of 0.6):
+/// EM finds it (the closed form above), and the applied share is held at the wells' share; a
+/// population with less change is left to EM.
+#[test]
+fn the_applied_share_is_never_above_the_wells_share() {
+    let training = 0.6;
+    let probs = |prior: f64, seed: u64| -> Vec<f64> {
+        population(20_000, prior, seed)
+            .iter()
+            .map(|&(x, _)| posterior(x, training))
+            .collect()
+    };
+    let up = PriorShift::fit(training, &[("m1".to_string(), probs(0.8, 11))]).unwrap();
+    let em = up.em.expect("EM's estimate is kept");
+    assert!((em - 0.8).abs() < 0.02, "{up:?}");
+    assert!(up.held_at_wells);
+    assert_eq!(up.estimated, training);
+    // held at the wells' share, the adjustment leaves every probability as it was
+    assert!((up.apply(0.37) - 0.37).abs() < 1e-15);
+    assert!((up.by_step[0].after - up.by_step[0].before).abs() < 1e-12);
+    let down = PriorShift::fit(training, &[("m1".to_string(), probs(0.3, 12))]).unwrap();
+    assert!(!down.held_at_wells);
+    assert_eq!(Some(down.estimated), down.em);
+    assert!((down.estimated - 0.3).abs() < 0.02, "{down:?}");
+}
+
 /// Mean P50 of `target` over nodes whose truth is exactly zero, over every step.
 fn mean_p50_unchanged(
     survey: &tidemark::project::Survey,
