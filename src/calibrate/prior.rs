@@ -164,7 +164,7 @@ impl PriorShift {
     /// The estimate is held at the training prior when EM puts it above: wells are drilled where
     /// the reservoir changed most, so the nodes' share of change is not larger than the wells'.
     /// An estimate above it comes from probabilities that are not calibrated at the nodes
-    /// (nodes where only the pressure changed can look like the wells' changed rows), which EM
+    /// (ground where the pressure rose ahead of a flood front can look swept), which EM
     /// amplifies. On generated fields EM went above the wells' share for 9 of 78 hurdle targets,
     /// each time with the nodes' true share below the wells' (DEVELOPERS.md, "The nodes' share
     /// of change").
