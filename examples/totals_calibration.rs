@@ -13,10 +13,11 @@
 //! spacings), by step, and by whether the node's P50 is the "no change" atom.
 //!
 //! `cargo run --release --example totals_calibration -- [--seeds N] [--first S] [--out DIR]
-//! [--no-calibration-draw] [--no-atom TARGET]... [--mean zero|estimated]` (defaults: 30 seeds
+//! [--no-calibration-draw] [--no-atom TARGET]... [--mean zero|estimated]
+//! [--conditioning measured|held_out|well_nodes]` (defaults: 30 seeds
 //! from 1, fields under `target/totals_calibration`; `--no-calibration-draw` sets `[totals]
 //! calibration_uncertainty = false` in every manifest, `--no-atom dP` sets `zero_change = false`
-//! for that target, `--mean` sets `[totals] mean`).
+//! for that target, `--mean` sets `[totals] mean`, `--conditioning` `[totals] conditioning`).
 //!
 //! Every case (seed, quantity, step) is also written to `cases.csv` under the output folder:
 //! the truth, the realizations' P10 / P90, mean and sd, and the layer's estimated mean normal
@@ -180,6 +181,7 @@ fn main() {
     let mut draw = true;
     let mut no_atom: Vec<String> = Vec::new();
     let mut mean_rule: Option<String> = None;
+    let mut conditioning: Option<String> = None;
     let mut in_sample: BTreeMap<String, (usize, usize)> = BTreeMap::new();
     let mut cases = String::from(
         "seed,quantity,step,truth,p10,p90,mean,sd,wells_mean,wells_se,wells_plain_mean,wells\n",
@@ -194,6 +196,12 @@ fn main() {
             "--no-calibration-draw" => draw = false,
             "--no-atom" => no_atom.push(args.next().expect("--no-atom TARGET")),
             "--mean" => mean_rule = Some(args.next().expect("--mean zero|estimated")),
+            "--conditioning" => {
+                conditioning = Some(
+                    args.next()
+                        .expect("--conditioning measured|held_out|well_nodes"),
+                )
+            }
             other => panic!("unknown argument {other}"),
         }
     }
@@ -227,6 +235,15 @@ fn main() {
             let key = format!("name = \"{target}\"\n");
             assert!(text.contains(&key), "no target {target}");
             let text = text.replacen(&key, &format!("{key}zero_change = false\n"), 1);
+            std::fs::write(&manifest, text).expect("manifest");
+        }
+        if let Some(rule) = &conditioning {
+            let text = std::fs::read_to_string(&manifest).expect("manifest");
+            let text = text.replacen(
+                "[totals]\n",
+                &format!("[totals]\nconditioning = \"{rule}\"\n"),
+                1,
+            );
             std::fs::write(&manifest, text).expect("manifest");
         }
         if let Some(rule) = &mean_rule {

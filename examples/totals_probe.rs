@@ -221,6 +221,7 @@ fn main() {
                 name: format!("{target} {step}"),
                 field,
                 calibration: wells.clone(),
+                pins: Vec::new(),
                 wells,
                 distribution: dist,
             });

@@ -92,8 +92,9 @@ pub struct TotalsRecord {
     /// The mean of each conditioned layer's well scores ([`crate::spatial::unknown_mean`]).
     #[serde(default)]
     pub means: Vec<MeanSummary>,
-    /// What the realizations reproduce at the well nodes (`[totals] conditioning`): `measured`
-    /// or `held_out` (absent in records written before the choice existed: `held_out`).
+    /// What the realizations reproduce at the well nodes (`[totals] conditioning`):
+    /// `well_nodes`, `measured` or `held_out` (absent in records written before the choice
+    /// existed: `held_out`).
     #[serde(default = "held_out_name")]
     pub conditioning: String,
 }
@@ -246,6 +247,17 @@ pub fn compute(
         )?;
         dists.push(d);
     }
+    let measured = |t: usize, s: usize, d: &CalibratedNodes<'_>| {
+        value_scores(
+            &model.calibrated[t],
+            ts,
+            t,
+            grid,
+            s,
+            d as &dyn NodeDistribution,
+            derive_seed(seed, &[STREAM_TOTALS, STREAM_MEASURED]),
+        )
+    };
     let layers: Vec<Layer<'_>> = layer_keys
         .iter()
         .zip(&dists)
@@ -253,17 +265,13 @@ pub fn compute(
             name: format!("{} {}", model.targets[t].name, project.steps[s].name),
             field: field_of[t].expect("field of a used target"),
             wells: match (opts.condition, section.conditioning) {
-                (false, _) => Vec::new(),
-                (true, WellConditioning::Measured) => value_scores(
-                    &model.calibrated[t],
-                    ts,
-                    t,
-                    grid,
-                    s,
-                    d as &dyn NodeDistribution,
-                    derive_seed(seed, &[STREAM_TOTALS, STREAM_MEASURED]),
-                ),
+                (true, WellConditioning::Measured) => measured(t, s, d),
                 (true, WellConditioning::HeldOut) => at_step(&scores[t], s),
+                _ => Vec::new(),
+            },
+            pins: match (opts.condition, section.conditioning) {
+                (true, WellConditioning::WellNodes) => measured(t, s, d),
+                _ => Vec::new(),
             },
             calibration: at_step(&scores[t], s),
             distribution: d as &dyn NodeDistribution,
@@ -540,7 +548,8 @@ pub struct TotalsSummary {
     pub calibration_draw: Vec<DrawSummary>,
     /// The estimated mean normal score per conditioned layer and whether it was applied.
     pub means: Vec<MeanSummary>,
-    /// What the realizations reproduce at the well nodes: `measured` or `held_out`.
+    /// What the realizations reproduce at the well nodes: `well_nodes`, `measured` or
+    /// `held_out`.
     pub conditioning: String,
 }
 

@@ -349,8 +349,8 @@ pub struct TotalsSection {
     /// `"estimated"` (unknown, estimated from the wells per step; [`super::unknown_mean`]).
     #[serde(default)]
     pub mean: MeanRule,
-    /// What the realizations reproduce at the well nodes: `"measured"` (default) or
-    /// `"held_out"` ([`WellConditioning`]).
+    /// What the realizations reproduce at the well nodes: `"well_nodes"` (default),
+    /// `"measured"` or `"held_out"` ([`WellConditioning`]).
     #[serde(default)]
     pub conditioning: WellConditioning,
     /// The totals.
@@ -367,14 +367,19 @@ pub struct TotalsSection {
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
 pub enum WellConditioning {
-    /// Each well's measured value: its level under the predictive distribution of its own node
-    /// (the final model's, which has seen the well), so every realization gives the measured
-    /// value at the well's node.
-    #[default]
+    /// Each well's measured value, by kriging: its level under the predictive distribution of
+    /// its own node (the final model's, which has seen the well), so every realization gives
+    /// the measured value at the well's node and the nodes around it follow.
     Measured,
     /// The well's held-out normal score (its error when its fold was left out), so every
     /// realization gives the node's value at that score's level.
     HeldOut,
+    /// Each well's measured value at its own node only: the node takes the value (its level as
+    /// under [`WellConditioning::Measured`]) and the field elsewhere is not conditioned, because
+    /// neither score tells the final model's errors between the wells (see DEVELOPERS.md,
+    /// "Spatial errors and field totals").
+    #[default]
+    WellNodes,
 }
 
 impl WellConditioning {
@@ -383,6 +388,7 @@ impl WellConditioning {
         match self {
             WellConditioning::Measured => "measured",
             WellConditioning::HeldOut => "held_out",
+            WellConditioning::WellNodes => "well_nodes",
         }
     }
 }
@@ -446,6 +452,10 @@ pub struct Layer<'a> {
     /// The held-out wells' normal scores at this step that the calibration rests on, for the
     /// calibration draw ([`TotalsSettings::calibration_draw`]); may be empty (no draw).
     pub calibration: Vec<WellScore>,
+    /// Scores that set their own node only (grid-local metres; wells sharing a node give their
+    /// mean), after the conditioning and the draws: the node takes that score in every
+    /// realization and no other node moves. May be empty.
+    pub pins: Vec<WellScore>,
     /// The nodes' predictive distributions.
     pub distribution: &'a dyn NodeDistribution,
 }
@@ -733,6 +743,40 @@ struct SumPrep {
     weights: Vec<f64>,
 }
 
+/// The nodes of `pins` (nearest node of each location; locations off the lattice are left out)
+/// with the mean score of the pins on each. Errors name a pin with a non-finite location or score.
+fn pinned_nodes(
+    layer: &str,
+    lattice: Lattice,
+    pins: &[WellScore],
+) -> Result<Vec<(usize, f64)>, SpatialError> {
+    let mut out: Vec<(usize, f64, usize)> = Vec::new();
+    for w in pins {
+        if !(w.x.is_finite() && w.y.is_finite() && w.score.is_finite()) {
+            return Err(SpatialError::Input {
+                what: format!("well {} of {layer}", w.name),
+                problem: format!(
+                    "location and score must be finite, got x {}, y {}, score {}",
+                    w.x, w.y, w.score
+                ),
+            });
+        }
+        let (fi, fj) = ((w.x / lattice.dx).round(), (w.y / lattice.dy).round());
+        if fi < 0.0 || fj < 0.0 || fi >= lattice.nx as f64 || fj >= lattice.ny as f64 {
+            continue;
+        }
+        let node = fj as usize * lattice.nx + fi as usize;
+        match out.iter_mut().find(|(n, _, _)| *n == node) {
+            Some(e) => {
+                e.1 += w.score;
+                e.2 += 1;
+            }
+            None => out.push((node, w.score, 1)),
+        }
+    }
+    Ok(out.into_iter().map(|(n, s, c)| (n, s / c as f64)).collect())
+}
+
 /// A layer's calibration draw: its wells' scores, the share of each node left free by the
 /// wells and the unit-variance factors.
 struct Draw {
@@ -744,6 +788,8 @@ struct Draw {
 struct PreparedLayer<'a> {
     field: usize,
     conditioning: Conditioning,
+    /// `(node, score)` set after everything else ([`Layer::pins`]).
+    pins: Vec<(usize, f64)>,
     draw: Option<Draw>,
     /// The estimated mean and the share of every node the wells leave free (rule
     /// [`MeanRule::Estimated`] with wells only).
@@ -872,6 +918,9 @@ impl<'a> Engine<'a> {
                         });
                         let d = draw.scores.shift(w);
                         apply_shift(&mut z, d, &draw.free, &draw.factor);
+                    }
+                    for &(node, score) in &layer.pins {
+                        z[node] = score;
                     }
                     self.evaluate(li, layer, &z, r, t, area_offsets[li], &mut out);
                 }
@@ -1226,6 +1275,7 @@ pub fn simulate(
         layers.push(PreparedLayer {
             field: l.field,
             conditioning,
+            pins: pinned_nodes(&l.name, lattice, &l.pins)?,
             draw,
             unknown_mean,
             distribution: dist,

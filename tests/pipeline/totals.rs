@@ -242,14 +242,59 @@ fn unconditioned_realizations_follow_the_node_bands_and_exceedance_maps() {
     }
 }
 
-/// The default conditioning (`measured`): at a lone well node every realization gives the
-/// well's measured value, wherever that value lies inside the node's predictive distribution.
+/// Under both rules that use the measured values (`well_nodes`, the default, and `measured`,
+/// by kriging) every realization gives a lone well's measured value at its node, wherever that
+/// value lies inside the node's predictive distribution.
 #[test]
 fn realizations_give_the_measured_value_at_every_well_node() {
+    use tidemark::spatial::totals::WellConditioning;
     let l = loaded();
-    let r = 20;
-    let c = compute(l, r, r, true);
+    let c = compute(l, 20, 20, true);
+    assert_eq!(c.record.conditioning, "well_nodes");
+    measured_values_at_well_nodes(l, &c);
+    let mut survey = l.survey.clone();
+    survey.project.totals.as_mut().expect("totals").conditioning = WellConditioning::Measured;
+    let c = compute_on(&survey, l, 20, 20, true);
     assert_eq!(c.record.conditioning, "measured");
+    measured_values_at_well_nodes(l, &c);
+}
+
+/// Under the default rule the wells set their own nodes and nothing else: every other node of
+/// every kept realization is the unconditioned realization's value, bit for bit.
+#[test]
+fn well_nodes_move_only_the_well_nodes() {
+    let l = loaded();
+    let pinned = compute(l, 20, 20, true);
+    let free = compute(l, 20, 20, false);
+    let grid = &l.survey.project.grid;
+    let wells: std::collections::HashSet<usize> =
+        l.ts.xy
+            .iter()
+            .map(|&[x, y]| {
+                let (fi, fj) = grid.fractional_ij(x, y);
+                fj.round() as usize * grid.nx + fi.round() as usize
+            })
+            .collect();
+    let (mut same, mut moved) = (0usize, 0usize);
+    for (a, b) in pinned.output.kept.iter().zip(&free.output.kept) {
+        for (i, (va, vb)) in a.values.iter().zip(&b.values).enumerate() {
+            if wells.contains(&i) {
+                moved += (va.to_bits() != vb.to_bits()) as usize;
+            } else {
+                assert_eq!(va.to_bits(), vb.to_bits(), "node {i} moved");
+                same += 1;
+            }
+        }
+    }
+    assert!(
+        same > 10_000 && moved > 100,
+        "{same} kept, {moved} well nodes moved"
+    );
+}
+
+/// Checks that every lone well node of every kept realization of `c` holds the measured value.
+fn measured_values_at_well_nodes(l: &Loaded, c: &Computed) {
+    let r = 20;
     let grid = &l.survey.project.grid;
     let nl = c.layers.len();
     let (mut checked, mut equal, mut outside) = (0, 0, 0);

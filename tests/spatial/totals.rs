@@ -116,6 +116,7 @@ fn input<'a>(
                 name: "dSw m1".into(),
                 field: 0,
                 calibration: wells.clone(),
+                pins: Vec::new(),
                 wells,
                 distribution: hurdle,
             },
@@ -124,6 +125,7 @@ fn input<'a>(
                 field: 1,
                 wells: Vec::new(),
                 calibration: Vec::new(),
+                pins: Vec::new(),
                 distribution: closure,
             },
         ],
@@ -412,6 +414,7 @@ fn comonotone_rule_and_conventions_by_hand() {
                 field: 0,
                 wells: Vec::new(),
                 calibration: Vec::new(),
+                pins: Vec::new(),
                 distribution: &dist,
             }],
             quantities: vec![

@@ -249,6 +249,7 @@ fn engine_input<'a>(
             name: "dSw m1".into(),
             field: 0,
             calibration: wells.clone(),
+            pins: Vec::new(),
             wells,
             distribution: dist,
         }],
