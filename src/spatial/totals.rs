@@ -403,6 +403,14 @@ impl TotalsSection {
         if self.realizations < 2 {
             return Err(bad("totals.realizations", ">= 2", self.realizations));
         }
+        if self.mean == MeanRule::Estimated && self.conditioning == WellConditioning::WellNodes {
+            return Err(bad(
+                "totals.mean",
+                "\"zero\" unless the wells are kriged in (totals.conditioning = \"measured\" or \
+                 \"held_out\"): \"estimated\" estimates the mean of the kriged wells' scores",
+                "\"estimated\" with totals.conditioning = \"well_nodes\"",
+            ));
+        }
         if self.keep_realizations > self.realizations {
             return Err(bad(
                 "totals.keep_realizations",

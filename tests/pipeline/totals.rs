@@ -490,6 +490,11 @@ fn manifest_errors_name_the_totals_key() {
             "totals.realizations",
         ),
         (
+            "realizations = 200",
+            "realizations = 200\nmean = \"estimated\"",
+            "totals.mean",
+        ),
+        (
             "quantity = \"swept_area\"",
             "quantity = \"swept_area\"\nsteps = [\"m9\"]",
             "totals.quantities[1].steps[0]",
