@@ -6,9 +6,12 @@
 //! part (the "no change" hurdle shape), every parameter varying smoothly over the grid.
 //!
 //! Run with `cargo run --release --example totals_probe [-- REALIZATIONS...]
-//! [--calibration-draw] [--mean-estimated]` (default: 50 then 200; the first flag turns on the
-//! per-realization calibration draw, the wells' scores standing for the held-out ones; the
-//! second conditions with an unknown mean per layer, `[totals] mean = "estimated"`). For each count it prints the wall seconds, the CPU seconds of the process and the peak
+//! [--calibration-draw] [--kriged] [--mean-estimated]` (default: 50 then 200; the wells set
+//! their own nodes only, as the run's default `[totals] conditioning = "well_nodes"`; the first
+//! flag turns on the per-realization calibration draw, the wells' scores standing for the
+//! held-out ones; `--kriged` conditions the fields to the wells by kriging instead
+//! (`conditioning = "measured"`); `--mean-estimated`, with `--kriged`, conditions with an
+//! unknown mean per layer, `[totals] mean = "estimated"`). For each count it prints the wall seconds, the CPU seconds of the process and the peak
 //! resident memory during that run (VmHWM from `/proc/self/status`, reset before each run through
 //! `/proc/self/clear_refs`), so one can see that memory does not grow with the count.
 
@@ -111,9 +114,10 @@ fn main() {
     let args: Vec<String> = std::env::args().skip(1).collect();
     let draw = args.iter().any(|a| a == "--calibration-draw");
     let estimated = args.iter().any(|a| a == "--mean-estimated");
+    let kriged = args.iter().any(|a| a == "--kriged");
     let counts: Vec<usize> = args
         .iter()
-        .filter(|a| *a != "--calibration-draw" && *a != "--mean-estimated")
+        .filter(|a| !a.starts_with("--"))
         .map(|a| a.parse().expect("realization counts are whole numbers"))
         .collect();
     let counts = if counts.is_empty() {
@@ -221,8 +225,8 @@ fn main() {
                 name: format!("{target} {step}"),
                 field,
                 calibration: wells.clone(),
-                pins: Vec::new(),
-                wells,
+                pins: if kriged { Vec::new() } else { wells.clone() },
+                wells: if kriged { wells } else { Vec::new() },
                 distribution: dist,
             });
         }
