@@ -162,6 +162,27 @@ fn cholesky_solve(l: &[f64], n: usize, b: &mut [f64]) {
     }
 }
 
+/// The lattice node `(i, j)` nearest to well `w`, `None` when it lies off the lattice. Errors
+/// name a well (of the set `layer`) with a non-finite coordinate or score.
+pub(crate) fn nearest_node(
+    layer: &str,
+    lat: &Lattice,
+    w: &WellScore,
+) -> Result<Option<(usize, usize)>, SpatialError> {
+    if !(w.x.is_finite() && w.y.is_finite() && w.score.is_finite()) {
+        return Err(SpatialError::Input {
+            what: format!("well {} of {layer}", w.name),
+            problem: format!(
+                "location and score must be finite, got x {}, y {}, score {}",
+                w.x, w.y, w.score
+            ),
+        });
+    }
+    let (fi, fj) = ((w.x / lat.dx).round(), (w.y / lat.dy).round());
+    let inside = fi >= 0.0 && fj >= 0.0 && fi < lat.nx as f64 && fj < lat.ny as f64;
+    Ok(inside.then_some((fi as usize, fj as usize)))
+}
+
 impl Conditioning {
     /// Places `wells` on the nodes of `table`'s lattice, merges wells sharing a node and
     /// factorises the kriging system. `layer` names the set in errors. Errors name a well with a
@@ -176,22 +197,10 @@ impl Conditioning {
         let mut nodes: Vec<(usize, usize)> = Vec::new();
         let mut sums: Vec<(f64, usize, Vec<&str>)> = Vec::new();
         for w in wells {
-            if !(w.x.is_finite() && w.y.is_finite() && w.score.is_finite()) {
-                return Err(SpatialError::Input {
-                    what: format!("well {} of {layer}", w.name),
-                    problem: format!(
-                        "location and score must be finite, got x {}, y {}, score {}",
-                        w.x, w.y, w.score
-                    ),
-                });
-            }
-            let fi = (w.x / lat.dx).round();
-            let fj = (w.y / lat.dy).round();
-            if fi < 0.0 || fj < 0.0 || fi >= lat.nx as f64 || fj >= lat.ny as f64 {
+            let Some(node) = nearest_node(layer, &lat, w)? else {
                 report.outside.push(w.name.clone());
                 continue;
-            }
-            let node = (fi as usize, fj as usize);
+            };
             match nodes.iter().position(|&n| n == node) {
                 Some(k) => {
                     sums[k].0 += w.score;

@@ -54,7 +54,7 @@ use serde::{Deserialize, Serialize};
 
 use super::bootstrap::{LayerScores, apply_shift, dirichlet_weights_seeded, unit_variance_factors};
 use super::field::{CirculantField, EmbeddingReport, EmbeddingSettings, Workspace};
-use super::krige::{Conditioning, ConditioningReport, LagTable, WellScore};
+use super::krige::{Conditioning, ConditioningReport, LagTable, WellScore, nearest_node};
 use super::model::VariogramModel;
 use super::normal::{self, LEVEL_MAX, LEVEL_MIN};
 use super::unknown_mean::{MeanEstimate, MeanRule, add_mean, drawn_mean};
@@ -760,20 +760,10 @@ fn pinned_nodes(
 ) -> Result<Vec<(usize, f64)>, SpatialError> {
     let mut out: Vec<(usize, f64, usize)> = Vec::new();
     for w in pins {
-        if !(w.x.is_finite() && w.y.is_finite() && w.score.is_finite()) {
-            return Err(SpatialError::Input {
-                what: format!("well {} of {layer}", w.name),
-                problem: format!(
-                    "location and score must be finite, got x {}, y {}, score {}",
-                    w.x, w.y, w.score
-                ),
-            });
-        }
-        let (fi, fj) = ((w.x / lattice.dx).round(), (w.y / lattice.dy).round());
-        if fi < 0.0 || fj < 0.0 || fi >= lattice.nx as f64 || fj >= lattice.ny as f64 {
+        let Some((i, j)) = nearest_node(layer, &lattice, w)? else {
             continue;
-        }
-        let node = fj as usize * lattice.nx + fi as usize;
+        };
+        let node = j * lattice.nx + i;
         match out.iter_mut().find(|(n, _, _)| *n == node) {
             Some(e) => {
                 e.1 += w.score;
