@@ -129,13 +129,7 @@ fn unconditioned_realizations_follow_the_node_bands_and_exceedance_maps() {
     // kept maps are ordered by realization, then layer
     assert_eq!(c.output.kept.len(), r * nl);
     for (li, (step, target)) in c.layers.iter().enumerate() {
-        let s = l.survey.project.step_index(step).unwrap();
-        let t = l
-            .model
-            .targets
-            .iter()
-            .position(|x| &x.name == target)
-            .unwrap();
+        let (s, t) = layer_of(l, step, target);
         let tm = &l.kept[s].targets[t];
         let (mut nodes, mut misses) = (0, 0);
         for i in 0..n {
@@ -292,20 +286,31 @@ fn well_nodes_move_only_the_well_nodes() {
     );
 }
 
+/// The step and target indices of the layer named `(step, target)`.
+fn layer_of(l: &Loaded, step: &str, target: &str) -> (usize, usize) {
+    let s = l.survey.project.step_index(step).unwrap();
+    let t = l
+        .model
+        .targets
+        .iter()
+        .position(|x| x.name == target)
+        .unwrap();
+    (s, t)
+}
+
+/// Whether node `node` of layer `li` is within `tol` of `want` in every kept realization of `c`.
+fn in_every_realization(c: &Computed, li: usize, node: usize, want: f64, tol: f64) -> bool {
+    let nl = c.layers.len();
+    let kept = c.output.kept.len() / nl;
+    kept > 0 && (0..kept).all(|k| (c.output.kept[k * nl + li].values[node] - want).abs() <= tol)
+}
+
 /// Checks that every lone well node of every kept realization of `c` holds the measured value.
 fn measured_values_at_well_nodes(l: &Loaded, c: &Computed) {
-    let r = 20;
     let grid = &l.survey.project.grid;
-    let nl = c.layers.len();
     let (mut checked, mut equal, mut outside) = (0, 0, 0);
     for (li, (step, target)) in c.layers.iter().enumerate() {
-        let s = l.survey.project.step_index(step).unwrap();
-        let t = l
-            .model
-            .targets
-            .iter()
-            .position(|x| &x.name == target)
-            .unwrap();
+        let (s, t) = layer_of(l, step, target);
         let rows = tidemark::pipeline::fit::target_rows(&l.ts, t);
         let x = sample::node_features(&l.survey, s);
         let tm = &l.kept[s].targets[t];
@@ -334,10 +339,7 @@ fn measured_values_at_well_nodes(l: &Loaded, c: &Computed) {
                 continue;
             }
             checked += 1;
-            equal += (0..r).all(|k| {
-                let v = c.output.kept[k * nl + li].values[node];
-                (v - measured).abs() <= 1e-6 * range
-            }) as usize;
+            equal += in_every_realization(c, li, node, measured, 1e-6 * range) as usize;
         }
     }
     assert!(checked > 50, "{checked} wells checked ({outside} outside)");
@@ -360,16 +362,9 @@ fn held_out_conditioning_reproduces_the_scores() {
     let c = compute_on(&survey, l, r, r, true);
     assert_eq!(c.record.conditioning, "held_out");
     let grid = &l.survey.project.grid;
-    let nl = c.layers.len();
     let (mut checked, mut equal) = (0, 0);
     for (li, (step, target)) in c.layers.iter().enumerate() {
-        let s = l.survey.project.step_index(step).unwrap();
-        let t = l
-            .model
-            .targets
-            .iter()
-            .position(|x| &x.name == target)
-            .unwrap();
+        let (s, t) = layer_of(l, step, target);
         let scores: Vec<_> = well_scores(&l.model.calibrated[t], &l.ts, t, grid)
             .into_iter()
             .filter(|(st, _)| *st == s)
@@ -397,11 +392,7 @@ fn held_out_conditioning_reproduces_the_scores() {
             let want = d.quantile(node, normal::level(w.score));
             let range = tm.hi[node] - tm.lo[node];
             checked += 1;
-            let all = (0..r).all(|k| {
-                let v = c.output.kept[k * nl + li].values[node];
-                (v - want).abs() <= 1e-6 * range.max(1e-12)
-            });
-            equal += all as usize;
+            equal += in_every_realization(&c, li, node, want, 1e-6 * range.max(1e-12)) as usize;
         }
     }
     assert!(checked > 50, "{checked} wells checked");
@@ -625,16 +616,9 @@ fn an_estimated_mean_is_reported_applied_and_thread_independent() {
     // conditioning stays exact: at a lone well node every realization gives the node's value at
     // the well's score
     let grid = &survey.project.grid;
-    let nl = est.layers.len();
     let (mut checked, mut equal) = (0, 0);
     for (li, (step, target)) in est.layers.iter().enumerate() {
-        let s = survey.project.step_index(step).unwrap();
-        let t = l
-            .model
-            .targets
-            .iter()
-            .position(|x| &x.name == target)
-            .unwrap();
+        let (s, t) = layer_of(l, step, target);
         let scores: Vec<_> = well_scores(&l.model.calibrated[t], &l.ts, t, grid)
             .into_iter()
             .filter(|(st, _)| *st == s)
@@ -656,10 +640,8 @@ fn an_estimated_mean_is_reported_applied_and_thread_independent() {
             }
             let want = d.quantile(node, normal::level(w.score));
             let range = tm.hi[node] - tm.lo[node];
-            let ok = (0..20)
-                .all(|k| (est.output.kept[k * nl + li].values[node] - want).abs() <= 1e-6 * range);
             checked += 1;
-            equal += ok as usize;
+            equal += in_every_realization(&est, li, node, want, 1e-6 * range) as usize;
         }
     }
     assert!(checked > 50, "{checked} wells checked");
