@@ -19,7 +19,9 @@
 //! reports how far node coverage and mean width moved.
 //!
 //! Run: `cargo run --release --example calib_bench -- [--seeds 1,2,3] [--nx 120] [--ny 100]
-//! [--wells 45] [--steps 4] [--snr 12] [--perturb 1e-6] [--json FILE] [--dir FOLDER]`.
+//! [--wells 45] [--steps 4] [--snr 12] [--perturb 1e-6] [--json FILE] [--dir FOLDER]
+//! [--append TOML]`. `--append` adds the file's lines to every generated manifest (e.g. a
+//! `[calibration]` table), so that a settings variant is measured on the same fields.
 //! Fields and results are kept under FOLDER (default `target/calib_bench`), one folder per seed.
 
 use serde_json::{Value, json};
@@ -47,12 +49,14 @@ struct Options {
     perturb: Option<f64>,
     json: Option<PathBuf>,
     dir: PathBuf,
+    /// Manifest lines appended to every generated field's `project.toml` (a settings variant).
+    append: Option<String>,
 }
 
 fn usage() -> ! {
     eprintln!(
         "usage: calib_bench [--seeds 1,2,3] [--nx 120] [--ny 100] [--wells 45] [--steps 4] \
-         [--snr 12] [--perturb EPS] [--json FILE] [--dir FOLDER]"
+         [--snr 12] [--perturb EPS] [--json FILE] [--dir FOLDER] [--append TOML]"
     );
     std::process::exit(2)
 }
@@ -68,6 +72,7 @@ fn parse() -> Options {
         perturb: None,
         json: None,
         dir: PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("target/calib_bench"),
+        append: None,
     };
     let mut args = std::env::args().skip(1);
     while let Some(a) = args.next() {
@@ -93,6 +98,13 @@ fn parse() -> Options {
             "--perturb" => o.perturb = Some(num("--perturb", value())),
             "--json" => o.json = Some(PathBuf::from(value())),
             "--dir" => o.dir = PathBuf::from(value()),
+            "--append" => {
+                let file = value();
+                o.append = Some(std::fs::read_to_string(&file).unwrap_or_else(|e| {
+                    eprintln!("--append: cannot read {file}: {e}");
+                    usage()
+                }))
+            }
             _ => usage(),
         }
     }
@@ -431,6 +443,12 @@ fn main() {
         write_project(&field, &settings, &field_dir).expect("write the field");
         let t_synth = t0.elapsed().as_secs_f64();
         let manifest = field_dir.join("project.toml");
+        if let Some(extra) = &o.append {
+            let mut text = std::fs::read_to_string(&manifest).expect("read the manifest");
+            text.push('\n');
+            text.push_str(extra);
+            std::fs::write(&manifest, text).expect("extend the manifest");
+        }
         let t1 = Instant::now();
         let opts = RunOptions {
             formats: Formats {
