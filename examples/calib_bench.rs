@@ -51,12 +51,16 @@ struct Options {
     dir: PathBuf,
     /// Manifest lines appended to every generated field's `project.toml` (a settings variant).
     append: Option<String>,
+    /// Observation wells added to the flowing wells (placed at random, `SynthSettings::observers`).
+    observers: usize,
+    /// Row weight written for observation wells (a `weight` column; 1 for the other wells).
+    observer_weight: f64,
 }
 
 fn usage() -> ! {
     eprintln!(
         "usage: calib_bench [--seeds 1,2,3] [--nx 120] [--ny 100] [--wells 45] [--steps 4] \
-         [--snr 12] [--perturb EPS] [--json FILE] [--dir FOLDER] [--append TOML]"
+         [--snr 12] [--perturb EPS] [--json FILE] [--dir FOLDER] [--append TOML] [--observers N] [--observer-weight W]"
     );
     std::process::exit(2)
 }
@@ -73,6 +77,8 @@ fn parse() -> Options {
         json: None,
         dir: PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("target/calib_bench"),
         append: None,
+        observers: 0,
+        observer_weight: 1.0,
     };
     let mut args = std::env::args().skip(1);
     while let Some(a) = args.next() {
@@ -98,6 +104,8 @@ fn parse() -> Options {
             "--perturb" => o.perturb = Some(num("--perturb", value())),
             "--json" => o.json = Some(PathBuf::from(value())),
             "--dir" => o.dir = PathBuf::from(value()),
+            "--observers" => o.observers = num("--observers", value()),
+            "--observer-weight" => o.observer_weight = num("--observer-weight", value()),
             "--append" => {
                 let file = value();
                 o.append = Some(std::fs::read_to_string(&file).unwrap_or_else(|e| {
@@ -112,6 +120,24 @@ fn parse() -> Options {
         usage()
     }
     o
+}
+
+/// Adds a `weight` column to a generated `wells.csv`: `w` for observation wells, 1 for the rest.
+fn weigh_observers(path: &Path, w: f64) {
+    let text = std::fs::read_to_string(path).expect("read wells.csv");
+    let mut lines = text.lines();
+    let header = lines.next().expect("wells.csv has a header");
+    let kind = header
+        .split(',')
+        .position(|c| c == "kind")
+        .expect("wells.csv has a kind column");
+    let mut out = format!("{header},weight\n");
+    for line in lines.filter(|l| !l.is_empty()) {
+        let is_observer = line.split(',').nth(kind) == Some("observer");
+        let weight = if is_observer { w } else { 1.0 };
+        out.push_str(&format!("{line},{weight}\n"));
+    }
+    std::fs::write(path, out).expect("write wells.csv");
 }
 
 /// Fits the model on training attributes multiplied by `1 + eps u` (u uniform in [-1, 1], drawn
@@ -428,6 +454,7 @@ fn main() {
             steps: o.steps,
             snr: o.snr,
             gas_cap: true,
+            observers: o.observers,
             ..SynthSettings::default()
         };
         let root = o.dir.join(format!("seed-{seed}"));
@@ -443,6 +470,9 @@ fn main() {
         write_project(&field, &settings, &field_dir).expect("write the field");
         let t_synth = t0.elapsed().as_secs_f64();
         let manifest = field_dir.join("project.toml");
+        if o.observer_weight != 1.0 {
+            weigh_observers(&field_dir.join("wells.csv"), o.observer_weight);
+        }
         if let Some(extra) = &o.append {
             let mut text = std::fs::read_to_string(&manifest).expect("read the manifest");
             text.push('\n');
