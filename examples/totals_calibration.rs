@@ -14,10 +14,11 @@
 //!
 //! `cargo run --release --example totals_calibration -- [--seeds N] [--first S] [--out DIR]
 //! [--no-calibration-draw] [--no-atom TARGET]... [--mean zero|estimated]
-//! [--conditioning measured|held_out|well_nodes]` (defaults: 30 seeds
+//! [--conditioning measured|held_out|well_nodes] [--observers N]` (defaults: 30 seeds
 //! from 1, fields under `target/totals_calibration`; `--no-calibration-draw` sets `[totals]
 //! calibration_uncertainty = false` in every manifest, `--no-atom dP` sets `zero_change = false`
-//! for that target, `--mean` sets `[totals] mean`, `--conditioning` `[totals] conditioning`).
+//! for that target, `--mean` sets `[totals] mean`, `--conditioning` `[totals] conditioning`,
+//! `--observers` adds that many observation wells at random places to the 44 flowing wells).
 //!
 //! Every case (seed, quantity, step) is also written to `cases.csv` under the output folder:
 //! the truth, the realizations' P10 / P90, mean and sd, and the layer's estimated mean normal
@@ -182,6 +183,7 @@ fn main() {
     let mut no_atom: Vec<String> = Vec::new();
     let mut mean_rule: Option<String> = None;
     let mut conditioning: Option<String> = None;
+    let mut observers = 0usize;
     let mut in_sample: BTreeMap<String, (usize, usize)> = BTreeMap::new();
     let mut cases = String::from(
         "seed,quantity,step,truth,p10,p90,mean,sd,wells_mean,wells_se,wells_plain_mean,wells\n",
@@ -194,6 +196,9 @@ fn main() {
             "--first" => first = args.next().and_then(|v| v.parse().ok()).expect("--first S"),
             "--out" => out = PathBuf::from(args.next().expect("--out DIR")),
             "--no-calibration-draw" => draw = false,
+            "--observers" => {
+                observers = args.next().and_then(|v| v.parse().ok()).expect("--observers N")
+            }
             "--no-atom" => no_atom.push(args.next().expect("--no-atom TARGET")),
             "--mean" => mean_rule = Some(args.next().expect("--mean zero|estimated")),
             "--conditioning" => {
@@ -218,6 +223,7 @@ fn main() {
             spacing: 50.0,
             wells: 44,
             steps: 3,
+            observers,
             ..SynthSettings::default()
         };
         let field_dir = out.join(format!("seed{seed}/field"));
