@@ -48,7 +48,7 @@ pub fn build_report(p: ReportParts) -> ReportInput {
         project: p.summary.project.clone(),
         run: p.run,
         convention: convention_text(model.convention, model.level),
-        cautions: super::CAUTIONS.iter().map(|s| s.to_string()).collect(),
+        cautions: p.summary.cautions.clone(),
         xy_unit: "m".into(),
         steps: model.step_names.clone(),
         targets,

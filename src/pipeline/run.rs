@@ -179,7 +179,8 @@ pub fn run(opts: &RunOptions) -> Result<RunOutcome, PipelineError> {
     }
 
     let warnings = warnings(run_warnings, &model, &summary);
-    let record = run_record(opts, project, seed, &model, &stages, warnings, &w.written);
+    let mut record = run_record(opts, project, seed, &model, &stages, warnings, &w.written);
+    record.cautions = summary.cautions.clone();
     let out = w.root.clone();
     w.finish(&record)?;
     stages.clear();

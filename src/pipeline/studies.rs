@@ -246,7 +246,7 @@ pub fn summary(
         applicability_threshold: model.applicability.threshold,
         wells_vs_nodes: model.wells_vs_nodes.clone(),
         infill: infill.to_vec(),
-        cautions: super::CAUTIONS.iter().map(|s| s.to_string()).collect(),
+        cautions: super::cautions(&well_kinds(survey, &ts.well_names)),
         totals: None,
     }
 }
@@ -569,4 +569,19 @@ pub fn target_skill(
         assess(&input, &settings).ok(),
         assess_by_step(&input, &step, &step_names, &settings).unwrap_or_default(),
     )
+}
+
+/// The kind of each named well: the first record of that well with a kind, `None` if none has.
+fn well_kinds(survey: &Survey, names: &[String]) -> Vec<Option<crate::io::wells::WellKind>> {
+    let mut kinds: std::collections::HashMap<&str, crate::io::wells::WellKind> =
+        std::collections::HashMap::new();
+    for rec in &survey.wells {
+        if let Some(k) = rec.kind {
+            kinds.entry(rec.well.as_str()).or_insert(k);
+        }
+    }
+    names
+        .iter()
+        .map(|n| kinds.get(n.as_str()).copied())
+        .collect()
 }
