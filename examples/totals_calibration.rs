@@ -197,7 +197,10 @@ fn main() {
             "--out" => out = PathBuf::from(args.next().expect("--out DIR")),
             "--no-calibration-draw" => draw = false,
             "--observers" => {
-                observers = args.next().and_then(|v| v.parse().ok()).expect("--observers N")
+                observers = args
+                    .next()
+                    .and_then(|v| v.parse().ok())
+                    .expect("--observers N")
             }
             "--no-atom" => no_atom.push(args.next().expect("--no-atom TARGET")),
             "--mean" => mean_rule = Some(args.next().expect("--mean zero|estimated")),
