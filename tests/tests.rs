@@ -10,3 +10,4 @@ mod report;
 mod skill;
 mod spatial;
 mod synth;
+mod threads;

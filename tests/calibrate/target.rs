@@ -368,11 +368,7 @@ fn ten_wells_give_a_final_band_but_no_held_out_one() {
 fn same_numbers_with_one_or_two_threads() {
     let f = field(25, 0.1, 8);
     let run = |threads: usize| {
-        let pool = rayon::ThreadPoolBuilder::new()
-            .num_threads(threads)
-            .build()
-            .unwrap();
-        pool.install(|| {
+        crate::threads::in_pool(threads, || {
             let cal = calibrate_target(&data(&f), &settings()).unwrap();
             let p = cal.predict(f.x.view()).unwrap();
             (serde_json::to_string(&cal.diagnostics).unwrap(), p)

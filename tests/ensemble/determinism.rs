@@ -4,14 +4,7 @@ use ndarray::{Array2, Axis, ShapeBuilder};
 use tidemark::ensemble::{BoostSettings, Forest, ForestSettings, Loss, fit_quantile_boosters};
 
 use super::common::{friedman1, permutation};
-
-fn in_pool<T: Send>(threads: usize, f: impl FnOnce() -> T + Send) -> T {
-    rayon::ThreadPoolBuilder::new()
-        .num_threads(threads)
-        .build()
-        .unwrap()
-        .install(f)
-}
+use crate::threads::in_pool;
 
 fn multi_target(n: usize, seed: u64) -> (Array2<f64>, Array2<f64>) {
     let (mut x, y) = friedman1(n, 1.0, seed);

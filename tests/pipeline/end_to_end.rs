@@ -355,12 +355,7 @@ fn same_seed_same_maps_and_tiles_put_together_equal_the_whole() {
         geotiff: true,
         xyz: false,
     };
-    rayon::ThreadPoolBuilder::new()
-        .num_threads(1)
-        .build()
-        .unwrap()
-        .install(|| run(&opts))
-        .expect("second run");
+    crate::threads::in_pool(1, || run(&opts)).expect("second run");
     for tif in tifs_under(&f.out.join("maps")) {
         let rel = tif.strip_prefix(&f.out).unwrap();
         let a = std::fs::read(&tif).unwrap();

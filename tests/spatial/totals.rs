@@ -321,11 +321,7 @@ fn same_numbers_for_any_thread_count_and_chunk() {
     let weights: Vec<f64> = (0..n).map(|i| 1.0 + (i % 5) as f64).collect();
     let inp = input(&hurdle, &normal_nodes, &weights, wells());
     let run = |threads: usize, chunk: usize| {
-        let pool = rayon::ThreadPoolBuilder::new()
-            .num_threads(threads)
-            .build()
-            .unwrap();
-        pool.install(|| {
+        crate::threads::in_pool(threads, || {
             simulate(
                 &inp,
                 &TotalsSettings {
@@ -538,11 +534,7 @@ fn the_calibration_draw_keeps_node_distributions_and_widens_totals() {
     inp.layers[0].wells.clear();
     let r = 400;
     let run = |draw: bool, threads: usize| {
-        let pool = rayon::ThreadPoolBuilder::new()
-            .num_threads(threads)
-            .build()
-            .unwrap();
-        pool.install(|| {
+        crate::threads::in_pool(threads, || {
             simulate(
                 &inp,
                 &TotalsSettings {

@@ -274,11 +274,7 @@ fn run(
     keep: usize,
     threads: usize,
 ) -> TotalsOutput {
-    let pool = rayon::ThreadPoolBuilder::new()
-        .num_threads(threads)
-        .build()
-        .unwrap();
-    pool.install(|| {
+    crate::threads::in_pool(threads, || {
         simulate(
             inp,
             &TotalsSettings {

@@ -192,13 +192,7 @@ fn same_seed_gives_identical_files_and_different_seeds_differ() {
 #[test]
 fn thread_count_does_not_change_the_field() {
     let s = small(3);
-    let run = |threads: usize| {
-        rayon::ThreadPoolBuilder::new()
-            .num_threads(threads)
-            .build()
-            .unwrap()
-            .install(|| synth::generate(&s).unwrap())
-    };
+    let run = |threads: usize| crate::threads::in_pool(threads, || synth::generate(&s).unwrap());
     let (one, three) = (run(1), run(3));
     assert_eq!(one.attributes, three.attributes);
     assert_eq!(one.truth, three.truth);

@@ -247,13 +247,7 @@ fn the_culmination_is_off_by_default_and_its_settings_then_change_nothing() {
 #[test]
 fn same_seed_gives_the_same_field_with_the_culmination_whatever_the_threads() {
     let s = with_cap(9);
-    let run = |threads: usize| {
-        rayon::ThreadPoolBuilder::new()
-            .num_threads(threads)
-            .build()
-            .unwrap()
-            .install(|| synth::generate(&s).unwrap())
-    };
+    let run = |threads: usize| crate::threads::in_pool(threads, || synth::generate(&s).unwrap());
     let (one, two) = (run(1), run(2));
     assert_eq!(one.masks, two.masks);
     assert_eq!(one.truth, two.truth);
