@@ -248,6 +248,18 @@ fn target_report(t: &TargetSummary, studies: &Sensitivity) -> ri::TargetReport {
             coverage_top_decile: opt(m.coverage_top_decile),
             mean_width: opt(m.mean_width),
             warnings: d.warnings.clone(),
+            by_kind: t
+                .by_kind
+                .iter()
+                .map(|k| ri::KindRow {
+                    kind: k.kind.clone(),
+                    wells: k.wells,
+                    rows: k.rows,
+                    coverage: k.coverage,
+                    mean_width: k.mean_width,
+                    interval_score: k.interval_score,
+                })
+                .collect(),
         },
         crossplot: Some(ri::CrossplotData {
             truth: d.rows.iter().map(|r| r.truth).collect(),

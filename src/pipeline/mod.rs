@@ -15,6 +15,7 @@
 
 pub mod assemble;
 pub mod fit;
+pub mod kinds;
 pub mod model;
 pub mod nodes;
 pub mod outputs;

@@ -169,6 +169,9 @@ pub struct TargetSummary {
     pub skill: Option<Skill>,
     /// The same per step, by name.
     pub skill_by_step: Vec<StepSkill>,
+    /// The out-of-fold band at held-out wells of each kind (empty when the wells file gives no
+    /// kind; [`super::kinds`]).
+    pub by_kind: Vec<super::kinds::KindFigures>,
 }
 
 /// Contents of `summary.json`.
@@ -210,6 +213,7 @@ pub fn summary(
     importance: &[Vec<f64>],
     infill: &[Target],
 ) -> Summary {
+    let kinds = super::kinds::well_kinds(survey, &ts.well_names);
     let targets = model
         .targets
         .iter()
@@ -233,6 +237,7 @@ pub fn summary(
             diagnostics_json: named_steps(&cal.diagnostics, &model.step_names),
             skill,
             skill_by_step,
+            by_kind: super::kinds::by_kind(&cal.diagnostics.rows, &kinds, model.level),
         })
         .collect();
     Summary {
@@ -246,7 +251,7 @@ pub fn summary(
         applicability_threshold: model.applicability.threshold,
         wells_vs_nodes: model.wells_vs_nodes.clone(),
         infill: infill.to_vec(),
-        cautions: super::cautions(&well_kinds(survey, &ts.well_names)),
+        cautions: super::cautions(&kinds),
         totals: None,
     }
 }
@@ -569,19 +574,4 @@ pub fn target_skill(
         assess(&input, &settings).ok(),
         assess_by_step(&input, &step, &step_names, &settings).unwrap_or_default(),
     )
-}
-
-/// The kind of each named well: the first record of that well with a kind, `None` if none has.
-fn well_kinds(survey: &Survey, names: &[String]) -> Vec<Option<crate::io::wells::WellKind>> {
-    let mut kinds: std::collections::HashMap<&str, crate::io::wells::WellKind> =
-        std::collections::HashMap::new();
-    for rec in &survey.wells {
-        if let Some(k) = rec.kind {
-            kinds.entry(rec.well.as_str()).or_insert(k);
-        }
-    }
-    names
-        .iter()
-        .map(|n| kinds.get(n.as_str()).copied())
-        .collect()
 }

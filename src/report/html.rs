@@ -666,6 +666,7 @@ fn calibration_section(h: &mut String, input: &ReportInput) {
         for note in super::verdicts::extreme_notes(t, &input.band_labels) {
             let _ = writeln!(h, "<p class=\"warn\">{}</p>", escape(&note));
         }
+        super::kinds::kinds_block(h, t);
 
         h.push_str("<h4>Reliability of the exceedance probabilities</h4>\n");
         if t.reliability.is_empty() {

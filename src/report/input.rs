@@ -268,6 +268,26 @@ pub struct TargetSummary {
     pub mean_width: Option<f64>,
     /// Warnings about this target.
     pub warnings: Vec<String>,
+    /// The band at held-out wells of each kind (empty when the wells file gives no kind).
+    pub by_kind: Vec<KindRow>,
+}
+
+/// The band at the held-out wells of one kind (each well weighing one).
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct KindRow {
+    /// `producer`, `injector`, `observer` or `unstated`.
+    pub kind: String,
+    /// Wells of the kind.
+    pub wells: usize,
+    /// Their rows.
+    pub rows: usize,
+    /// Share of truths inside the band.
+    pub coverage: f64,
+    /// Mean band width, in the target's unit.
+    pub mean_width: f64,
+    /// Mean interval score at the band's level, in the target's unit.
+    pub interval_score: f64,
 }
 
 /// Paired values at wells: truth, raw out-of-fold prediction, corrected prediction.

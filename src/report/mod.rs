@@ -20,6 +20,7 @@ pub mod colormap;
 pub mod font;
 pub mod html;
 pub mod input;
+pub mod kinds;
 pub mod kriging;
 pub mod labels;
 pub mod markup;

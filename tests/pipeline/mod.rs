@@ -2,6 +2,7 @@
 
 pub(crate) mod end_to_end;
 mod infill;
+mod kinds;
 mod report;
 mod totals;
 mod truth;

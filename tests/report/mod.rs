@@ -4,5 +4,6 @@ pub(crate) mod browser;
 mod colormap;
 mod fixture;
 pub(crate) mod html;
+mod kinds;
 mod picture;
 mod verdicts;
