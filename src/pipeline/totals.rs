@@ -167,8 +167,9 @@ impl Default for TotalsOptions {
     }
 }
 
-/// (target, step) pairs the totals need, in order of first use.
-fn needed_layers(survey: &Survey, model: &SavedModel) -> Vec<(usize, usize)> {
+/// (target, step) pairs the totals of the project's `[totals]` need, in order of first use
+/// (none without `[totals]`).
+pub fn needed_layers(survey: &Survey, model: &SavedModel) -> Vec<(usize, usize)> {
     let project = &survey.project;
     let mut out: Vec<(usize, usize)> = Vec::new();
     let Some(section) = &project.totals else {
@@ -234,17 +235,23 @@ pub fn compute(
             model: c.fit.model,
         })
         .collect();
-    // Node distributions per layer.
-    let mut features: Vec<Option<ndarray::Array2<f64>>> = vec![None; project.steps.len()];
+    // Node distributions per layer, from the maps; the nodes are predicted again only where
+    // the maps did not keep the conditional part a target needs.
     let mut dists = Vec::with_capacity(layer_keys.len());
     for &(t, s) in &layer_keys {
-        let x = features[s].get_or_insert_with(|| sample::node_features(survey, s));
-        let d = CalibratedNodes::new(&model.calibrated[t], &kept[s].targets[t], x.view()).map_err(
-            |source| PipelineError::Calibrate {
-                target: model.targets[t].name.clone(),
-                source,
-            },
-        )?;
+        let (cal, maps) = (&model.calibrated[t], &kept[s].targets[t]);
+        let d = match CalibratedNodes::from_maps(cal, maps) {
+            Some(d) => d,
+            None => {
+                let x = sample::node_features(survey, s);
+                CalibratedNodes::new(cal, maps, x.view()).map_err(|source| {
+                    PipelineError::Calibrate {
+                        target: model.targets[t].name.clone(),
+                        source,
+                    }
+                })?
+            }
+        };
         dists.push(d);
     }
     let measured = |t: usize, s: usize, d: &CalibratedNodes<'_>| {
