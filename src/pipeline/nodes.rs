@@ -41,8 +41,8 @@
 //! Cressie's (1985) weighted least squares with the library's fallback.
 
 use super::model::TargetMaps;
-use crate::calibrate::CalibratedTarget;
 use crate::calibrate::exceedance::PredictiveSystem;
+use crate::calibrate::{CalibratedTarget, OofRow};
 use crate::grid::Grid;
 use crate::sample::TrainingSet;
 use crate::spatial::krige::WellScore;
@@ -225,7 +225,7 @@ pub struct CalibratedNodes<'a> {
     /// Hurdle targets: `p G(0)` per node, the mixture's probability below the atom.
     below: Vec<f64>,
     /// The predictive system's Mondrian bin of each node's conditional middle.
-    bin: Vec<u32>,
+    bin: Indices,
     /// Conditional middle of the predictive system per node.
     cond_mid: Cow<'a, [f64]>,
     /// Its residual scale per node (`None`: 1 at every node).
@@ -241,13 +241,39 @@ pub struct CalibratedNodes<'a> {
     /// Per node, the sources (0-2 the band's points, `3 + k` threshold `k`'s) of the points
     /// of the quantile function sorted by level and value, [`NO_POINT`] padding the unused
     /// slots.
-    order: Vec<u32>,
+    order: Indices,
     /// Points per node: 3 + the target's thresholds.
     per: usize,
 }
 
 /// An unused slot of [`CalibratedNodes`]'s point order.
 const NO_POINT: u32 = u32::MAX;
+
+/// Small non-negative indices, one byte each when every one is below 255, else four bytes;
+/// [`NO_POINT`] reads back as itself either way.
+enum Indices {
+    Bytes(Vec<u8>),
+    Words(Vec<u32>),
+}
+
+impl Indices {
+    /// Stores `v`, whose entries other than [`NO_POINT`] are at most `max`.
+    fn new(v: Vec<u32>, max: u32) -> Self {
+        if max < u8::MAX as u32 {
+            Self::Bytes(v.into_iter().map(|x| x.min(u8::MAX as u32) as u8).collect())
+        } else {
+            Self::Words(v)
+        }
+    }
+
+    fn get(&self, k: usize) -> u32 {
+        match self {
+            Self::Bytes(v) if v[k] == u8::MAX => NO_POINT,
+            Self::Bytes(v) => v[k] as u32,
+            Self::Words(v) => v[k],
+        }
+    }
+}
 
 /// Share of the level (against the base quantile) in the interpolation between two points and
 /// in the tails: the base can be flat over a stretch of levels (the hurdle's atom, a clip at a
@@ -346,6 +372,7 @@ impl<'a> CalibratedNodes<'a> {
             .iter()
             .map(|&m| cal.cps.bins.bin(m).min(last) as u32)
             .collect();
+        let bin = Indices::new(bin, last as u32);
         let per = 3 + cal.thresholds.len().min(maps.exceed.len());
         let mut out = Self {
             cal,
@@ -358,7 +385,7 @@ impl<'a> CalibratedNodes<'a> {
             u,
             v,
             base_at: Vec::new(),
-            order: Vec::new(),
+            order: Indices::Words(Vec::new()),
             per,
         };
         let mut base_at = vec![f64::NAN; n * per];
@@ -369,7 +396,7 @@ impl<'a> CalibratedNodes<'a> {
             .enumerate()
             .for_each(|(i, (b, o))| out.node_points(i, b, o));
         out.base_at = base_at;
-        out.order = order;
+        out.order = Indices::new(order, (per - 1) as u32);
         out
     }
 
@@ -440,7 +467,7 @@ impl<'a> CalibratedNodes<'a> {
     fn base(&self, i: usize, level: f64) -> f64 {
         let mid = self.cond_mid[i];
         let scale = self.cond_scale.as_ref().map_or(1.0, |s| s[i]);
-        let b = self.bin[i] as usize;
+        let b = self.bin.get(i) as usize;
         let g = |v: f64| {
             self.table
                 .interpolated_in_bin(&self.cal.cps, b, mid, scale, v)
@@ -492,9 +519,11 @@ impl NodeDistribution for CalibratedNodes<'_> {
         if let Some(k) = self.u.iter().position(|k| (u - k).abs() <= 1e-12) {
             return [lo, mid, hi][k].clamp(bounds.0, bounds.1);
         }
-        let order = &self.order[i * self.per..(i + 1) * self.per];
-        let count = order.iter().take_while(|&&s| s != NO_POINT).count();
-        let pt = |k: usize| self.point(i, order[k]);
+        let first = i * self.per;
+        let count = (0..self.per)
+            .take_while(|&k| self.order.get(first + k) != NO_POINT)
+            .count();
+        let pt = |k: usize| self.point(i, self.order.get(first + k));
         let (b_lo, b_mid, b_hi) = {
             let b = &self.base_at[i * self.per..];
             (b[0], b[1], b[2])
@@ -573,28 +602,46 @@ pub fn well_scores(
     t: usize,
     grid: &Grid,
 ) -> Vec<(usize, WellScore)> {
+    located_rows(cal, ts, t, grid)
+        .filter_map(|(row, r, (fi, fj))| {
+            let score = normal_score(row.pit, PIT_CLAMP);
+            let ok = score.is_finite() && fi.is_finite() && fj.is_finite();
+            ok.then(|| (row.step, well_score(ts, grid, r, (fi, fj), score)))
+        })
+        .collect()
+}
+
+/// The held-out rows of target `t` in `cal`'s diagnostics, each with its training row and
+/// fractional grid position `(i, j)` (the diagnostics follow the training rows where the target
+/// was measured).
+fn located_rows<'c>(
+    cal: &'c CalibratedTarget,
+    ts: &'c TrainingSet,
+    t: usize,
+    grid: &'c Grid,
+) -> impl Iterator<Item = (&'c OofRow, usize, (f64, f64))> + 'c {
     let rows = super::fit::target_rows(ts, t);
     cal.diagnostics
         .rows
         .iter()
-        .zip(&rows)
-        .filter_map(|(row, &r)| {
-            let score = normal_score(row.pit, PIT_CLAMP);
-            let (fi, fj) = grid.fractional_ij(ts.xy[r][0], ts.xy[r][1]);
-            let ok = score.is_finite() && fi.is_finite() && fj.is_finite();
-            ok.then(|| {
-                (
-                    row.step,
-                    WellScore {
-                        name: ts.well_names[ts.group[r]].clone(),
-                        x: fi * grid.dx,
-                        y: fj * grid.dy,
-                        score,
-                    },
-                )
-            })
-        })
-        .collect()
+        .zip(rows)
+        .map(move |(row, r)| (row, r, grid.fractional_ij(ts.xy[r][0], ts.xy[r][1])))
+}
+
+/// Training row `r`'s well at fractional grid position `(fi, fj)`, in grid-local metres.
+fn well_score(
+    ts: &TrainingSet,
+    grid: &Grid,
+    r: usize,
+    (fi, fj): (f64, f64),
+    score: f64,
+) -> WellScore {
+    WellScore {
+        name: ts.well_names[ts.group[r]].clone(),
+        x: fi * grid.dx,
+        y: fj * grid.dy,
+        score,
+    }
 }
 
 /// The normal scores that make a realization reproduce each well's measured value at its node:
@@ -614,15 +661,10 @@ pub fn value_scores(
     dist: &dyn NodeDistribution,
     seed: u64,
 ) -> Vec<WellScore> {
-    let rows = super::fit::target_rows(ts, t);
-    cal.diagnostics
-        .rows
-        .iter()
-        .zip(&rows)
+    located_rows(cal, ts, t, grid)
         .enumerate()
-        .filter(|(_, (row, _))| row.step == step)
-        .filter_map(|(k, (row, &r))| {
-            let (fi, fj) = grid.fractional_ij(ts.xy[r][0], ts.xy[r][1]);
+        .filter(|(_, (row, _, _))| row.step == step)
+        .filter_map(|(k, (row, r, (fi, fj)))| {
             let (i, j) = (fi.round(), fj.round());
             let inside = i >= 0.0 && j >= 0.0 && i < grid.nx as f64 && j < grid.ny as f64;
             if !(inside && row.truth.is_finite()) {
@@ -637,12 +679,8 @@ pub fn value_scores(
             let bits = crate::spatial::derive_seed(seed, &[t as u64, k as u64]) >> 11;
             let v = (bits as f64 + 0.5) / (1u64 << 53) as f64;
             let u = lo + v * (hi - lo).max(0.0);
-            Some(WellScore {
-                name: ts.well_names[ts.group[r]].clone(),
-                x: fi * grid.dx,
-                y: fj * grid.dy,
-                score: normal_score(u, PIT_CLAMP),
-            })
+            let score = normal_score(u, PIT_CLAMP);
+            Some(well_score(ts, grid, r, (fi, fj), score))
         })
         .collect()
 }
