@@ -266,6 +266,7 @@ impl Indices {
         }
     }
 
+    #[inline]
     fn get(&self, k: usize) -> u32 {
         match self {
             Self::Bytes(v) if v[k] == u8::MAX => NO_POINT,
@@ -442,13 +443,24 @@ impl<'a> CalibratedNodes<'a> {
     }
 
     /// Threshold `k`'s level (its written probability of lying below it) and value at node `i`.
+    #[inline]
     fn threshold_point(&self, k: usize, i: usize) -> (f64, f64) {
         let th = &self.cal.thresholds[k];
         let e = self.maps.exceed[k][i];
         (if th.above { 1.0 - e } else { e }, th.value)
     }
 
+    /// The level of node `i`'s point from `source` (0-2 the band's, `3 + k` threshold `k`'s).
+    #[inline]
+    fn level(&self, i: usize, source: u32) -> f64 {
+        match source as usize {
+            s @ 0..=2 => self.u[s],
+            s => self.threshold_point(s - 3, i).0,
+        }
+    }
+
     /// The point of node `i` from `source` (0-2 the band's, `3 + k` threshold `k`'s).
+    #[inline]
     fn point(&self, i: usize, source: u32) -> Point {
         let s = source as usize;
         let b = self.base_at[i * self.per + s];
@@ -520,17 +532,24 @@ impl NodeDistribution for CalibratedNodes<'_> {
             return [lo, mid, hi][k].clamp(bounds.0, bounds.1);
         }
         let first = i * self.per;
-        let count = (0..self.per)
-            .take_while(|&k| self.order.get(first + k) != NO_POINT)
-            .count();
+        // The points are sorted by level: `j` is the first whose level is not below `u`.
+        let (mut count, mut j) = (0, 0);
+        while count < self.per {
+            let source = self.order.get(first + count);
+            if source == NO_POINT {
+                break;
+            }
+            if j == count && self.level(i, source) < u {
+                j += 1;
+            }
+            count += 1;
+        }
         let pt = |k: usize| self.point(i, self.order.get(first + k));
         let (b_lo, b_mid, b_hi) = {
             let b = &self.base_at[i * self.per..];
             (b[0], b[1], b[2])
         };
         let b = self.base(i, self.warp(u));
-        // The points are sorted by level: the first whose level is not below `u`.
-        let j = (0..count).take_while(|&k| pt(k).u < u).count();
         let y = if j == 0 {
             let s = if b_mid > b_lo {
                 (mid - lo) / (b_mid - b_lo)
