@@ -188,6 +188,34 @@ pub fn needed_layers(survey: &Survey, model: &SavedModel) -> Vec<(usize, usize)>
     out
 }
 
+/// The node distributions of every layer `(target, step)`, from the maps; a step's nodes are
+/// predicted again only where its maps did not keep the conditional part a target needs.
+fn node_distributions<'m>(
+    survey: &Survey,
+    model: &'m SavedModel,
+    kept: &'m [StepMaps],
+    layers: &[(usize, usize)],
+) -> Result<Vec<CalibratedNodes<'m>>, PipelineError> {
+    let mut dists = Vec::with_capacity(layers.len());
+    for &(t, s) in layers {
+        let (cal, maps) = (&model.calibrated[t], &kept[s].targets[t]);
+        let d = match CalibratedNodes::from_maps(cal, maps) {
+            Some(d) => d,
+            None => {
+                let x = sample::node_features(survey, s);
+                CalibratedNodes::new(cal, maps, x.view()).map_err(|source| {
+                    PipelineError::Calibrate {
+                        target: model.targets[t].name.clone(),
+                        source,
+                    }
+                })?
+            }
+        };
+        dists.push(d);
+    }
+    Ok(dists)
+}
+
 fn steps_of(project: &crate::project::Project, names: &[String]) -> Vec<usize> {
     if names.is_empty() {
         (0..project.steps.len()).collect()
@@ -235,25 +263,7 @@ pub fn compute(
             model: c.fit.model,
         })
         .collect();
-    // Node distributions per layer, from the maps; the nodes are predicted again only where
-    // the maps did not keep the conditional part a target needs.
-    let mut dists = Vec::with_capacity(layer_keys.len());
-    for &(t, s) in &layer_keys {
-        let (cal, maps) = (&model.calibrated[t], &kept[s].targets[t]);
-        let d = match CalibratedNodes::from_maps(cal, maps) {
-            Some(d) => d,
-            None => {
-                let x = sample::node_features(survey, s);
-                CalibratedNodes::new(cal, maps, x.view()).map_err(|source| {
-                    PipelineError::Calibrate {
-                        target: model.targets[t].name.clone(),
-                        source,
-                    }
-                })?
-            }
-        };
-        dists.push(d);
-    }
+    let dists = node_distributions(survey, model, kept, &layer_keys)?;
     let measured = |t: usize, s: usize, d: &CalibratedNodes<'_>| {
         value_scores(
             &model.calibrated[t],
