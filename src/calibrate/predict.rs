@@ -44,6 +44,18 @@ struct Conditional<'a> {
     scale: &'a [f64],
 }
 
+/// The continuous model's own prediction at every row, without the residual kriging's shift and
+/// band factor: what [`CalibratedTarget::conditional_at`] gives, kept from the pass that made the
+/// maps so that the node distributions of the field totals need not walk the ensemble again.
+#[derive(Clone, Debug, PartialEq)]
+pub struct ConditionalPart {
+    /// The conditional middle per row.
+    pub mid: Vec<f64>,
+    /// The residual scale per row; `None` where it is 1 at every row (every band but the
+    /// normalised one).
+    pub scale: Option<Vec<f64>>,
+}
+
 /// Where the predicted rows lie relative to the training wells.
 #[derive(Clone, Copy, Debug)]
 pub struct NodeContext<'a> {
@@ -88,8 +100,27 @@ impl CalibratedTarget {
         x: ArrayView2<f64>,
         context: Option<NodeContext>,
     ) -> Result<TargetPrediction, CalibrateError> {
+        Ok(self.predict_keeping(x, context, false)?.0)
+    }
+
+    /// Whether the node distributions of this target need the conditional part of the model
+    /// rather than the map's middle with unit scale: a hurdle target, or a normalised band.
+    pub fn needs_conditional(&self) -> bool {
+        self.hurdle.is_some() || self.band.method == BandMethod::Normalized
+    }
+
+    /// As [`Self::predict_at`]; with `keep` and a target that [needs](Self::needs_conditional)
+    /// it, also the conditional part [`Self::conditional_at`] would give, from the same pass of
+    /// the ensemble (the same numbers, bit for bit).
+    pub fn predict_keeping(
+        &self,
+        x: ArrayView2<f64>,
+        context: Option<NodeContext>,
+        keep: bool,
+    ) -> Result<(TargetPrediction, Option<ConditionalPart>), CalibrateError> {
         let adj = context.and_then(|c| self.kriging_at(x.nrows(), c));
-        let (parts, scale) = self.continuous_parts(x, adj.as_deref())?;
+        let keep = keep && self.needs_conditional();
+        let (parts, scale, conditional) = self.continuous_parts(x, adj.as_deref(), keep)?;
         let (mut out, cond_mid) = match &self.hurdle {
             Some(h) => {
                 let out = self.mixture(h, x, &parts, &scale);
@@ -114,7 +145,7 @@ impl CalibratedTarget {
             self.widen_exceedance(x, &mut out, &factors, cond);
         }
         self.make_consistent(&mut out);
-        Ok(out)
+        Ok((out, conditional))
     }
 
     /// The spread rule applied to the whole predictive distribution, not only its band: each
@@ -288,7 +319,7 @@ impl CalibratedTarget {
         &self,
         x: ArrayView2<f64>,
     ) -> Result<(Vec<f64>, Vec<f64>), CalibrateError> {
-        let (p, scale) = self.continuous_parts(x, None)?;
+        let (p, scale, _) = self.continuous_parts(x, None, false)?;
         Ok((p.mid, scale))
     }
 
@@ -344,16 +375,27 @@ impl CalibratedTarget {
 
     /// The continuous model's prediction at every row, and each row's residual scale; `adj`
     /// (per row, the kriged shift of the middle and the band factor) moves the middle before the
-    /// band and the predictive system are placed around it, and scales both.
+    /// band and the predictive system are placed around it, and scales both. With `keep`, also
+    /// the middle and scale without `adj` (as `adj = None` gives them).
     fn continuous_parts(
         &self,
         x: ArrayView2<f64>,
         adj: Option<&[(f64, f64)]>,
-    ) -> Result<(TargetPrediction, Vec<f64>), CalibrateError> {
+        keep: bool,
+    ) -> Result<(TargetPrediction, Vec<f64>, Option<ConditionalPart>), CalibrateError> {
         self.check_columns(x)?;
         let n = x.nrows();
         let pass = self.ensemble_pass(x);
         let adj_of = |i: usize| adj.map_or((0.0, 1.0), |a| a[i]);
+        // The unshifted middle and scale, computed as without `adj` (its shift 0 and factor 1).
+        let conditional = keep.then(|| ConditionalPart {
+            mid: (0..n)
+                .into_par_iter()
+                .map(|i| (self.middle(&pass, i) + 0.0).clamp(self.bounds.0, self.bounds.1))
+                .collect(),
+            scale: (self.band.method == BandMethod::Normalized)
+                .then(|| (0..n).map(|i| self.scale(&pass, i) * 1.0).collect()),
+        });
         let mids: Vec<f64> = (0..n)
             .into_par_iter()
             .map(|i| {
@@ -391,7 +433,7 @@ impl CalibratedTarget {
             exceed,
             p_change: None,
         };
-        Ok((out, scale))
+        Ok((out, scale, conditional))
     }
 
     /// One walk of the forest gives the mean and the distribution together, and for a

@@ -3,7 +3,7 @@
 use super::PipelineError;
 use crate::applicability::{Applicability, Assessment, Ground, node_histories};
 use crate::calibrate::CalibratedTarget;
-use crate::calibrate::predict::NodeContext;
+use crate::calibrate::predict::{ConditionalPart, NodeContext};
 use crate::calibrate::shift::ShiftSummary;
 use crate::project::{Convention, TargetSpec, ThresholdSpec};
 use ndarray::{Array2, ArrayView2, Axis};
@@ -71,6 +71,11 @@ pub struct TargetMaps {
     pub exceed: Vec<Vec<f64>>,
     /// Probability that anything changed (targets with a "no change" atom only).
     pub p_change: Option<Vec<f64>>,
+    /// The model's conditional middle and scale at every node, for the node distributions of the
+    /// field totals ([`super::nodes::CalibratedNodes::from_maps`]); kept only when asked for
+    /// ([`SavedModel::predict_keeping`]) and only for a target that
+    /// [needs](CalibratedTarget::needs_conditional) it.
+    pub conditional: Option<ConditionalPart>,
 }
 
 fn pick_rows(v: &[f64], rows: &[usize]) -> Vec<f64> {
@@ -170,6 +175,19 @@ impl SavedModel {
         xy: &[(f64, f64)],
         ground: Option<&[bool]>,
     ) -> Result<StepMaps, PipelineError> {
+        self.predict_keeping(x, xy, ground, &[])
+    }
+
+    /// As [`Self::predict`], also keeping [`TargetMaps::conditional`] for the targets whose
+    /// index is in `keep` (from the same pass of the ensemble, so the field totals need not
+    /// predict the nodes again).
+    pub fn predict_keeping(
+        &self,
+        x: ArrayView2<f64>,
+        xy: &[(f64, f64)],
+        ground: Option<&[bool]>,
+        keep: &[usize],
+    ) -> Result<StepMaps, PipelineError> {
         let n = x.nrows();
         if let Some(g) = ground
             && g.len() != n
@@ -229,9 +247,9 @@ impl SavedModel {
             ..NodeContext::new(&di, &distance)
         };
         let mut targets = Vec::new();
-        for cal in &self.calibrated {
-            let p = cal
-                .predict_at(compact.view(), Some(context))
+        for (t, cal) in self.calibrated.iter().enumerate() {
+            let (p, conditional) = cal
+                .predict_keeping(compact.view(), Some(context), keep.contains(&t))
                 .map_err(|source| PipelineError::Calibrate {
                     target: cal.name.clone(),
                     source,
@@ -242,6 +260,10 @@ impl SavedModel {
                 hi: scatter(&p.hi),
                 exceed: p.exceed.iter().map(|e| scatter(e)).collect(),
                 p_change: p.p_change.as_deref().map(scatter),
+                conditional: conditional.map(|c| ConditionalPart {
+                    mid: scatter(&c.mid),
+                    scale: c.scale.as_deref().map(scatter),
+                }),
             });
         }
         Ok(StepMaps {

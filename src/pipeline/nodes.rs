@@ -41,9 +41,8 @@
 //! Cressie's (1985) weighted least squares with the library's fallback.
 
 use super::model::TargetMaps;
-use crate::calibrate::CalibratedTarget;
-use crate::calibrate::conformal::BandMethod;
 use crate::calibrate::exceedance::PredictiveSystem;
+use crate::calibrate::{CalibratedTarget, OofRow};
 use crate::grid::Grid;
 use crate::sample::TrainingSet;
 use crate::spatial::krige::WellScore;
@@ -56,6 +55,7 @@ use crate::spatial::{Lattice, SpatialError};
 use ndarray::ArrayView2;
 use rayon::prelude::*;
 use serde::Serialize;
+use std::borrow::Cow;
 
 /// `a + f (b - a)`, exact at both ends (`f = 0` gives `a`, `f = 1` gives `b`).
 fn lerp(a: f64, b: f64, f: f64) -> f64 {
@@ -212,6 +212,11 @@ impl CpsLevels {
 }
 
 /// One target's calibrated distribution at every node of one step.
+///
+/// What it keeps per node is what the maps do not hold already: the Mondrian bin, the hurdle's
+/// `p G(0)`, the conditional middle and scale where they are not the map's own, and the base
+/// quantile and order of each point of the quantile function (a point's level and value come
+/// from the maps and the thresholds).
 pub struct CalibratedNodes<'a> {
     cal: &'a CalibratedTarget,
     maps: &'a TargetMaps,
@@ -220,21 +225,55 @@ pub struct CalibratedNodes<'a> {
     /// Hurdle targets: `p G(0)` per node, the mixture's probability below the atom.
     below: Vec<f64>,
     /// The predictive system's Mondrian bin of each node's conditional middle.
-    bin: Vec<u32>,
-    /// Conditional middle and residual scale of the predictive system per node.
-    cond: (Vec<f64>, Vec<f64>),
+    bin: Indices,
+    /// Conditional middle of the predictive system per node.
+    cond_mid: Cow<'a, [f64]>,
+    /// Its residual scale per node (`None`: 1 at every node).
+    cond_scale: Option<Cow<'a, [f64]>>,
     /// Map levels of the lower edge, middle and upper edge.
     u: [f64; 3],
     /// The base distribution's levels of the same three values.
     v: [f64; 3],
-    /// Base quantiles at `v`, per node.
-    knots: Vec<[f64; 3]>,
-    /// Per node, `per` points `(level, value, base quantile)` of the quantile function sorted by
-    /// level: the band's three and each threshold's (its written probability of lying below the
-    /// threshold), `NaN` levels padding the unused slots.
-    points: Vec<Point>,
+    /// Per node, `per` base quantiles by source: the band's lower edge, middle and upper edge
+    /// (at `v`), then each threshold's at the warped level of its written probability (`NaN`
+    /// for a threshold left out).
+    base_at: Vec<f64>,
+    /// Per node, the sources (0-2 the band's points, `3 + k` threshold `k`'s) of the points
+    /// of the quantile function sorted by level and value, [`NO_POINT`] padding the unused
+    /// slots.
+    order: Indices,
     /// Points per node: 3 + the target's thresholds.
     per: usize,
+}
+
+/// An unused slot of [`CalibratedNodes`]'s point order.
+const NO_POINT: u32 = u32::MAX;
+
+/// Small non-negative indices, one byte each when every one is below 255, else four bytes;
+/// [`NO_POINT`] reads back as itself either way.
+enum Indices {
+    Bytes(Vec<u8>),
+    Words(Vec<u32>),
+}
+
+impl Indices {
+    /// Stores `v`, whose entries other than [`NO_POINT`] are at most `max`.
+    fn new(v: Vec<u32>, max: u32) -> Self {
+        if max < u8::MAX as u32 {
+            Self::Bytes(v.into_iter().map(|x| x.min(u8::MAX as u32) as u8).collect())
+        } else {
+            Self::Words(v)
+        }
+    }
+
+    #[inline]
+    fn get(&self, k: usize) -> u32 {
+        match self {
+            Self::Bytes(v) if v[k] == u8::MAX => NO_POINT,
+            Self::Bytes(v) => v[k] as u32,
+            Self::Words(v) => v[k],
+        }
+    }
 }
 
 /// Share of the level (against the base quantile) in the interpolation between two points and
@@ -245,12 +284,11 @@ pub struct CalibratedNodes<'a> {
 const LEVEL_SHARE: f64 = 0.01;
 
 /// Value per level of a tail's level share: the band half's `s`, or where that half has no width
-/// the points' overall slope, or 1.
-fn per_level(s: f64, pts: &[Point]) -> f64 {
+/// the overall slope of the points from `first` to `last`, or 1.
+fn per_level(s: f64, first: Point, last: Point) -> f64 {
     if s > 0.0 {
         return s;
     }
-    let (first, last) = (pts[0], pts[pts.len() - 1]);
     let overall = (last.y - first.y) / (last.u - first.u);
     if overall > 0.0 && overall.is_finite() {
         overall
@@ -268,117 +306,180 @@ struct Point {
     b: f64,
 }
 
-impl Point {
-    const NONE: Point = Point {
-        u: f64::NAN,
-        y: f64::NAN,
-        b: f64::NAN,
-    };
-}
-
 impl<'a> CalibratedNodes<'a> {
     /// The distributions of `cal` at the nodes whose features are `x` (rows in node order) and
-    /// whose written maps are `maps`. Nodes with a null map value have no distribution.
+    /// whose written maps are `maps`. Nodes with a null map value have no distribution. The
+    /// conditional part of the model, where the target needs it, is predicted again from `x`;
+    /// [`Self::from_maps`] takes it from the maps instead.
     pub fn new(
         cal: &'a CalibratedTarget,
         maps: &'a TargetMaps,
         x: ArrayView2<f64>,
     ) -> Result<Self, crate::calibrate::CalibrateError> {
+        // The continuous middle is the map's; its scale is 1 unless the scores are normalised.
+        let (mid, scale) = if cal.needs_conditional() {
+            let (mid, scale) = cal.conditional_at(x)?;
+            (Cow::Owned(mid), Some(Cow::Owned(scale)))
+        } else {
+            (Cow::Borrowed(&maps.mid[..]), None)
+        };
+        Ok(Self::build(cal, maps, mid, scale))
+    }
+
+    /// As [`Self::new`] with the conditional part the maps kept
+    /// ([`TargetMaps::conditional`]): the same distributions without predicting the nodes
+    /// again. `None` when the target needs the conditional part and the maps did not keep it.
+    pub fn from_maps(cal: &'a CalibratedTarget, maps: &'a TargetMaps) -> Option<Self> {
+        if !cal.needs_conditional() {
+            return Some(Self::build(cal, maps, Cow::Borrowed(&maps.mid[..]), None));
+        }
+        let c = maps.conditional.as_ref()?;
+        let n = maps.mid.len();
+        if c.mid.len() != n || c.scale.as_ref().is_some_and(|s| s.len() != n) {
+            return None;
+        }
+        let scale = c.scale.as_deref().map(Cow::Borrowed);
+        Some(Self::build(cal, maps, Cow::Borrowed(&c.mid[..]), scale))
+    }
+
+    fn build(
+        cal: &'a CalibratedTarget,
+        maps: &'a TargetMaps,
+        cond_mid: Cow<'a, [f64]>,
+        cond_scale: Option<Cow<'a, [f64]>>,
+    ) -> Self {
         let a = (1.0 - cal.level) / 2.0;
         let u = [a, 0.5, 1.0 - a];
         let v = match &cal.hurdle {
             Some(h) => [h.levels.0, h.levels.1, h.levels.2],
             None => u,
         };
-        // The continuous middle is the map's; its scale is 1 unless the scores are normalised.
-        let cond = if cal.hurdle.is_none() && cal.band.method != BandMethod::Normalized {
-            (maps.mid.clone(), vec![1.0; maps.mid.len()])
-        } else {
-            cal.conditional_at(x)?
-        };
+        let n = maps.mid.len();
+        let scale_at = |i: usize| cond_scale.as_ref().map_or(1.0, |s| s[i]);
         let below = match &maps.p_change {
-            Some(p) if cal.hurdle.is_some() => (0..maps.mid.len())
+            Some(p) if cal.hurdle.is_some() => (0..n)
                 .into_par_iter()
                 .map(|i| {
-                    let g = cal.cps.prob_below(cond.0[i], cond.1[i], 0.0, cal.bounds);
+                    let g = cal
+                        .cps
+                        .prob_below(cond_mid[i], scale_at(i), 0.0, cal.bounds);
                     p[i].clamp(0.0, 1.0) * g
                 })
                 .collect(),
             _ => Vec::new(),
         };
         let last = cal.cps.residuals.len().saturating_sub(1);
-        let bin = cond
-            .0
+        let bin = cond_mid
             .iter()
             .map(|&m| cal.cps.bins.bin(m).min(last) as u32)
             .collect();
+        let bin = Indices::new(bin, last as u32);
+        let per = 3 + cal.thresholds.len().min(maps.exceed.len());
         let mut out = Self {
             cal,
             maps,
             table: CpsLevels::new(&cal.cps),
             below,
             bin,
-            cond,
+            cond_mid,
+            cond_scale,
             u,
             v,
-            knots: Vec::new(),
-            points: Vec::new(),
-            per: 3 + cal.thresholds.len().min(maps.exceed.len()),
+            base_at: Vec::new(),
+            order: Indices::Words(Vec::new()),
+            per,
         };
-        out.knots = (0..maps.mid.len())
-            .into_par_iter()
-            .map(|i| v.map(|l| out.base(i, l)))
-            .collect();
-        out.points = (0..maps.mid.len())
-            .into_par_iter()
-            .flat_map_iter(|i| out.node_points(i))
-            .collect();
-        Ok(out)
+        let mut base_at = vec![f64::NAN; n * per];
+        let mut order = vec![NO_POINT; n * per];
+        base_at
+            .par_chunks_mut(per)
+            .zip(order.par_chunks_mut(per))
+            .enumerate()
+            .for_each(|(i, (b, o))| out.node_points(i, b, o));
+        out.base_at = base_at;
+        out.order = Indices::new(order, (per - 1) as u32);
+        out
     }
 
-    /// Node `i`'s points, `per` of them: the band's, then every threshold's whose written
-    /// probability is consistent with the points kept before it (a quantile function is
-    /// non-decreasing), sorted by level and value.
-    fn node_points(&self, i: usize) -> Vec<Point> {
-        let mut pts = Vec::with_capacity(self.per);
+    /// Node `i`'s points: the band's, then every threshold's whose written probability is
+    /// consistent with the points kept before it (a quantile function is non-decreasing). Writes
+    /// each point's base quantile into `base_at` by source and the sources sorted by level and
+    /// value into `order`.
+    fn node_points(&self, i: usize, base_at: &mut [f64], order: &mut [u32]) {
+        let mut pts: Vec<(Point, u32)> = Vec::with_capacity(self.per);
         let band = [self.maps.lo[i], self.maps.mid[i], self.maps.hi[i]];
         for (k, &y) in band.iter().enumerate() {
-            pts.push(Point {
+            base_at[k] = self.base(i, self.v[k]);
+            let p = Point {
                 u: self.u[k],
                 y,
-                b: self.knots[i][k],
-            });
+                b: base_at[k],
+            };
+            pts.push((p, k as u32));
         }
         let (lo_b, hi_b) = self.cal.bounds;
         for (k, th) in self.cal.thresholds.iter().enumerate().take(self.per - 3) {
-            let e = self.maps.exceed[k][i];
-            let u = if th.above { 1.0 - e } else { e };
-            let t = th.value;
+            let (u, t) = self.threshold_point(k, i);
             if !((0.0..=1.0).contains(&u) && t > lo_b && t < hi_b) {
                 continue;
             }
-            let fits = pts.iter().all(|p| {
+            let fits = pts.iter().all(|(p, _)| {
                 !(p.y.is_finite()) || (p.u < u && p.y <= t) || (p.u > u && p.y >= t) || p.u == u
             });
             if fits {
-                pts.push(Point {
+                base_at[3 + k] = self.base(i, self.warp(u));
+                let p = Point {
                     u,
-                    y: t,
-                    b: self.base(i, self.warp(u)),
-                });
+                    y: th.value,
+                    b: base_at[3 + k],
+                };
+                pts.push((p, (3 + k) as u32));
             }
         }
-        pts.sort_by(|a, b| a.u.total_cmp(&b.u).then(a.y.total_cmp(&b.y)));
-        pts.resize(self.per, Point::NONE);
-        pts
+        pts.sort_by(|(a, _), (b, _)| a.u.total_cmp(&b.u).then(a.y.total_cmp(&b.y)));
+        for (slot, (_, source)) in order.iter_mut().zip(&pts) {
+            *slot = *source;
+        }
+    }
+
+    /// Threshold `k`'s level (its written probability of lying below it) and value at node `i`.
+    #[inline]
+    fn threshold_point(&self, k: usize, i: usize) -> (f64, f64) {
+        let th = &self.cal.thresholds[k];
+        let e = self.maps.exceed[k][i];
+        (if th.above { 1.0 - e } else { e }, th.value)
+    }
+
+    /// The level of node `i`'s point from `source` (0-2 the band's, `3 + k` threshold `k`'s).
+    #[inline]
+    fn level(&self, i: usize, source: u32) -> f64 {
+        match source as usize {
+            s @ 0..=2 => self.u[s],
+            s => self.threshold_point(s - 3, i).0,
+        }
+    }
+
+    /// The point of node `i` from `source` (0-2 the band's, `3 + k` threshold `k`'s).
+    #[inline]
+    fn point(&self, i: usize, source: u32) -> Point {
+        let s = source as usize;
+        let b = self.base_at[i * self.per + s];
+        let (u, y) = match s {
+            0 => (self.u[0], self.maps.lo[i]),
+            1 => (self.u[1], self.maps.mid[i]),
+            2 => (self.u[2], self.maps.hi[i]),
+            _ => self.threshold_point(s - 3, i),
+        };
+        Point { u, y, b }
     }
 
     /// The model's own quantile function at node `i`: the conditional predictive system, or
     /// for a hurdle target its mixture with the atom ([`crate::calibrate::hurdle::quantile`], with `p G(0)` kept
     /// per node).
     fn base(&self, i: usize, level: f64) -> f64 {
-        let (mid, scale) = (self.cond.0[i], self.cond.1[i]);
-        let b = self.bin[i] as usize;
+        let mid = self.cond_mid[i];
+        let scale = self.cond_scale.as_ref().map_or(1.0, |s| s[i]);
+        let b = self.bin.get(i) as usize;
         let g = |v: f64| {
             self.table
                 .interpolated_in_bin(&self.cal.cps, b, mid, scale, v)
@@ -430,32 +531,47 @@ impl NodeDistribution for CalibratedNodes<'_> {
         if let Some(k) = self.u.iter().position(|k| (u - k).abs() <= 1e-12) {
             return [lo, mid, hi][k].clamp(bounds.0, bounds.1);
         }
-        let pts = &self.points[i * self.per..(i + 1) * self.per];
-        let pts = &pts[..pts.iter().take_while(|p| !p.u.is_nan()).count()];
-        let [b_lo, b_mid, b_hi] = self.knots[i];
+        let first = i * self.per;
+        // The points are sorted by level: `j` is the first whose level is not below `u`.
+        let (mut count, mut j) = (0, 0);
+        while count < self.per {
+            let source = self.order.get(first + count);
+            if source == NO_POINT {
+                break;
+            }
+            if j == count && self.level(i, source) < u {
+                j += 1;
+            }
+            count += 1;
+        }
+        let pt = |k: usize| self.point(i, self.order.get(first + k));
+        let (b_lo, b_mid, b_hi) = {
+            let b = &self.base_at[i * self.per..];
+            (b[0], b[1], b[2])
+        };
         let b = self.base(i, self.warp(u));
-        let j = pts.partition_point(|p| p.u < u);
         let y = if j == 0 {
             let s = if b_mid > b_lo {
                 (mid - lo) / (b_mid - b_lo)
             } else {
                 1.0
             };
-            let s_u = per_level((mid - lo) / (self.u[1] - self.u[0]), pts);
-            let f = pts[0].u - u;
-            pts[0].y - (1.0 - LEVEL_SHARE) * s * (pts[0].b - b).max(0.0) - LEVEL_SHARE * s_u * f
-        } else if j == pts.len() {
+            let (first, last) = (pt(0), pt(count - 1));
+            let s_u = per_level((mid - lo) / (self.u[1] - self.u[0]), first, last);
+            let f = first.u - u;
+            first.y - (1.0 - LEVEL_SHARE) * s * (first.b - b).max(0.0) - LEVEL_SHARE * s_u * f
+        } else if j == count {
             let s = if b_hi > b_mid {
                 (hi - mid) / (b_hi - b_mid)
             } else {
                 1.0
             };
-            let s_u = per_level((hi - mid) / (self.u[2] - self.u[1]), pts);
-            let last = pts[j - 1];
+            let last = pt(j - 1);
+            let s_u = per_level((hi - mid) / (self.u[2] - self.u[1]), pt(0), last);
             let f = u - last.u;
             last.y + (1.0 - LEVEL_SHARE) * s * (b - last.b).max(0.0) + LEVEL_SHARE * s_u * f
         } else {
-            let (a, c) = (pts[j - 1], pts[j]);
+            let (a, c) = (pt(j - 1), pt(j));
             let by_level = (u - a.u) / (c.u - a.u);
             let f = if c.b > a.b {
                 let by_base = ((b - a.b) / (c.b - a.b)).clamp(0.0, 1.0);
@@ -505,28 +621,46 @@ pub fn well_scores(
     t: usize,
     grid: &Grid,
 ) -> Vec<(usize, WellScore)> {
+    located_rows(cal, ts, t, grid)
+        .filter_map(|(row, r, (fi, fj))| {
+            let score = normal_score(row.pit, PIT_CLAMP);
+            let ok = score.is_finite() && fi.is_finite() && fj.is_finite();
+            ok.then(|| (row.step, well_score(ts, grid, r, (fi, fj), score)))
+        })
+        .collect()
+}
+
+/// The held-out rows of target `t` in `cal`'s diagnostics, each with its training row and
+/// fractional grid position `(i, j)` (the diagnostics follow the training rows where the target
+/// was measured).
+fn located_rows<'c>(
+    cal: &'c CalibratedTarget,
+    ts: &'c TrainingSet,
+    t: usize,
+    grid: &'c Grid,
+) -> impl Iterator<Item = (&'c OofRow, usize, (f64, f64))> + 'c {
     let rows = super::fit::target_rows(ts, t);
     cal.diagnostics
         .rows
         .iter()
-        .zip(&rows)
-        .filter_map(|(row, &r)| {
-            let score = normal_score(row.pit, PIT_CLAMP);
-            let (fi, fj) = grid.fractional_ij(ts.xy[r][0], ts.xy[r][1]);
-            let ok = score.is_finite() && fi.is_finite() && fj.is_finite();
-            ok.then(|| {
-                (
-                    row.step,
-                    WellScore {
-                        name: ts.well_names[ts.group[r]].clone(),
-                        x: fi * grid.dx,
-                        y: fj * grid.dy,
-                        score,
-                    },
-                )
-            })
-        })
-        .collect()
+        .zip(rows)
+        .map(move |(row, r)| (row, r, grid.fractional_ij(ts.xy[r][0], ts.xy[r][1])))
+}
+
+/// Training row `r`'s well at fractional grid position `(fi, fj)`, in grid-local metres.
+fn well_score(
+    ts: &TrainingSet,
+    grid: &Grid,
+    r: usize,
+    (fi, fj): (f64, f64),
+    score: f64,
+) -> WellScore {
+    WellScore {
+        name: ts.well_names[ts.group[r]].clone(),
+        x: fi * grid.dx,
+        y: fj * grid.dy,
+        score,
+    }
 }
 
 /// The normal scores that make a realization reproduce each well's measured value at its node:
@@ -546,15 +680,10 @@ pub fn value_scores(
     dist: &dyn NodeDistribution,
     seed: u64,
 ) -> Vec<WellScore> {
-    let rows = super::fit::target_rows(ts, t);
-    cal.diagnostics
-        .rows
-        .iter()
-        .zip(&rows)
+    located_rows(cal, ts, t, grid)
         .enumerate()
-        .filter(|(_, (row, _))| row.step == step)
-        .filter_map(|(k, (row, &r))| {
-            let (fi, fj) = grid.fractional_ij(ts.xy[r][0], ts.xy[r][1]);
+        .filter(|(_, (row, _, _))| row.step == step)
+        .filter_map(|(k, (row, r, (fi, fj)))| {
             let (i, j) = (fi.round(), fj.round());
             let inside = i >= 0.0 && j >= 0.0 && i < grid.nx as f64 && j < grid.ny as f64;
             if !(inside && row.truth.is_finite()) {
@@ -569,12 +698,8 @@ pub fn value_scores(
             let bits = crate::spatial::derive_seed(seed, &[t as u64, k as u64]) >> 11;
             let v = (bits as f64 + 0.5) / (1u64 << 53) as f64;
             let u = lo + v * (hi - lo).max(0.0);
-            Some(WellScore {
-                name: ts.well_names[ts.group[r]].clone(),
-                x: fi * grid.dx,
-                y: fj * grid.dy,
-                score: normal_score(u, PIT_CLAMP),
-            })
+            let score = normal_score(u, PIT_CLAMP);
+            Some(well_score(ts, grid, r, (fi, fj), score))
         })
         .collect()
 }

@@ -209,9 +209,12 @@ fn predict_and_write(
     let ground = model
         .ground_flags(survey, 0..project.grid.len())
         .map_err(PipelineError::Invalid)?;
+    // The field totals' node distributions take the model's conditional part from these maps.
+    let layers = totals::needed_layers(survey, model);
     for (s, step) in project.steps.iter().enumerate() {
         let x = sample::node_features(survey, s);
-        let maps = model.predict(x.view(), &node_xy, ground.as_deref())?;
+        let keep: Vec<usize> = layers.iter().filter(|l| l.1 == s).map(|l| l.0).collect();
+        let maps = model.predict_keeping(x.view(), &node_xy, ground.as_deref(), &keep)?;
         metadata.extend(write_step_maps(w, model, &project.grid, &step.name, &maps)?);
         kept.push(maps);
         bar.inc(1);

@@ -167,8 +167,9 @@ impl Default for TotalsOptions {
     }
 }
 
-/// (target, step) pairs the totals need, in order of first use.
-fn needed_layers(survey: &Survey, model: &SavedModel) -> Vec<(usize, usize)> {
+/// (target, step) pairs the totals of the project's `[totals]` need, in order of first use
+/// (none without `[totals]`).
+pub fn needed_layers(survey: &Survey, model: &SavedModel) -> Vec<(usize, usize)> {
     let project = &survey.project;
     let mut out: Vec<(usize, usize)> = Vec::new();
     let Some(section) = &project.totals else {
@@ -185,6 +186,34 @@ fn needed_layers(survey: &Survey, model: &SavedModel) -> Vec<(usize, usize)> {
         }
     }
     out
+}
+
+/// The node distributions of every layer `(target, step)`, from the maps; a step's nodes are
+/// predicted again only where its maps did not keep the conditional part a target needs.
+fn node_distributions<'m>(
+    survey: &Survey,
+    model: &'m SavedModel,
+    kept: &'m [StepMaps],
+    layers: &[(usize, usize)],
+) -> Result<Vec<CalibratedNodes<'m>>, PipelineError> {
+    let mut dists = Vec::with_capacity(layers.len());
+    for &(t, s) in layers {
+        let (cal, maps) = (&model.calibrated[t], &kept[s].targets[t]);
+        let d = match CalibratedNodes::from_maps(cal, maps) {
+            Some(d) => d,
+            None => {
+                let x = sample::node_features(survey, s);
+                CalibratedNodes::new(cal, maps, x.view()).map_err(|source| {
+                    PipelineError::Calibrate {
+                        target: model.targets[t].name.clone(),
+                        source,
+                    }
+                })?
+            }
+        };
+        dists.push(d);
+    }
+    Ok(dists)
 }
 
 fn steps_of(project: &crate::project::Project, names: &[String]) -> Vec<usize> {
@@ -234,19 +263,7 @@ pub fn compute(
             model: c.fit.model,
         })
         .collect();
-    // Node distributions per layer.
-    let mut features: Vec<Option<ndarray::Array2<f64>>> = vec![None; project.steps.len()];
-    let mut dists = Vec::with_capacity(layer_keys.len());
-    for &(t, s) in &layer_keys {
-        let x = features[s].get_or_insert_with(|| sample::node_features(survey, s));
-        let d = CalibratedNodes::new(&model.calibrated[t], &kept[s].targets[t], x.view()).map_err(
-            |source| PipelineError::Calibrate {
-                target: model.targets[t].name.clone(),
-                source,
-            },
-        )?;
-        dists.push(d);
-    }
+    let dists = node_distributions(survey, model, kept, &layer_keys)?;
     let measured = |t: usize, s: usize, d: &CalibratedNodes<'_>| {
         value_scores(
             &model.calibrated[t],

@@ -44,7 +44,7 @@
 //! (linear interpolation between order statistics, Hyndman & Fan 1996, *Am. Stat.* 50:361, type
 //! 7); under the exceedance convention the P10 and P90 labels swap so that P90 is the low value.
 
-use std::sync::Arc;
+use std::sync::{Arc, Mutex, PoisonError};
 
 use rand::rngs::StdRng;
 use rand::{RngExt, SeedableRng};
@@ -1300,12 +1300,25 @@ pub fn simulate(
     let area_count: usize = engine.layers.iter().map(|l| l.areas.len()).sum();
     let mut counts = vec![vec![0u32; n]; area_count];
     let mut kept = Vec::new();
+    // One simulation workspace per running task, reused by later pairs and chunks (a field does
+    // not depend on what its workspace held); a fresh one per rayon split would allocate and
+    // clear the whole torus for nearly every pair.
+    let pool: Mutex<Vec<Workspace>> = Mutex::new(Vec::new());
     let mut start = 0;
     while start < pairs {
         let end = (start + settings.chunk).min(pairs);
         let results: Vec<PairResult> = (start..end)
             .into_par_iter()
-            .map_init(Workspace::default, |ws, p| engine.run_pair(ws, p))
+            .map(|p| {
+                let mut ws = pool
+                    .lock()
+                    .unwrap_or_else(PoisonError::into_inner)
+                    .pop()
+                    .unwrap_or_default();
+                let result = engine.run_pair(&mut ws, p);
+                pool.lock().unwrap_or_else(PoisonError::into_inner).push(ws);
+                result
+            })
             .collect();
         for (k, res) in results.into_iter().enumerate() {
             let p = start + k;

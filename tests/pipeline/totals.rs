@@ -111,6 +111,65 @@ fn node_distributions_give_the_written_maps_exactly() {
     assert!(checked > 10_000, "{checked} nodes checked");
 }
 
+/// The node distributions built from the conditional part the maps kept (what a run does) are
+/// those built by predicting the nodes again, bit for bit, and keeping it leaves the maps as
+/// they were.
+#[test]
+fn node_distributions_from_kept_maps_equal_the_recomputed_ones() {
+    let l = loaded();
+    let xy = l.survey.project.grid.node_coordinates();
+    let ground = l
+        .model
+        .ground_flags(&l.survey, 0..l.survey.project.grid.len())
+        .expect("ground check");
+    let all: Vec<usize> = (0..l.model.calibrated.len()).collect();
+    let mut kept_parts = 0;
+    for (s, plain) in l.kept.iter().enumerate() {
+        let x = sample::node_features(&l.survey, s);
+        let maps = l
+            .model
+            .predict_keeping(x.view(), &xy, ground.as_deref(), &all)
+            .expect("predict");
+        for (t, cal) in l.model.calibrated.iter().enumerate() {
+            let (tm, before) = (&maps.targets[t], &plain.targets[t]);
+            for (a, b) in [
+                (&tm.lo, &before.lo),
+                (&tm.mid, &before.mid),
+                (&tm.hi, &before.hi),
+            ] {
+                assert!(a.iter().zip(b).all(|(p, q)| p.to_bits() == q.to_bits()));
+            }
+            assert!(before.conditional.is_none());
+            assert_eq!(tm.conditional.is_some(), cal.needs_conditional());
+            kept_parts += usize::from(tm.conditional.is_some());
+            let from_maps = CalibratedNodes::from_maps(cal, tm).expect("kept part");
+            let recomputed = CalibratedNodes::new(cal, tm, x.view()).expect("nodes");
+            // A target without its kept part has no distribution from the maps alone.
+            if cal.needs_conditional() {
+                assert!(CalibratedNodes::from_maps(cal, before).is_none());
+            }
+            let levels = [
+                1e-6, 0.01, 0.05, 0.1, 0.2, 0.37, 0.5, 0.63, 0.8, 0.9, 0.97, 0.999,
+            ];
+            for i in (0..tm.mid.len()).step_by(7) {
+                for &u in &levels {
+                    let (a, b) = (from_maps.quantile(i, u), recomputed.quantile(i, u));
+                    assert_eq!(a.to_bits(), b.to_bits(), "target {t} node {i} level {u}");
+                }
+                let y = tm.mid[i];
+                if y.is_finite() {
+                    assert_eq!(
+                        from_maps.cdf(i, y).to_bits(),
+                        recomputed.cdf(i, y).to_bits()
+                    );
+                }
+            }
+        }
+    }
+    // The fixture's hurdle targets (dSw, dSg) keep it at every step.
+    assert!(kept_parts >= 2 * l.kept.len(), "{kept_parts} kept parts");
+}
+
 /// Share of `values` below `y` and at or below it.
 fn shares(values: &[f64], y: f64) -> (f64, f64) {
     let n = values.len() as f64;
