@@ -429,23 +429,18 @@ fn run_json_records_provenance_and_cautions() {
     // Every well of the generated fixture is a producer or an injector: run.json, summary.json
     // and the report say what that means for the bands between wells.
     let flowing = tidemark::pipeline::FLOWING_WELLS_CAUTION;
-    assert!(
-        v["cautions"]
+    let says_so = |doc: &serde_json::Value| {
+        doc["cautions"]
             .as_array()
             .unwrap()
             .iter()
             .any(|c| c == flowing)
-    );
+    };
+    assert!(says_so(&v));
     let summary: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(f.out.join("summary.json")).unwrap())
             .unwrap();
-    assert!(
-        summary["cautions"]
-            .as_array()
-            .unwrap()
-            .iter()
-            .any(|c| c == flowing)
-    );
+    assert!(says_so(&summary));
     let html = std::fs::read_to_string(f.out.join("report.html")).unwrap();
     assert!(html.contains("they stand at the sources of change"));
     assert!(v["timings"].as_array().unwrap().len() >= 4);
