@@ -473,11 +473,9 @@ fn held_out_scores_at_well_nodes(l: &Loaded, c: &Computed) {
 fn totals_do_not_depend_on_the_thread_count() {
     let l = loaded();
     let text = |threads: usize| {
-        let pool = rayon::ThreadPoolBuilder::new()
-            .num_threads(threads)
-            .build()
-            .unwrap();
-        pool.install(|| csv_text(&compute(l, 40, 0, true).record).unwrap())
+        crate::threads::in_pool(threads, || {
+            csv_text(&compute(l, 40, 0, true).record).unwrap()
+        })
     };
     let one = text(1);
     assert_eq!(one, text(3));
@@ -636,11 +634,7 @@ fn an_estimated_mean_is_reported_applied_and_thread_independent() {
     let mut survey = held_out.clone();
     survey.project.totals.as_mut().expect("totals").mean = MeanRule::Estimated;
     let run = |threads: usize, keep: usize| {
-        let pool = rayon::ThreadPoolBuilder::new()
-            .num_threads(threads)
-            .build()
-            .unwrap();
-        pool.install(|| {
+        crate::threads::in_pool(threads, || {
             totals::compute(
                 &survey,
                 &l.ts,
