@@ -46,15 +46,9 @@ fn peak_kb() -> u64 {
         .unwrap_or(0)
 }
 
-/// CPU seconds used by the process so far (user + system, from `/proc/self/stat`).
-fn cpu_seconds() -> f64 {
-    let s = std::fs::read_to_string("/proc/self/stat").unwrap_or_default();
-    let after = s.rsplit(')').next().unwrap_or("");
-    let f: Vec<&str> = after.split_whitespace().collect();
-    let ticks: f64 = f.get(11).and_then(|v| v.parse().ok()).unwrap_or(0.0)
-        + f.get(12).and_then(|v| v.parse().ok()).unwrap_or(0.0);
-    ticks / 100.0
-}
+#[path = "support/cpu.rs"]
+mod cpu;
+use cpu::cpu_seconds;
 
 /// Normal node distributions (dP).
 struct NormalNodes {
