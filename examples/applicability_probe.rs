@@ -163,7 +163,8 @@ fn check(l: &Loaded) -> Checked {
             range_margin.push(o);
         }
         codes_rows.push(aoa.reasons(&a, None));
-        codes_both.push(aoa.reasons(&a, Some(&g.unlike)));
+        let flags: Vec<u8> = g.unlike.iter().map(|&u| u8::from(u)).collect();
+        codes_both.push(aoa.reasons(&a, Some(&flags)));
     }
     Checked {
         codes_rows,

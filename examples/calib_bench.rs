@@ -164,7 +164,10 @@ fn perturbed_run(
     };
     let mut w = Writer::new(out, &project.input_paths(), formats)?;
     let node_xy = project.grid.node_coordinates();
-    let ground = model.ground_flags(&survey, 0..project.grid.len())?;
+    let (ground, message) = model.location_flags(&survey, 0..project.grid.len());
+    if let Some(m) = message {
+        return Err(m.into());
+    }
     for (s, step) in project.steps.iter().enumerate() {
         let x = sample::node_features(&survey, s);
         let maps = model.predict(x.view(), &node_xy, ground.as_deref())?;

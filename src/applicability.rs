@@ -54,7 +54,12 @@
 //! Each node gets one code: [`REASON_INSIDE`] (0) inside the area; [`REASON_UNLIKE`] (1) unlike
 //! every well (the row's DI above the threshold, or the location flagged by [`Ground`]);
 //! [`REASON_RANGE`] (2) some attribute outside the training range; [`REASON_BOTH`] (3) both;
-//! [`REASON_NO_DATA`] (255) an attribute is missing, so nothing is predicted there.
+//! [`REASON_NO_DATA`] (255) an attribute is missing, so nothing is predicted there. The codes are
+//! bits: [`REASON_MARKED`] (4) is added where the node lies inside an outline the user marked as
+//! ground no well samples (`[area] unsampled`), so 4-7 are 0-3 plus "marked". Some unlike ground
+//! shows in no attribute and at no unusual distance from the wells (DEVELOPERS.md measures a
+//! culmination that even a classifier trained on its outline cannot find); only the user's
+//! knowledge of the field can flag it.
 
 use crate::grid::Grid;
 use ndarray::{Array2, ArrayView2, Axis};
@@ -362,8 +367,16 @@ pub const REASON_UNLIKE: u8 = 1;
 pub const REASON_RANGE: u8 = 2;
 /// Reason code: both unlike every well and outside the training range.
 pub const REASON_BOTH: u8 = 3;
+/// Reason bit: inside an outline the user marked as ground no well samples (added to 0-3).
+pub const REASON_MARKED: u8 = 4;
 /// Reason code: an attribute is missing at the node (no prediction is made there).
 pub const REASON_NO_DATA: u8 = 255;
+
+/// Location flag ([`Applicability::reasons`]'s `ground`): the location check finds the node's
+/// ground unlike every well's ([`Ground::assess`]).
+pub const GROUND_UNLIKE: u8 = 1;
+/// Location flag: the node lies inside an outline the user marked as unsampled.
+pub const GROUND_MARKED: u8 = REASON_MARKED;
 
 /// Combines the two reasons into one code (see the module documentation).
 pub fn reason_code(unlike: bool, outside_range: bool) -> u8 {
@@ -373,13 +386,14 @@ pub fn reason_code(unlike: bool, outside_range: bool) -> u8 {
 impl Applicability {
     /// Why each row of `a` is flagged: one reason code per row ([`REASON_INSIDE`],
     /// [`REASON_UNLIKE`], [`REASON_RANGE`], [`REASON_BOTH`], or [`REASON_NO_DATA`] where the DI is
-    /// undefined). `ground`, when given, holds one flag per row from [`Ground::assess`] (rows in
-    /// the same node order) and counts as "unlike every well". A row is inside exactly when its
-    /// code is [`REASON_INSIDE`]; without `ground` that agrees with [`Assessment::inside`].
+    /// undefined). `ground`, when given, holds one set of location flags per row (rows in the
+    /// same node order): [`GROUND_UNLIKE`] from [`Ground::assess`] counts as "unlike every well",
+    /// [`GROUND_MARKED`] adds [`REASON_MARKED`]. A row is inside exactly when its code is
+    /// [`REASON_INSIDE`]; without `ground` that agrees with [`Assessment::inside`].
     ///
     /// # Panics
     /// If `ground` is given with a length other than the number of rows.
-    pub fn reasons(&self, a: &Assessment, ground: Option<&[bool]>) -> Vec<u8> {
+    pub fn reasons(&self, a: &Assessment, ground: Option<&[u8]>) -> Vec<u8> {
         if let Some(g) = ground {
             assert_eq!(g.len(), a.di.len(), "one ground flag per row");
         }
@@ -390,8 +404,9 @@ impl Applicability {
                 if !di.is_finite() {
                     return REASON_NO_DATA;
                 }
-                let unlike = di > self.threshold || ground.is_some_and(|g| g[r]);
-                reason_code(unlike, out > 0)
+                let flags = ground.map_or(0, |g| g[r]);
+                let unlike = di > self.threshold || flags & GROUND_UNLIKE != 0;
+                reason_code(unlike, out > 0) | (flags & GROUND_MARKED)
             })
             .collect()
     }

@@ -627,6 +627,9 @@ pub fn check_project(path: &Path) -> CheckReport {
         read_failed = true;
         errors.push(Finding::io(&e));
     }
+    if let Err(e) = crate::outline::read_all(&project.unsampled) {
+        errors.push(Finding::io(&e));
+    }
     if let Some(infill) = &project.infill
         && infill.volume_map.is_some()
         && infill.volume_unit.is_none()
@@ -675,6 +678,7 @@ pub fn check_project(path: &Path) -> CheckReport {
                 project: project.clone(),
                 maps,
                 wells: usable,
+                unsampled: Vec::new(),
             };
             let (set, sample_warnings) = sample::at_wells(&survey);
             let swapped = sample_warnings

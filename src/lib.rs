@@ -28,6 +28,7 @@ pub mod ensemble;
 pub mod grid;
 pub mod io;
 pub mod metrics;
+pub mod outline;
 pub mod pipeline;
 pub mod project;
 pub mod report;

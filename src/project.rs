@@ -292,6 +292,10 @@ pub struct Project {
     pub report: ReportSection,
     /// Field totals (`[totals]`), when asked for; map paths resolved.
     pub totals: Option<crate::spatial::totals::TotalsSection>,
+    /// Closed outlines of ground no well samples (`[area] unsampled`, polyline CSV files, paths
+    /// resolved): nodes inside are outside the area of applicability whatever their attributes.
+    #[serde(default)]
+    pub unsampled: Vec<PathBuf>,
 }
 
 /// A problem with the manifest's settings; every variant names the key at fault.
@@ -484,6 +488,14 @@ struct RawManifest {
     infill: Option<RawInfill>,
     report: Option<RawReport>,
     totals: Option<crate::spatial::totals::TotalsSection>,
+    area: Option<RawArea>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawArea {
+    #[serde(default)]
+    unsampled: Vec<String>,
 }
 
 #[derive(Deserialize)]
@@ -801,6 +813,11 @@ impl Project {
         out.push(self.wells.file.clone());
         if let Some(v) = self.infill.as_ref().and_then(|i| i.volume_map.clone()) {
             out.push(v);
+        }
+        for u in &self.unsampled {
+            if !out.contains(u) {
+                out.push(u.clone());
+            }
         }
         if let Some(t) = &self.totals {
             for m in t.maps.values().map(PathBuf::from) {
@@ -1438,6 +1455,12 @@ fn check(raw: RawManifest, manifest_path: PathBuf) -> Result<Project, ManifestEr
         }
     };
 
+    // [area]
+    let unsampled: Vec<PathBuf> = raw
+        .area
+        .map(|a| a.unsampled.iter().map(|f| resolve(f)).collect())
+        .unwrap_or_default();
+
     Ok(Project {
         manifest_path,
         root,
@@ -1456,6 +1479,7 @@ fn check(raw: RawManifest, manifest_path: PathBuf) -> Result<Project, ManifestEr
         infill,
         report,
         totals,
+        unsampled,
     })
 }
 
@@ -1471,6 +1495,8 @@ pub struct Survey {
     pub maps: Vec<Vec<Vec<f64>>>,
     /// The wells CSV rows, in file order.
     pub wells: Vec<WellRecord>,
+    /// Outlines of ground no well samples (`[area] unsampled`), checked.
+    pub unsampled: Vec<crate::outline::Outline>,
 }
 
 /// Loads a project and reads every attribute map (in parallel) and the wells CSV. The first error
@@ -1482,10 +1508,12 @@ pub fn load_survey(path: &Path) -> Result<Survey, ProjectError> {
         maps.push(step.into_iter().collect::<Result<Vec<_>, _>>()?);
     }
     let wells = project.read_wells()?;
+    let unsampled = crate::outline::read_all(&project.unsampled)?;
     Ok(Survey {
         project,
         maps,
         wells,
+        unsampled,
     })
 }
 

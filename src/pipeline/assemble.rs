@@ -61,6 +61,7 @@ pub fn build_report(p: ReportParts) -> ReportInput {
             [lo.to_uppercase(), hi.to_uppercase()]
         },
         injector_cores: Vec::new(),
+        marked_ground: None,
         totals: None,
     }
 }

@@ -91,7 +91,8 @@ pub struct StepMaps {
     /// widened range check and the ground check together (inside exactly where `reasons` is 0).
     pub applicability: Assessment,
     /// Why each node is outside the area: [`crate::applicability::REASON_INSIDE`] (0),
-    /// `REASON_UNLIKE` (1), `REASON_RANGE` (2), `REASON_BOTH` (3), `REASON_NO_DATA` (255).
+    /// `REASON_UNLIKE` (1), `REASON_RANGE` (2), `REASON_BOTH` (3), each plus `REASON_MARKED` (4)
+    /// inside the user's outlines of unsampled ground, `REASON_NO_DATA` (255).
     pub reasons: Vec<u8>,
 }
 
@@ -113,14 +114,15 @@ impl SavedModel {
 
     /// The ground check ([`Ground`]) at the nodes `nodes` (indices into the grid, in order) of a
     /// survey: each node's attribute history over the model's training steps, matched by step
-    /// name, one flag per node (true: unlike the ground the wells sample). `Ok(None)` for a model
-    /// without a ground check; an error message when the survey lacks a training step or an
-    /// attribute (the caller warns and maps with the row check alone).
+    /// name, one set of location flags per node ([`crate::applicability::GROUND_UNLIKE`]: unlike
+    /// the ground the wells sample). `Ok(None)` for a model without a ground check; an error
+    /// message when the survey lacks a training step or an attribute (the caller warns and maps
+    /// with the row check alone). [`SavedModel::location_flags`] adds the user's outlines.
     pub fn ground_flags(
         &self,
         survey: &crate::project::Survey,
         nodes: std::ops::Range<usize>,
-    ) -> Result<Option<Vec<bool>>, String> {
+    ) -> Result<Option<Vec<u8>>, String> {
         let Some(ground) = &self.ground else {
             return Ok(None);
         };
@@ -157,23 +159,48 @@ impl SavedModel {
                 .collect();
             let hist = node_histories(&part, end - start);
             let pos: Vec<[f64; 2]> = xy[start..end].iter().map(|&(x, y)| [x, y]).collect();
-            flags.extend(ground.assess(&pos, hist.view()).unlike);
+            let unlike = ground.assess(&pos, hist.view()).unlike;
+            flags.extend(unlike.iter().map(|&u| {
+                if u {
+                    crate::applicability::GROUND_UNLIKE
+                } else {
+                    0
+                }
+            }));
             start = end;
         }
         Ok(Some(flags))
+    }
+
+    /// The location flags every prediction at `nodes` takes: [`Self::ground_flags`] joined with
+    /// the survey's outlines of unsampled ground ([`crate::outline`]), which apply even when the
+    /// ground check cannot run (its message is then returned beside the flags).
+    pub fn location_flags(
+        &self,
+        survey: &crate::project::Survey,
+        nodes: std::ops::Range<usize>,
+    ) -> (Option<Vec<u8>>, Option<String>) {
+        let marked =
+            crate::outline::marked_nodes(&survey.unsampled, &survey.project.grid, nodes.clone());
+        let (ground, message) = match self.ground_flags(survey, nodes) {
+            Ok(g) => (g, None),
+            Err(m) => (None, Some(m)),
+        };
+        (crate::outline::join(ground, marked), message)
     }
 
     /// Predicts every row of `x` located at `xy` (world coordinates, one per row; rows with a
     /// missing attribute give `NaN` everywhere and are not in the area of applicability). Bands
     /// widen with each row's dissimilarity to the training rows and with its distance to the
     /// nearest well beyond what cross-validation spanned (each target's spread rule). `ground`,
-    /// one flag per row from [`SavedModel::ground_flags`], joins the area of applicability as
-    /// "unlike every well".
+    /// one set of location flags per row from [`SavedModel::location_flags`] (or
+    /// [`SavedModel::ground_flags`]), joins the area of applicability as "unlike every well" and
+    /// "marked as unsampled" ([`crate::applicability::Applicability::reasons`]).
     pub fn predict(
         &self,
         x: ArrayView2<f64>,
         xy: &[(f64, f64)],
-        ground: Option<&[bool]>,
+        ground: Option<&[u8]>,
     ) -> Result<StepMaps, PipelineError> {
         self.predict_keeping(x, xy, ground, &[])
     }
@@ -185,7 +212,7 @@ impl SavedModel {
         &self,
         x: ArrayView2<f64>,
         xy: &[(f64, f64)],
-        ground: Option<&[bool]>,
+        ground: Option<&[u8]>,
         keep: &[usize],
     ) -> Result<StepMaps, PipelineError> {
         let n = x.nrows();
@@ -350,7 +377,8 @@ pub fn injector_cores(
                 .filter(|(c, n)| **n && **c != REASON_NO_DATA)
                 .map(|(c, _)| *c)
                 .collect();
-            let count = |code: u8| codes.iter().filter(|&&c| c == code).count();
+            // The user's mark (bit 4) does not change why the data flag a node.
+            let count = |code: u8| codes.iter().filter(|&&c| c & 3 == code).count();
             crate::report::area::InjectorCores {
                 step: name.clone(),
                 nodes: codes.len(),
@@ -360,6 +388,45 @@ pub fn injector_cores(
             }
         })
         .collect()
+}
+
+/// How much mapped ground (at the first step) lies inside the survey's outlines of unsampled
+/// ground (`[area] unsampled`); `None` without outlines.
+pub fn marked_ground(
+    survey: &crate::project::Survey,
+    steps: &[StepMaps],
+) -> Option<crate::report::area::MarkedGround> {
+    use crate::applicability::{REASON_MARKED, REASON_NO_DATA};
+    let first = steps.first()?;
+    if survey.unsampled.is_empty() {
+        return None;
+    }
+    let mapped: Vec<u8> = first
+        .reasons
+        .iter()
+        .copied()
+        .filter(|&c| c != REASON_NO_DATA)
+        .collect();
+    let outlines = survey
+        .unsampled
+        .iter()
+        .map(|o| {
+            let file = o.file.file_name().map_or_else(
+                || o.file.display().to_string(),
+                |f| f.to_string_lossy().into(),
+            );
+            if o.name.is_empty() {
+                file
+            } else {
+                format!("{file} ({})", o.name)
+            }
+        })
+        .collect();
+    Some(crate::report::area::MarkedGround {
+        outlines,
+        nodes: mapped.iter().filter(|&&c| c & REASON_MARKED != 0).count(),
+        mapped: mapped.len(),
+    })
 }
 
 /// File-name labels (`pNN`) of the lower and upper band edges for a convention and level.

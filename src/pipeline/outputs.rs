@@ -363,7 +363,9 @@ pub const AREA_REASON_CODES: &str = "0 inside the area of applicability; 1 unlik
 (the node's attributes at this step are farther from every training row than the cross-validated \
 threshold, or its location and attribute history are unlike the ground the wells sample); 2 \
 outside the training range (an attribute beyond the wells' range by more than a tenth of its \
-width, or a step the wells never saw); 3 both; 255 no data (an attribute is missing, nothing is \
+width, or a step the wells never saw); 3 both; 4 inside an outline of ground no well samples \
+that the project marks ([area] unsampled), added to the others: 5 marked and unlike, 6 marked \
+and outside the range, 7 all three; 255 no data (an attribute is missing, nothing is \
 predicted)";
 
 /// Name of the reason-code map of a step (without extension).

@@ -122,12 +122,8 @@ pub fn predict(
     let n_feat = model.feature_names.len();
     let xy = p.grid.node_coordinates();
     let nodes = j0 * p.grid.nx..j1 * p.grid.nx;
-    let ground = model
-        .ground_flags(&survey, nodes.clone())
-        .unwrap_or_else(|message| {
-            warnings.push(message);
-            None
-        });
+    let (ground, message) = model.location_flags(&survey, nodes.clone());
+    warnings.extend(message);
     for (s, step) in p.steps.iter().enumerate() {
         let step_value = match model.step_names.iter().position(|n| n == &step.name) {
             Some(k) => k as f64,

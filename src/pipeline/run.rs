@@ -167,6 +167,7 @@ pub fn run(opts: &RunOptions) -> Result<RunOutcome, PipelineError> {
                 run: assemble::run_info(project, &model, seed, &stages.timings, texts),
             });
             input.injector_cores = super::model::injector_cores(&survey, &model, &kept);
+            input.marked_ground = super::model::marked_ground(&survey, &kept);
             input.totals = field_totals
                 .as_ref()
                 .map(|c| totals::report_section(&c.record));
@@ -206,9 +207,10 @@ fn predict_and_write(
     let bar = stages.bar(project.steps.len() as u64, "predict and write maps");
     let node_xy = project.grid.node_coordinates();
     // The ground check looks at each node's whole attribute history: once for every step.
-    let ground = model
-        .ground_flags(survey, 0..project.grid.len())
-        .map_err(PipelineError::Invalid)?;
+    let (ground, message) = model.location_flags(survey, 0..project.grid.len());
+    if let Some(m) = message {
+        return Err(PipelineError::Invalid(m));
+    }
     // The field totals' node distributions take the model's conditional part from these maps.
     let layers = totals::needed_layers(survey, model);
     for (s, step) in project.steps.iter().enumerate() {
@@ -353,6 +355,7 @@ fn run_record(
             "report": project.report,
             "extract": project.extract,
             "totals": project.totals,
+            "area": { "unsampled": project.unsampled },
             "formats": opts.formats,
         }),
         convention: convention_text(model.convention, model.level),

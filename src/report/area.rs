@@ -1,6 +1,7 @@
-//! The report's paragraph on the area of applicability next to injectors: how many nodes within
-//! one well spacing of an injector (the swept cores) lie outside the area at each step, and why
-//! (reason codes of `crate::applicability`: unlike every well, outside the training range, both).
+//! The report's paragraphs on the area of applicability: how many nodes within one well spacing
+//! of an injector (the swept cores) lie outside the area at each step, and why (reason codes of
+//! `crate::applicability`: unlike every well, outside the training range, both); and how much
+//! ground the project's own outlines mark as unsampled (`[area] unsampled`).
 //!
 //! The area itself follows Meyer & Pebesma (2021) for the dissimilarity index; the wording here
 //! only reports its counts.
@@ -23,6 +24,37 @@ pub struct InjectorCores {
     pub range: usize,
     /// Flagged for both reasons.
     pub both: usize,
+}
+
+/// Ground inside the project's outlines of unsampled ground.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct MarkedGround {
+    /// Each outline as "file (name)" or "file".
+    pub outlines: Vec<String>,
+    /// Mapped nodes inside any outline.
+    pub nodes: usize,
+    /// Mapped nodes in all.
+    pub mapped: usize,
+}
+
+/// The paragraph (HTML, one `<p>`) on the outlines of unsampled ground; empty without outlines.
+pub fn marked_note(m: Option<&MarkedGround>) -> String {
+    let Some(m) = m.filter(|m| !m.outlines.is_empty()) else {
+        return String::new();
+    };
+    let list: Vec<String> = m.outlines.iter().map(|o| html_escape(o)).collect();
+    format!(
+        "<p class=\"note\">The project marks ground that no well samples ({}): {} of {} mapped \
+         nodes ({:.1} %) lie inside. They are outside the area of applicability whatever their \
+         attributes (reason code 4 and above in <code>area_reason</code>), drawn hatched and never \
+         ranked as infill targets; their values are what wells elsewhere suggest, not a \
+         prediction for that ground.</p>\n",
+        list.join("; "),
+        m.nodes,
+        m.mapped,
+        100.0 * m.nodes as f64 / m.mapped.max(1) as f64
+    )
 }
 
 /// The paragraph (HTML, one `<p>`) that says which swept cores next to injectors are outside

@@ -389,6 +389,7 @@ fn maps_section(h: &mut String, input: &ReportInput, results_dir: &Path) {
         }
     }
     h.push_str(&super::area::injector_note(&input.injector_cores));
+    h.push_str(&super::area::marked_note(input.marked_ground.as_ref()));
     infill_block(h, input.infill.as_ref(), &input.xy_unit, results_dir);
     h.push_str("</section>\n");
 }

@@ -50,6 +50,9 @@ pub struct ReportInput {
     /// Nodes next to injectors outside the area of applicability, per step.
     #[serde(default)]
     pub injector_cores: Vec<super::area::InjectorCores>,
+    /// Ground inside the project's outlines of unsampled ground, when it has any.
+    #[serde(default)]
+    pub marked_ground: Option<super::area::MarkedGround>,
     /// Field totals, when the manifest asks for them.
     pub totals: Option<super::totals::TotalsReport>,
 }

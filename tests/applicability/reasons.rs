@@ -2,8 +2,8 @@
 
 use ndarray::Array2;
 use tidemark::applicability::{
-    Applicability, Ground, REASON_BOTH, REASON_INSIDE, REASON_NO_DATA, REASON_RANGE, REASON_UNLIKE,
-    matrix, well_spacing,
+    Applicability, GROUND_MARKED, GROUND_UNLIKE, Ground, REASON_BOTH, REASON_INSIDE, REASON_MARKED,
+    REASON_NO_DATA, REASON_RANGE, REASON_UNLIKE, matrix, well_spacing,
 };
 
 #[test]
@@ -42,7 +42,8 @@ fn each_flag_says_why() {
         assert_eq!(*c == REASON_INSIDE, *inside);
     }
     // A ground flag turns an inside row into "unlike every well" and leaves the others' reasons.
-    let codes = aoa.reasons(&a, Some(&[true, false, true, false, true]));
+    let u = GROUND_UNLIKE;
+    let codes = aoa.reasons(&a, Some(&[u, 0, u, 0, u]));
     assert_eq!(
         codes,
         vec![
@@ -53,6 +54,20 @@ fn each_flag_says_why() {
             REASON_NO_DATA
         ]
     );
+    // The user's mark adds its bit to whatever the data say (4-7), never to a node without data.
+    let m = GROUND_MARKED;
+    let codes = aoa.reasons(&a, Some(&[m, m, m, m | u, m]));
+    assert_eq!(
+        codes,
+        vec![
+            REASON_MARKED,
+            REASON_UNLIKE | REASON_MARKED,
+            REASON_RANGE | REASON_MARKED,
+            REASON_BOTH | REASON_MARKED,
+            REASON_NO_DATA
+        ]
+    );
+    assert_eq!(REASON_MARKED, 4);
 }
 
 #[test]

@@ -213,6 +213,31 @@ fn cases() -> Vec<Case> {
             &["project.toml, line 12", "unknown field `colour`"],
         ),
         err(
+            "outline of unsampled ground with two vertices",
+            |d| {
+                append(d, P, "\n[area]\nunsampled = [\"block.csv\"]\n");
+                std::fs::write(
+                    d.join("block.csv"),
+                    "x,y,line\n0,0,north block\n50,0,north block\n0,0,north block\n",
+                )
+                .unwrap();
+            },
+            &[
+                "block.csv, line 2",
+                "outline 'north block' has 2 distinct vertices",
+            ],
+        ),
+        err(
+            "outline file missing",
+            |d| append(d, P, "\n[area]\nunsampled = [\"nowhere.csv\"]\n"),
+            &["nowhere.csv"],
+        ),
+        err(
+            "unknown key in [area]",
+            |d| append(d, P, "\n[area]\noutlines = [\"block.csv\"]\n"),
+            &["project.toml, line", "unknown field `outlines`"],
+        ),
+        err(
             "TOML syntax error",
             |d| edit(d, P, "nx = 6", "nx = = 6"),
             &["project.toml, line 9"],
@@ -641,6 +666,7 @@ fn bad_inputs_through_the_binary() {
         "unreadable GeoTIFF",
         "wells CSV missing a column",
         "wells CSV unknown step",
+        "outline of unsampled ground with two vertices",
     ];
     for case in cases().iter().filter(|c| wanted.contains(&c.name)) {
         let dir = tempfile::tempdir().unwrap();
