@@ -111,9 +111,16 @@ impl MapSetting {
     }
 
     /// The setting of a survey's maps (see [`MapSetting::new`]).
+    /// The outlines of unsampled ground (`[area] unsampled`) are drawn over every map.
     pub fn of_survey(survey: &crate::project::Survey, model: &SavedModel) -> Self {
         let p = &survey.project;
-        Self::new(&p.grid, model, &p.steps, &survey.wells)
+        let mut setting = Self::new(&p.grid, model, &p.steps, &survey.wells);
+        for o in &survey.unsampled {
+            let mut points = o.points.clone();
+            points.extend(o.points.first().copied());
+            setting.lines.push(MapLine { points });
+        }
+        setting
     }
 
     /// The setting with the skill verdicts of a run's summary: every step of a target whose
