@@ -68,6 +68,11 @@ pub struct NodeContext<'a> {
     pub xy: Option<&'a [(f64, f64)]>,
     /// Step index of each row.
     pub step: Option<&'a [usize]>,
+    /// A hurdle target's probability of a change at each row, calibrated on the wells and before
+    /// any [`PriorShift`], when already computed on these rows
+    /// ([`CalibratedTarget::change_probability`]): the change forest is then not walked again.
+    /// Ignored unless it holds one value per row.
+    pub change: Option<&'a [f64]>,
 }
 
 impl<'a> NodeContext<'a> {
@@ -78,6 +83,7 @@ impl<'a> NodeContext<'a> {
             distance,
             xy: None,
             step: None,
+            change: None,
         }
     }
 }
@@ -123,7 +129,8 @@ impl CalibratedTarget {
         let (parts, scale, conditional) = self.continuous_parts(x, adj.as_deref(), keep)?;
         let (mut out, cond_mid) = match &self.hurdle {
             Some(h) => {
-                let out = self.mixture(h, x, &parts, &scale);
+                let known = context.and_then(|c| c.change);
+                let out = self.mixture(h, x, &parts, &scale, known);
                 (out, Some(parts.mid))
             }
             None => (parts, None),
@@ -330,14 +337,20 @@ impl CalibratedTarget {
         x: ArrayView2<f64>,
         parts: &TargetPrediction,
         scale: &[f64],
+        known: Option<&[f64]>,
     ) -> TargetPrediction {
-        let raw = h.forest.predict(x);
         let n = parts.mid.len();
-        let p: Vec<f64> = (0..n)
-            .map(|i| {
-                let p = h.map.predict(raw[[i, 0]]);
-                h.prior.as_ref().map_or(p, |s| s.apply(p))
-            })
+        // The calibrated probability before the nodes' share, as `change_probability` gives it.
+        let calibrated: Vec<f64> = match known.filter(|k| k.len() == n) {
+            Some(k) => k.to_vec(),
+            None => {
+                let raw = h.forest.predict(x);
+                raw.column(0).iter().map(|&r| h.map.predict(r)).collect()
+            }
+        };
+        let p: Vec<f64> = calibrated
+            .iter()
+            .map(|&p| h.prior.as_ref().map_or(p, |s| s.apply(p)))
             .collect();
         let (u_lo, u_mid, u_hi) = h.levels;
         let nt = self.thresholds.len();

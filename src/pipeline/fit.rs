@@ -185,6 +185,23 @@ pub fn fit_model(
     seed: u64,
     stages: &mut Stages,
 ) -> Result<(SavedModel, Vec<Vec<f64>>), PipelineError> {
+    fit_model_keeping(survey, ts, seed, stages).map(|(model, imp, _)| (model, imp))
+}
+
+/// Each hurdle target's calibrated probability of a change (before the nodes' share) at the
+/// mapped nodes of every step of the survey a model was fitted on: `[step][target]`, `None` for
+/// a continuous target; the rows of each step are the nodes with every attribute, in order.
+pub type KnownChange = Vec<Vec<Option<Vec<f64>>>>;
+
+/// As [`fit_model`], also returning the probabilities of a change that fitting computed at every
+/// node ([`node_priors`]), so that mapping the same survey need not compute them again
+/// ([`SavedModel::predict_known`]).
+pub fn fit_model_keeping(
+    survey: &Survey,
+    ts: &TrainingSet,
+    seed: u64,
+    stages: &mut Stages,
+) -> Result<(SavedModel, Vec<Vec<f64>>, KnownChange), PipelineError> {
     let project = &survey.project;
     let settings = calibration_settings(project, seed);
     let all_cols: Vec<usize> = (0..ts.x.ncols()).collect();
@@ -250,7 +267,7 @@ pub fn fit_model(
         bar.inc(1);
     }
     bar.finish_and_clear();
-    node_priors(survey, &mut calibrated)?;
+    let known = node_priors(survey, &mut calibrated)?;
     stages.done("fit and calibrate");
 
     let model = SavedModel {
@@ -268,7 +285,7 @@ pub fn fit_model(
         wells: well_positions(survey),
         wells_vs_nodes,
     };
-    Ok((model, imp))
+    Ok((model, imp, known))
 }
 
 /// Adjusts every hurdle target's probability of a change to the share of change among the
@@ -277,11 +294,13 @@ pub fn fit_model(
 /// of the nodes' share over all steps together (the probability forest and its recalibration
 /// pool the steps, so its prior is the wells' share over all steps), set on the target. A
 /// target whose estimate cannot be made keeps the wells' share; an iteration that did not
-/// settle is kept and warned about.
+/// settle is kept and warned about. Returns the probabilities it computed ([`KnownChange`]).
 pub fn node_priors(
     survey: &Survey,
     calibrated: &mut [CalibratedTarget],
-) -> Result<(), PipelineError> {
+) -> Result<KnownChange, PipelineError> {
+    let n_steps = survey.project.steps.len();
+    let mut known: KnownChange = vec![vec![None; calibrated.len()]; n_steps];
     let hurdles: Vec<usize> = (0..calibrated.len())
         .filter(|&t| {
             calibrated[t]
@@ -291,7 +310,7 @@ pub fn node_priors(
         })
         .collect();
     if hurdles.is_empty() {
-        return Ok(());
+        return Ok(known);
     }
     // Per hurdle target: the wells' share, and each step's name and node probabilities.
     let mut training = vec![f64::NAN; hurdles.len()];
@@ -331,7 +350,14 @@ pub fn node_priors(
         }
         cal.set_prior(shift);
     }
-    Ok(())
+    for (k, &t) in hurdles.iter().enumerate() {
+        for (name, p) in std::mem::take(&mut probs[k]) {
+            if let Some(s) = survey.project.step_index(&name) {
+                known[s][t] = Some(p);
+            }
+        }
+    }
+    Ok(known)
 }
 
 /// The ground check ([`Ground`]) fitted on the wells of the training set: one position, one

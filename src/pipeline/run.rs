@@ -128,8 +128,8 @@ pub fn run(opts: &RunOptions) -> Result<RunOutcome, PipelineError> {
     let run_warnings: Vec<RunWarning> = left_out.iter().map(RunWarning::extraction).collect();
     stages.done("load and extract");
 
-    let (model, imp) = fit::fit_model(&survey, &ts, seed, &mut stages)?;
-    let kept = predict_and_write(&survey, &model, &mut w, &mut stages)?;
+    let (model, imp, mut known) = fit::fit_model_keeping(&survey, &ts, seed, &mut stages)?;
+    let kept = predict_and_write(&survey, &model, &mut known, &mut w, &mut stages)?;
     let field_totals = field_totals(&survey, &ts, &model, &kept, seed, opts, &mut w)?;
     if field_totals.is_some() {
         stages.done("field totals");
@@ -194,10 +194,12 @@ pub fn run(opts: &RunOptions) -> Result<RunOutcome, PipelineError> {
 }
 
 /// Predicts every node of every step, writes the maps and `maps/metadata.json`, and returns the
-/// maps for the infill ranking and the pictures.
+/// maps for the infill ranking and the pictures. `known` holds the probabilities of a change
+/// that fitting computed; each step's are used, then dropped.
 fn predict_and_write(
     survey: &Survey,
     model: &SavedModel,
+    known: &mut fit::KnownChange,
     w: &mut Writer,
     stages: &mut Stages,
 ) -> Result<Vec<StepMaps>, PipelineError> {
@@ -216,7 +218,9 @@ fn predict_and_write(
     for (s, step) in project.steps.iter().enumerate() {
         let x = sample::node_features(survey, s);
         let keep: Vec<usize> = layers.iter().filter(|l| l.1 == s).map(|l| l.0).collect();
-        let maps = model.predict_keeping(x.view(), &node_xy, ground.as_deref(), &keep)?;
+        let step_known = known.get_mut(s).map(std::mem::take).unwrap_or_default();
+        let maps =
+            model.predict_known(x.view(), &node_xy, ground.as_deref(), &keep, &step_known)?;
         metadata.extend(write_step_maps(w, model, &project.grid, &step.name, &maps)?);
         kept.push(maps);
         bar.inc(1);

@@ -3,6 +3,7 @@
 pub(crate) mod end_to_end;
 mod infill;
 mod kinds;
+mod known;
 mod report;
 mod totals;
 mod truth;
