@@ -483,15 +483,7 @@ fn main() {
             std::fs::write(&manifest, text).expect("extend the manifest");
         }
         let t1 = Instant::now();
-        let opts = RunOptions {
-            formats: Formats {
-                geotiff: true,
-                xyz: false,
-            },
-            pictures: false,
-            report: false,
-            ..RunOptions::new(&manifest, &results)
-        };
+        let opts = RunOptions::maps_only(&manifest, &results);
         run::run(&opts).unwrap_or_else(|e| panic!("seed {seed}: run: {e}"));
         let t_run = t1.elapsed().as_secs_f64();
         let t2 = Instant::now();

@@ -28,7 +28,6 @@
 use std::collections::BTreeMap;
 use std::path::PathBuf;
 use std::time::Instant;
-use tidemark::pipeline::outputs::Formats;
 use tidemark::pipeline::run::{self, RunOptions};
 use tidemark::pipeline::score::score_with;
 use tidemark::synth::{SynthSettings, generate, write_project};
@@ -269,15 +268,7 @@ fn main() {
             );
             std::fs::write(&manifest, text).expect("manifest");
         }
-        let opts = RunOptions {
-            formats: Formats {
-                geotiff: true,
-                xyz: false,
-            },
-            pictures: false,
-            report: false,
-            ..RunOptions::new(&manifest, &results)
-        };
+        let opts = RunOptions::maps_only(&manifest, &results);
         run::run(&opts).unwrap_or_else(|e| panic!("seed {seed}: run: {e}"));
         let (score, _) = score_with(&results, &field_dir, Some(&manifest))
             .unwrap_or_else(|e| panic!("seed {seed}: score: {e}"));

@@ -60,6 +60,20 @@ impl RunOptions {
             keep_realizations: None,
         }
     }
+
+    /// Options for maps and figures only: GeoTIFF maps, no XYZ, no pictures, no report (the
+    /// harnesses and the tests that score many fields).
+    pub fn maps_only(project: impl Into<PathBuf>, out: impl Into<PathBuf>) -> Self {
+        Self {
+            formats: Formats {
+                geotiff: true,
+                xyz: false,
+            },
+            pictures: false,
+            report: false,
+            ..Self::new(project, out)
+        }
+    }
 }
 
 /// Hash of one input file.

@@ -6,7 +6,6 @@ use std::path::{Path, PathBuf};
 use tidemark::applicability::{REASON_MARKED, REASON_NO_DATA};
 use tidemark::io;
 use tidemark::outline::{self, area, contains};
-use tidemark::pipeline::outputs::Formats;
 use tidemark::pipeline::run::{self, RunOptions};
 use tidemark::pipeline::score::score_with;
 use tidemark::synth::{SynthSettings, generate, write_project};
@@ -144,15 +143,7 @@ fn marked_culmination_is_flagged_and_never_silently_missed() {
     .unwrap();
 
     let run_to = |out: &Path| {
-        let opts = RunOptions {
-            formats: Formats {
-                geotiff: true,
-                xyz: false,
-            },
-            pictures: false,
-            report: false,
-            ..RunOptions::new(&manifest, out)
-        };
+        let opts = RunOptions::maps_only(&manifest, out);
         run::run(&opts).expect("run");
     };
     let marked = root.join("marked");

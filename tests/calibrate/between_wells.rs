@@ -58,15 +58,7 @@ fn field() -> &'static Field {
         write_project(&synth, &settings, &dir).expect("write the field");
         let manifest = dir.join("project.toml");
         let results = root.join("results");
-        let opts = RunOptions {
-            formats: Formats {
-                geotiff: true,
-                xyz: false,
-            },
-            pictures: false,
-            report: false,
-            ..RunOptions::new(&manifest, &results)
-        };
+        let opts = RunOptions::maps_only(&manifest, &results);
         run::run(&opts).expect("run");
         let (plain, _) = score_with(&results, &dir, Some(&manifest)).expect("score");
         let perturbed = perturbed_run(&manifest, &dir, &root.join("perturbed"), 1e-6);
