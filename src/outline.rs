@@ -92,13 +92,17 @@ fn checked(path: &Path, p: Polyline) -> Result<Outline, IoError> {
     })
 }
 
-/// Area of a closed ring by the shoelace formula (absolute value).
+/// Area of a closed ring by the shoelace formula (absolute value), with the vertices taken
+/// relative to the first so that large map coordinates do not cancel.
 pub fn area(points: &[(f64, f64)]) -> f64 {
     let n = points.len();
+    let Some(&(x0, y0)) = points.first() else {
+        return 0.0;
+    };
     let twice: f64 = (0..n)
         .map(|i| {
             let (a, b) = (points[i], points[(i + 1) % n]);
-            a.0 * b.1 - b.0 * a.1
+            (a.0 - x0) * (b.1 - y0) - (b.0 - x0) * (a.1 - y0)
         })
         .sum();
     (twice / 2.0).abs()

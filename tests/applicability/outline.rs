@@ -25,6 +25,12 @@ fn point_in_outline_by_hand() {
     assert_eq!(area(&l), 3.0);
     let reversed: Vec<(f64, f64)> = l.iter().rev().copied().collect();
     assert_eq!(area(&reversed), 3.0);
+    // The same ring at map coordinates of a projected grid (UTM-like eastings and northings).
+    let far: Vec<(f64, f64)> = l
+        .iter()
+        .map(|&(x, y)| (x + 612_000.0, y + 6_810_000.0))
+        .collect();
+    assert_eq!(area(&far), 3.0);
     for (x, y, inside) in [
         (0.5, 0.5, true),
         (1.5, 0.5, true),
