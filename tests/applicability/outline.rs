@@ -176,6 +176,30 @@ fn marked_culmination_is_flagged_and_never_silently_missed() {
             }
         }
     }
+    // `tidemark predict` with the saved model on the same project marks the same nodes.
+    let predicted = root.join("predicted");
+    tidemark::pipeline::predict::predict(
+        &marked.join("model.json"),
+        &manifest,
+        &predicted,
+        None,
+        tidemark::pipeline::outputs::Formats {
+            geotiff: true,
+            xyz: false,
+        },
+    )
+    .expect("predict");
+    for step in ["m1", "m2"] {
+        let rel = format!("maps/{step}/area_reason.tif");
+        let a = io::geotiff::read(&marked.join(&rel)).unwrap().values;
+        let b = io::geotiff::read(&predicted.join(&rel)).unwrap().values;
+        assert!(
+            a.iter()
+                .zip(&b)
+                .all(|(x, y)| x == y || (x.is_nan() && y.is_nan())),
+            "{step}: predict's reasons differ from the run's"
+        );
+    }
     let (score, _) = score_with(&marked, &dir, Some(&manifest)).expect("score");
     for t in &score.targets {
         let cap = t
