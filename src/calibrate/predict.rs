@@ -341,11 +341,13 @@ impl CalibratedTarget {
     ) -> TargetPrediction {
         let n = parts.mid.len();
         // The calibrated probability before the nodes' share, as `change_probability` gives it.
-        let calibrated: Vec<f64> = match known.filter(|k| k.len() == n) {
-            Some(k) => k.to_vec(),
+        let walked: Vec<f64>;
+        let calibrated: &[f64] = match known.filter(|k| k.len() == n) {
+            Some(k) => k,
             None => {
                 let raw = h.forest.predict(x);
-                raw.column(0).iter().map(|&r| h.map.predict(r)).collect()
+                walked = raw.column(0).iter().map(|&r| h.map.predict(r)).collect();
+                &walked
             }
         };
         let p: Vec<f64> = calibrated
