@@ -49,12 +49,6 @@ fn known_change_probabilities_give_the_same_maps() {
             .predict_known(x.view(), &xy, ground.as_deref(), &[], step_known)
             .expect("predict with known probabilities");
         for (t, (a, b)) in walked.targets.iter().zip(&given.targets).enumerate() {
-            let same = |u: &[f64], v: &[f64]| {
-                u.len() == v.len()
-                    && u.iter()
-                        .zip(v)
-                        .all(|(x, y)| x.to_bits() == y.to_bits() || (x.is_nan() && y.is_nan()))
-            };
             assert!(same(&a.lo, &b.lo), "step {s} target {t}: lower edge");
             assert!(same(&a.mid, &b.mid), "step {s} target {t}: P50");
             assert!(same(&a.hi, &b.hi), "step {s} target {t}: upper edge");
