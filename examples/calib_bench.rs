@@ -169,7 +169,7 @@ fn perturbed_run(
         return Err(m.into());
     }
     for (s, step) in project.steps.iter().enumerate() {
-        let x = sample::node_features(&survey, s);
+        let x = model.node_features(&survey, s);
         let maps = model.predict(x.view(), &node_xy, ground.as_deref())?;
         write_step_maps(&mut w, &model, &project.grid, &step.name, &maps)?;
     }

@@ -33,7 +33,7 @@ fn main() {
     let ground = model
         .ground_flags(&survey, 0..grid.len())
         .expect("ground check");
-    let x = tidemark::sample::node_features(&survey, step);
+    let x = model.node_features(&survey, step);
     let all: Vec<usize> = (0..model.calibrated.len()).collect();
     let c0 = cpu_seconds();
     let maps = model

@@ -5,8 +5,10 @@ fn main() {
     let args: Vec<String> = std::env::args().skip(1).collect();
     let model = SavedModel::load(std::path::Path::new(&args[0])).unwrap();
     let survey = tidemark::project::load_survey(std::path::Path::new(&args[1])).unwrap();
-    let x = tidemark::sample::node_features(&survey, 0);
-    for cal in &model.calibrated {
+    let wide = model.node_features(&survey, 0);
+    for (t, cal) in model.calibrated.iter().enumerate() {
+        // Each target reads its own columns (its smoothing width's block and the step).
+        let x = model.target_table(wide.view(), t);
         let depth: f64 = cal
             .forest
             .trees()
@@ -46,6 +48,7 @@ fn main() {
         );
     }
     let t = Instant::now();
-    let _ = model.applicability.assess(x.view());
+    let plain = wide.select(ndarray::Axis(1), &model.columns(None));
+    let _ = model.applicability.assess(plain.view());
     println!("applicability {:.2} s", t.elapsed().as_secs_f64());
 }

@@ -34,5 +34,6 @@ pub mod project;
 pub mod report;
 pub mod sample;
 pub mod skill;
+pub mod smooth;
 pub mod spatial;
 pub mod synth;

@@ -282,6 +282,11 @@ pub struct Project {
     pub thresholds: Vec<ThresholdSpec>,
     /// How attributes are read at wells.
     pub extract: Extract,
+    /// Gaussian widths (standard deviations, metres) each target may smooth its attribute maps by
+    /// (`[smoothing] widths`; empty = no smoothing), ascending. Each target picks none or one of
+    /// them by whole-well cross-validation (`pipeline::scale`).
+    #[serde(default)]
+    pub smoothing: Vec<f64>,
     /// Model settings.
     pub model: ModelSection,
     /// Calibration settings.
@@ -483,6 +488,7 @@ struct RawManifest {
     #[serde(default)]
     threshold: Vec<RawThreshold>,
     extract: Option<RawExtract>,
+    smoothing: Option<RawSmoothing>,
     model: Option<RawModel>,
     calibration: Option<RawCalibration>,
     infill: Option<RawInfill>,
@@ -582,6 +588,67 @@ enum RawExtractMethod {
 struct RawExtract {
     method: Option<RawExtractMethod>,
     radius: Option<f64>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawSmoothing {
+    widths: Option<RawWidths>,
+}
+
+/// `widths = "auto" | "off" | [metres, ...]`.
+#[derive(Deserialize)]
+#[serde(untagged)]
+enum RawWidths {
+    Word(String),
+    List(Vec<f64>),
+}
+
+/// Node spacings of the default `[smoothing] widths = "auto"`.
+pub const AUTO_SMOOTHING_SPACINGS: [f64; 5] = [1.0, 2.0, 3.0, 5.0, 8.0];
+
+/// The checked smoothing widths (metres, ascending, distinct) of `[smoothing]`.
+fn smoothing_widths(raw: Option<RawSmoothing>, grid: &Grid) -> Result<Vec<f64>, ManifestError> {
+    let key = "smoothing.widths";
+    let spacing = grid.dx.min(grid.dy);
+    let mut widths = match raw.and_then(|r| r.widths) {
+        None => AUTO_SMOOTHING_SPACINGS
+            .iter()
+            .map(|k| k * spacing)
+            .collect(),
+        Some(RawWidths::Word(w)) if w == "auto" => AUTO_SMOOTHING_SPACINGS
+            .iter()
+            .map(|k| k * spacing)
+            .collect(),
+        Some(RawWidths::Word(w)) if w == "off" => Vec::new(),
+        Some(RawWidths::Word(w)) => {
+            return Err(ManifestError::Inconsistent {
+                key: key.into(),
+                message: format!(
+                    "expected \"auto\", \"off\" or a list of widths in metres, got \"{}\"",
+                    io::excerpt(&w)
+                ),
+            });
+        }
+        Some(RawWidths::List(list)) => {
+            if list.len() > limits::MAX_SMOOTHING_WIDTHS {
+                return Err(ManifestError::Limit {
+                    key: key.into(),
+                    limit: format!("at most {} widths", limits::MAX_SMOOTHING_WIDTHS),
+                    value: list.len().to_string(),
+                });
+            }
+            let mut out = Vec::with_capacity(list.len());
+            for w in list {
+                let w = number(key, Some(w), 0.0, "> 0", |v| v > 0.0)?;
+                out.push(radius(key, w, grid, limits::MAX_SMOOTHING_NODES)?);
+            }
+            out
+        }
+    };
+    widths.sort_by(f64::total_cmp);
+    widths.dedup();
+    Ok(widths)
 }
 
 #[derive(Deserialize)]
@@ -1228,6 +1295,9 @@ fn check(raw: RawManifest, manifest_path: PathBuf) -> Result<Project, ManifestEr
         },
     };
 
+    // [smoothing]
+    let smoothing = smoothing_widths(raw.smoothing, &grid)?;
+
     // [model]
     let d = ModelSection::default();
     let model = match raw.model {
@@ -1474,6 +1544,7 @@ fn check(raw: RawManifest, manifest_path: PathBuf) -> Result<Project, ManifestEr
         targets,
         thresholds,
         extract,
+        smoothing,
         model,
         calibration,
         infill,

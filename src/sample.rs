@@ -16,6 +16,16 @@ use std::fmt;
 /// Name of the step feature, the last feature column.
 pub const STEP_FEATURE: &str = "step";
 
+/// Name of attribute `name` smoothed by a Gaussian of `width` metres, e.g. `near_amp~150m`.
+pub fn smoothed_name(name: &str, width: f64) -> String {
+    format!("{name}~{width}m")
+}
+
+/// The attribute a feature name stands for: `name` itself, or the attribute it smooths.
+pub fn attribute_of(feature: &str) -> &str {
+    feature.split_once('~').map_or(feature, |(a, _)| a)
+}
+
 /// Training rows at wells.
 #[derive(Clone, Debug, PartialEq)]
 pub struct TrainingSet {
@@ -37,6 +47,10 @@ pub struct TrainingSet {
     pub xy: Vec<[f64; 2]>,
     /// Row weights.
     pub weight: Vec<f64>,
+    /// The attributes smoothed at each of the project's smoothing widths (`[smoothing]`), read at
+    /// the same points: `(width in metres, rows x attributes)`, ascending in width. Empty when
+    /// smoothing is off. [`TrainingSet::at_width`] swaps one of them in for the attributes.
+    pub smoothed: Vec<(f64, Array2<f64>)>,
 }
 
 impl TrainingSet {
@@ -57,6 +71,41 @@ impl TrainingSet {
             .collect()
     }
 
+    /// The training set a target sees when it smooths its attributes by `width` metres: the same
+    /// rows, the plain attributes, then the attributes smoothed by `width` (named
+    /// [`smoothed_name`]), then the step; no further widths. The trees pick either at every
+    /// split, so a sharp peak stays visible in the plain column while the smoothed one carries
+    /// the local average. `width <= 0` gives the plain attributes. `None` when `width` is not one
+    /// of [`TrainingSet::smoothed`]'s.
+    pub fn at_width(&self, width: f64) -> Option<TrainingSet> {
+        let mut out = TrainingSet {
+            smoothed: Vec::new(),
+            ..self.clone()
+        };
+        if width > 0.0 {
+            let (_, block) = self.smoothed.iter().find(|(w, _)| *w == width)?;
+            let na = self.x.ncols().saturating_sub(1);
+            out.x = ndarray::concatenate(
+                ndarray::Axis(1),
+                &[
+                    self.x.slice(ndarray::s![.., ..na]),
+                    block.view(),
+                    self.x.slice(ndarray::s![.., na..]),
+                ],
+            )
+            .ok()?;
+            let mut names = self.feature_names[..na].to_vec();
+            names.extend(
+                self.feature_names[..na]
+                    .iter()
+                    .map(|n| smoothed_name(n, width)),
+            );
+            names.extend(self.feature_names[na..].iter().cloned());
+            out.feature_names = names;
+        }
+        Some(out)
+    }
+
     /// Multiplies every attribute value (every feature column but the step, the last one) by
     /// `1 + eps u`, `u` uniform in `[-1, 1]` drawn in row then column order from `seed`.
     ///
@@ -72,6 +121,10 @@ impl TrainingSet {
                 let u: f64 = rng.random_range(-1.0..=1.0);
                 self.x[[r, c]] *= 1.0 + eps * u;
             }
+        }
+        // The smoothed copies move with the maps they come from, by draws of their own.
+        for (_, block) in &mut self.smoothed {
+            block.mapv_inplace(|v| v * (1.0 + eps * rng.random_range(-1.0..=1.0)));
         }
     }
 }
@@ -243,6 +296,7 @@ pub fn at_wells(survey: &Survey) -> (TrainingSet, Vec<SampleWarning>) {
     let x =
         Array2::from_shape_vec((rows, na + 1), feats).expect("each kept row has na + 1 features");
     let y = Array2::from_shape_vec((rows, nt), targs).expect("each kept row has nt targets");
+    let smoothed = smoothed_at(survey, &step, &xy);
     let set = TrainingSet {
         feature_names,
         x,
@@ -253,8 +307,36 @@ pub fn at_wells(survey: &Survey) -> (TrainingSet, Vec<SampleWarning>) {
         step,
         xy,
         weight,
+        smoothed,
     };
     (set, warnings)
+}
+
+/// The attributes of each row smoothed at every width of the project's `[smoothing]`, centred on
+/// the row's point ([`crate::smooth::at_point`], the same sums the node maps get). A point whose
+/// plain extraction succeeded always has a non-null node in reach, so every value is finite.
+fn smoothed_at(survey: &Survey, step: &[usize], xy: &[[f64; 2]]) -> Vec<(f64, Array2<f64>)> {
+    use rayon::prelude::*;
+    let p = &survey.project;
+    let na = p.attribute_names.len();
+    p.smoothing
+        .iter()
+        .map(|&width| {
+            let values: Vec<f64> = step
+                .par_iter()
+                .zip(xy)
+                .flat_map_iter(|(&s, &[x, y])| {
+                    (0..na).map(move |a| {
+                        crate::smooth::at_point(&p.grid, &survey.maps[s][a], x, y, width)
+                            .unwrap_or(f64::NAN)
+                    })
+                })
+                .collect();
+            let block = Array2::from_shape_vec((step.len(), na), values)
+                .expect("each row has one value per attribute");
+            (width, block)
+        })
+        .collect()
 }
 
 /// Distinct (well, x, y) positions of the survey's well records, in file order (linear time: a
@@ -292,6 +374,32 @@ pub fn node_features(survey: &Survey, step: usize) -> Array2<f64> {
         }
     }
     x.column_mut(na).fill(step as f64);
+    x
+}
+
+/// The node feature table of a target that smooths by `width` metres (the columns of
+/// [`TrainingSet::at_width`]): the plain attributes, every attribute map of the step smoothed
+/// ([`crate::smooth::smooth_map`]), then the step index. `width <= 0` is [`node_features`].
+///
+/// # Panics
+/// If `step` is not a step of the survey.
+pub fn node_features_at(survey: &Survey, step: usize, width: f64) -> Array2<f64> {
+    if width <= 0.0 {
+        return node_features(survey, step);
+    }
+    let maps = &survey.maps[step];
+    let grid = &survey.project.grid;
+    let n = grid.len();
+    let na = maps.len();
+    let mut x = Array2::from_elem((n, 2 * na + 1), f64::NAN);
+    for (a, map) in maps.iter().enumerate() {
+        let smooth = crate::smooth::smooth_map(grid, map, width);
+        for (r, (&v, s)) in map.iter().zip(smooth).enumerate().take(n) {
+            x[[r, a]] = v;
+            x[[r, na + a]] = s;
+        }
+    }
+    x.column_mut(2 * na).fill(step as f64);
     x
 }
 

@@ -11,6 +11,7 @@
 
 use super::PipelineError;
 use super::model::SavedModel;
+use super::scale::WidthChoice;
 use super::stages::Stages;
 use crate::applicability::{self, Applicability, Ground};
 use crate::calibrate::input::{Space, ZeroSetting};
@@ -99,8 +100,9 @@ pub fn calibrate_rows(
     space: Option<&Applicability>,
 ) -> Result<CalibratedTarget, PipelineError> {
     let x = ts.x.select(Axis(0), rows).select(Axis(1), cols);
-    // The rows as points of the applicability model's space (all feature columns only).
-    let points: Option<Vec<f64>> = space.filter(|a| a.n_features() == cols.len()).map(|a| {
+    // The rows as points of the applicability model's space (the plain attributes and the
+    // step); only when the target reads all its columns (not in the ablation's fewer).
+    let points: Option<Vec<f64>> = space.filter(|_| cols.len() == ts.x.ncols()).map(|a| {
         let p = a.n_features();
         rows.iter()
             .flat_map(|&r| a.train[r * p..(r + 1) * p].iter().copied())
@@ -148,17 +150,29 @@ pub fn calibrate_rows(
     })
 }
 
-/// Permutation importance per feature for each target (forest on the target's rows), each
-/// normalised to sum to one (all zero when no feature helps).
+/// Permutation importance per feature for each target (forest on the target's rows of its own
+/// training set, `sets[t]`: the attributes at the target's smoothing width), each normalised to
+/// sum to one (all zero when no feature helps). Columns are the plain training set's (a smoothed
+/// attribute counts for the attribute it smooths).
 pub fn importance(
-    ts: &TrainingSet,
+    sets: &[TrainingSet],
     settings: &CalibrationSettings,
 ) -> Result<Vec<Vec<f64>>, PipelineError> {
     let mut out = Vec::new();
-    for t in 0..ts.target_names.len() {
+    // The plain training set's columns: the names of a target set without smoothed ones.
+    let plain_names: Vec<&String> = sets
+        .first()
+        .map(|s| {
+            s.feature_names
+                .iter()
+                .filter(|n| !n.contains('~'))
+                .collect()
+        })
+        .unwrap_or_default();
+    for (t, ts) in sets.iter().enumerate() {
         let rows = target_rows(ts, t);
         if rows.len() < 4 {
-            out.push(vec![0.0; ts.x.ncols()]);
+            out.push(vec![0.0; plain_names.len()]);
             continue;
         }
         let x = ts.x.select(Axis(0), &rows);
@@ -166,7 +180,15 @@ pub fn importance(
         let w: Vec<f64> = rows.iter().map(|&r| ts.weight[r]).collect();
         let forest = settings.forest.fit(x.view(), y.view(), Some(&w))?;
         let imp = forest.permutation_importance(x.view(), y.view(), 3, settings.seed ^ 0x5eed);
-        let clean: Vec<f64> = imp.iter().map(|v| v.max(0.0)).collect();
+        // A smoothed attribute's share goes to the attribute it smooths (plain columns only).
+        let plain_cols = plain_names.len();
+        let mut clean = vec![0.0; plain_cols];
+        for (name, v) in ts.feature_names.iter().zip(&imp) {
+            let a = sample::attribute_of(name);
+            if let Some(c) = plain_names.iter().position(|n| n.as_str() == a) {
+                clean[c] += v.max(0.0);
+            }
+        }
         let total: f64 = clean.iter().sum();
         out.push(if total > 0.0 {
             clean.iter().map(|v| v / total).collect()
@@ -175,6 +197,27 @@ pub fn importance(
         });
     }
     Ok(out)
+}
+
+/// Each target's smoothing width ([`super::scale::choose`]) and its own training set (the
+/// plain one's rows with the attributes at that width).
+pub fn target_sets(
+    ts: &TrainingSet,
+    folds: &[usize],
+    settings: &CalibrationSettings,
+) -> Result<(Vec<WidthChoice>, Vec<TrainingSet>), PipelineError> {
+    let mut choices = Vec::new();
+    let mut sets = Vec::new();
+    for t in 0..ts.target_names.len() {
+        let rows = target_rows(ts, t);
+        let choice = super::scale::choose(ts, t, &rows, folds, settings)?;
+        sets.push(
+            ts.at_width(choice.width)
+                .expect("the chosen width is one of the training set's"),
+        );
+        choices.push(choice);
+    }
+    Ok((choices, sets))
 }
 
 /// Fits everything on a loaded survey: calibrated targets, importance and the area of
@@ -204,7 +247,6 @@ pub fn fit_model_keeping(
 ) -> Result<(SavedModel, Vec<Vec<f64>>, KnownChange), PipelineError> {
     let project = &survey.project;
     let settings = calibration_settings(project, seed);
-    let all_cols: Vec<usize> = (0..ts.x.ncols()).collect();
     // How typical of the nodes the wells are: always estimated and reported (summary.json);
     // used to weight the band's calibration only when the manifest asks for it.
     let nodes = sample::node_sample(survey, SHIFT_NODE_SAMPLE, seed ^ 0x5a1f);
@@ -229,11 +271,6 @@ pub fn fit_model_keeping(
     let wells_vs_nodes = shift.as_ref().map(|s| s.summary(&ts.group, applied));
     let shift = shift.filter(|_| applied);
     stages.done("wells against nodes");
-    let imp = importance(ts, &settings)?;
-    let p = ts.x.ncols();
-    let mean_imp: Vec<f64> = (0..p)
-        .map(|c| imp.iter().map(|v| v[c]).sum::<f64>() / imp.len().max(1) as f64)
-        .collect();
     let folds = calibrate::folds::assign(
         &ts.group,
         &ts.xy,
@@ -241,6 +278,20 @@ pub fn fit_model_keeping(
         settings.folds,
         settings.seed,
     );
+    let (choices, sets) = target_sets(ts, &folds, &settings)?;
+    let imp = importance(&sets, &settings)?;
+    // The area of applicability lives in the plain attributes' space, so its weights are the
+    // importance of forests on the plain attributes, whatever each target smooths: the area
+    // does not move with the smoothing choice.
+    let plain_imp = if sets.iter().any(|s| s.x.ncols() != ts.x.ncols()) {
+        importance(&vec![ts.clone(); sets.len()], &settings)?
+    } else {
+        imp.clone()
+    };
+    let p = ts.x.ncols();
+    let mean_imp: Vec<f64> = (0..p)
+        .map(|c| plain_imp.iter().map(|v| v[c]).sum::<f64>() / plain_imp.len().max(1) as f64)
+        .collect();
     // Every feature, the step index included, takes part in the range check: a step the wells
     // never saw is an extrapolation in time.
     let checked = vec![true; p];
@@ -256,10 +307,10 @@ pub fn fit_model_keeping(
         let rows = target_rows(ts, t);
         calibrated.push(calibrate_rows(
             project,
-            ts,
+            &sets[t],
             t,
             &rows,
-            &all_cols,
+            &(0..sets[t].x.ncols()).collect::<Vec<_>>(),
             &settings,
             shift.as_ref(),
             Some(&applicability),
@@ -267,7 +318,8 @@ pub fn fit_model_keeping(
         bar.inc(1);
     }
     bar.finish_and_clear();
-    let known = node_priors(survey, &mut calibrated)?;
+    let widths: Vec<f64> = choices.iter().map(|c| c.width).collect();
+    let known = node_priors(survey, &mut calibrated, &widths)?;
     stages.done("fit and calibrate");
 
     let model = SavedModel {
@@ -284,6 +336,8 @@ pub fn fit_model_keeping(
         ground,
         wells: well_positions(survey),
         wells_vs_nodes,
+        smoothing: widths,
+        smoothing_choice: choices,
     };
     Ok((model, imp, known))
 }
@@ -294,10 +348,12 @@ pub fn fit_model_keeping(
 /// of the nodes' share over all steps together (the probability forest and its recalibration
 /// pool the steps, so its prior is the wells' share over all steps), set on the target. A
 /// target whose estimate cannot be made keeps the wells' share; an iteration that did not
-/// settle is kept and warned about. Returns the probabilities it computed ([`KnownChange`]).
+/// settle is kept and warned about. `widths[t]` is target `t`'s smoothing width (metres, 0 =
+/// plain attributes). Returns the probabilities it computed ([`KnownChange`]).
 pub fn node_priors(
     survey: &Survey,
     calibrated: &mut [CalibratedTarget],
+    widths: &[f64],
 ) -> Result<KnownChange, PipelineError> {
     let n_steps = survey.project.steps.len();
     let mut known: KnownChange = vec![vec![None; calibrated.len()]; n_steps];
@@ -321,9 +377,13 @@ pub fn node_priors(
         let valid: Vec<usize> = (0..x.nrows())
             .filter(|&r| x.row(r).iter().take(n_attr).all(|v| v.is_finite()))
             .collect();
-        let compact = x.select(Axis(0), &valid);
+        let plain = x.select(Axis(0), &valid);
         for (k, &t) in hurdles.iter().enumerate() {
             let cal = &calibrated[t];
+            let w = widths.get(t).copied().unwrap_or(0.0);
+            let smoothed =
+                (w > 0.0).then(|| sample::node_features_at(survey, s, w).select(Axis(0), &valid));
+            let compact = smoothed.as_ref().unwrap_or(&plain);
             let found = cal.change_probability(compact.view()).map_err(|source| {
                 PipelineError::Calibrate {
                     target: cal.name.clone(),

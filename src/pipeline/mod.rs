@@ -22,6 +22,7 @@ pub mod outputs;
 pub mod pictures;
 pub mod predict;
 pub mod run;
+pub mod scale;
 pub mod score;
 pub mod stages;
 pub mod studies;

@@ -17,7 +17,9 @@ use std::path::Path;
 /// of applicability; version 1 models still load and map with the row check alone (no ground
 /// check, plain range). Version 3 added each target's residual kriging
 /// ([`CalibratedTarget::kriging`]); version 1 and 2 models load without it and map as before.
-pub const MODEL_FORMAT: u32 = 3;
+/// Version 4 added each target's smoothing width ([`SavedModel::smoothing`]); older models map
+/// every target from the plain attributes.
+pub const MODEL_FORMAT: u32 = 4;
 
 /// Oldest `model.json` format this build reads.
 pub const OLDEST_MODEL_FORMAT: u32 = 1;
@@ -55,6 +57,15 @@ pub struct SavedModel {
     /// written before it was computed, or when it could not be estimated).
     #[serde(default)]
     pub wells_vs_nodes: Option<ShiftSummary>,
+    /// Per target (model order), the Gaussian width in metres its attribute maps are smoothed by
+    /// before its trees see them ([`crate::smooth`], chosen by `pipeline::scale`); 0 = the plain
+    /// attributes. Empty (models before format 4) = 0 for every target.
+    #[serde(default)]
+    pub smoothing: Vec<f64>,
+    /// Per target, how every smoothing width scored in cross-validation and which was kept
+    /// ([`super::scale::WidthChoice`]); empty in models before format 4.
+    #[serde(default)]
+    pub smoothing_choice: Vec<super::scale::WidthChoice>,
 }
 
 /// Predicted maps of one target on one step (values in node order, `NaN` where a node has a null
@@ -97,6 +108,76 @@ pub struct StepMaps {
 }
 
 impl SavedModel {
+    /// Target `t`'s smoothing width in metres (0 = plain attributes).
+    pub fn width(&self, t: usize) -> f64 {
+        self.smoothing.get(t).copied().unwrap_or(0.0)
+    }
+
+    /// The distinct positive smoothing widths of the targets, ascending: the blocks of
+    /// [`Self::node_features`] after the plain attributes.
+    pub fn widths(&self) -> Vec<f64> {
+        let mut w: Vec<f64> = self
+            .smoothing
+            .iter()
+            .copied()
+            .filter(|&v| v > 0.0)
+            .collect();
+        w.sort_by(f64::total_cmp);
+        w.dedup();
+        w
+    }
+
+    /// The feature table the model predicts a step of `survey` from: one row per node, the
+    /// plain attributes, then the attributes smoothed at each of [`Self::widths`] (one block
+    /// each), then the step index. Without smoothing it is [`crate::sample::node_features`].
+    ///
+    /// # Panics
+    /// If `step` is not a step of the survey.
+    pub fn node_features(&self, survey: &crate::project::Survey, step: usize) -> Array2<f64> {
+        let plain = crate::sample::node_features(survey, step);
+        let widths = self.widths();
+        if widths.is_empty() {
+            return plain;
+        }
+        let na = plain.ncols() - 1;
+        let mut out = Array2::from_elem((plain.nrows(), na * (1 + widths.len()) + 1), f64::NAN);
+        out.slice_mut(ndarray::s![.., ..na])
+            .assign(&plain.slice(ndarray::s![.., ..na]));
+        for (b, &w) in widths.iter().enumerate() {
+            let block = crate::sample::node_features_at(survey, step, w);
+            let c0 = na * (1 + b);
+            out.slice_mut(ndarray::s![.., c0..c0 + na])
+                .assign(&block.slice(ndarray::s![.., na..2 * na]));
+        }
+        let last = out.ncols() - 1;
+        out.column_mut(last).assign(&plain.column(na));
+        out
+    }
+
+    /// Columns of a [`Self::node_features`] table that target `t` reads (the plain attributes,
+    /// its width's block if it smooths, then the step: the layout of
+    /// [`crate::sample::node_features_at`]), or the plain attributes and the step for `t = None`
+    /// (the area of applicability's space).
+    pub fn columns(&self, t: Option<usize>) -> Vec<usize> {
+        let na = self.feature_names.len() - 1;
+        let widths = self.widths();
+        let mut cols: Vec<usize> = (0..na).collect();
+        if let Some(b) = t
+            .map(|t| self.width(t))
+            .filter(|&w| w > 0.0)
+            .and_then(|w| widths.iter().position(|&v| v == w))
+        {
+            cols.extend(na * (1 + b)..na * (2 + b));
+        }
+        cols.push(na * (1 + widths.len()));
+        cols
+    }
+
+    /// Target `t`'s own columns of a [`Self::node_features`] table.
+    pub fn target_table(&self, x: ArrayView2<f64>, t: usize) -> Array2<f64> {
+        x.select(Axis(1), &self.columns(Some(t)))
+    }
+
     /// Thresholds that belong to target `t`, in manifest order.
     pub fn thresholds_of(&self, t: usize) -> Vec<&ThresholdSpec> {
         let name = &self.targets[t].name;
@@ -239,7 +320,16 @@ impl SavedModel {
                 g.len()
             )));
         }
-        let mut applicability = self.applicability.assess(x);
+        let width = (self.feature_names.len() - 1) * (1 + self.widths().len()) + 1;
+        if x.ncols() != width {
+            return Err(PipelineError::Invalid(format!(
+                "a feature table of {} columns for a model that reads {width} (plain attributes, \
+                 one block per smoothing width, step): build it with SavedModel::node_features",
+                x.ncols()
+            )));
+        }
+        let plain = x.select(Axis(1), &self.columns(None));
+        let mut applicability = self.applicability.assess(plain.view());
         let reasons = self.applicability.reasons(&applicability, ground);
         for (inside, &code) in applicability.inside.iter_mut().zip(&reasons) {
             *inside = code == crate::applicability::REASON_INSIDE;
@@ -275,7 +365,7 @@ impl SavedModel {
         let step: Vec<usize> = valid
             .iter()
             .map(|&r| {
-                let s = x[[r, n_attr]];
+                let s = x[[r, width - 1]];
                 if s.is_finite() && s >= 0.0 {
                     s.round() as usize
                 } else {
@@ -294,8 +384,9 @@ impl SavedModel {
                 change: known.get(t).and_then(|k| k.as_deref()),
                 ..context
             };
+            let own = self.target_table(compact.view(), t);
             let (p, conditional) = cal
-                .predict_keeping(compact.view(), Some(context), keep.contains(&t))
+                .predict_keeping(own.view(), Some(context), keep.contains(&t))
                 .map_err(|source| PipelineError::Calibrate {
                     target: cal.name.clone(),
                     source,

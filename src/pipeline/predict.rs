@@ -18,7 +18,6 @@ use super::model::{SavedModel, convention_text};
 use super::outputs::{Formats, Writer, write_step_maps};
 use crate::grid::Grid;
 use crate::project;
-use crate::sample;
 use ndarray::s;
 use serde::Serialize;
 use std::path::{Path, PathBuf};
@@ -119,7 +118,6 @@ pub fn predict(
         None => p.grid.clone(),
     };
     let (j0, j1) = tile.map_or((0, p.grid.ny), |t| t.rows(p.grid.ny));
-    let n_feat = model.feature_names.len();
     let xy = p.grid.node_coordinates();
     let nodes = j0 * p.grid.nx..j1 * p.grid.nx;
     let (ground, message) = model.location_flags(&survey, nodes.clone());
@@ -136,11 +134,12 @@ pub fn predict(
                 s as f64
             }
         };
-        let full = sample::node_features(&survey, s);
+        let full = model.node_features(&survey, s);
         let mut x = full
             .slice(s![j0 * p.grid.nx..j1 * p.grid.nx, ..])
             .to_owned();
-        x.column_mut(n_feat - 1).fill(step_value);
+        let last = x.ncols() - 1;
+        x.column_mut(last).fill(step_value);
         let maps = model.predict(x.view(), &xy[nodes.clone()], ground.as_deref())?;
         write_step_maps(&mut w, &model, &grid, &step.name, &maps)?;
     }

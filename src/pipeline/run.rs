@@ -169,7 +169,8 @@ pub fn run(opts: &RunOptions) -> Result<RunOutcome, PipelineError> {
         let infill_section = infill_section(&mut w, &setting, project, &kept, infill.as_ref())?;
         stages.done("pictures");
         if opts.report {
-            let sensitivity = studies::sensitivity(&survey, &ts, seed, &mut stages)?;
+            let sensitivity =
+                studies::sensitivity(&survey, &ts, &model.smoothing, seed, &mut stages)?;
             w.json("studies.json", &sensitivity)?;
             let texts = run_warnings.iter().map(ToString::to_string).collect();
             let mut input = assemble::build_report(ReportParts {
@@ -230,7 +231,7 @@ fn predict_and_write(
     // The field totals' node distributions take the model's conditional part from these maps.
     let layers = totals::needed_layers(survey, model);
     for (s, step) in project.steps.iter().enumerate() {
-        let x = sample::node_features(survey, s);
+        let x = model.node_features(survey, s);
         let keep: Vec<usize> = layers.iter().filter(|l| l.1 == s).map(|l| l.0).collect();
         let step_known = known.get_mut(s).map(std::mem::take).unwrap_or_default();
         let maps =

@@ -518,7 +518,7 @@ pub fn forest_band(
     s: usize,
 ) -> Result<Band, PipelineError> {
     let cal = &model.calibrated[t];
-    let x = crate::sample::node_features(survey, s);
+    let x = crate::sample::node_features_at(survey, s, model.width(t));
     if x.ncols() != cal.reference_forest().n_features() {
         return Err(PipelineError::Invalid(format!(
             "target {}: the forest expects {} features, the project gives {}",

@@ -172,6 +172,9 @@ pub struct TargetSummary {
     /// The out-of-fold band at held-out wells of each kind (empty when the wells file gives no
     /// kind; [`super::kinds`]).
     pub by_kind: Vec<super::kinds::KindFigures>,
+    /// The width the target's attribute maps are smoothed by and how every candidate scored at
+    /// held-out wells ([`super::scale`]); width 0 and no candidates when smoothing is off.
+    pub smoothing: super::scale::WidthChoice,
 }
 
 /// Contents of `summary.json`.
@@ -220,25 +223,33 @@ pub fn summary(
         .zip(&model.calibrated)
         .zip(importance)
         .map(|((spec, cal), imp)| (spec, cal, imp, target_skill(cal, &model.step_names)))
-        .map(|(spec, cal, imp, (skill, skill_by_step))| TargetSummary {
-            name: spec.name.clone(),
-            unit: spec.unit.clone(),
-            bounds: [spec.min, spec.max],
-            importance: ts
-                .feature_names
-                .iter()
-                .zip(imp)
-                .map(|(f, &share)| FeatureImportance {
-                    feature: f.clone(),
-                    share,
-                })
-                .collect(),
-            diagnostics: cal.diagnostics.clone(),
-            diagnostics_json: named_steps(&cal.diagnostics, &model.step_names),
-            skill,
-            skill_by_step,
-            by_kind: super::kinds::by_kind(&cal.diagnostics.rows, &kinds, model.level),
-        })
+        .enumerate()
+        .map(
+            |(t, (spec, cal, imp, (skill, skill_by_step)))| TargetSummary {
+                name: spec.name.clone(),
+                unit: spec.unit.clone(),
+                bounds: [spec.min, spec.max],
+                importance: ts
+                    .feature_names
+                    .iter()
+                    .zip(imp)
+                    .map(|(f, &share)| FeatureImportance {
+                        feature: f.clone(),
+                        share,
+                    })
+                    .collect(),
+                diagnostics: cal.diagnostics.clone(),
+                diagnostics_json: named_steps(&cal.diagnostics, &model.step_names),
+                skill,
+                skill_by_step,
+                by_kind: super::kinds::by_kind(&cal.diagnostics.rows, &kinds, model.level),
+                smoothing: model
+                    .smoothing_choice
+                    .get(t)
+                    .cloned()
+                    .unwrap_or_else(super::scale::WidthChoice::none),
+            },
+        )
         .collect();
     Summary {
         version: env!("CARGO_PKG_VERSION").to_string(),
@@ -423,13 +434,19 @@ pub fn well_subset(n: usize, k: usize, seed: u64) -> Vec<usize> {
     out
 }
 
-/// Runs the learning curve and the ablation as the manifest's `[report]` asks.
+/// Runs the learning curve and the ablation as the manifest's `[report]` asks; each target on
+/// its own training set (`widths[t]`, its smoothing width in metres, as the model chose it).
 pub fn sensitivity(
     survey: &Survey,
     ts: &TrainingSet,
+    widths: &[f64],
     seed: u64,
     stages: &mut Stages,
 ) -> Result<Sensitivity, PipelineError> {
+    let own = |t: usize| {
+        ts.at_width(widths.get(t).copied().unwrap_or(0.0))
+            .unwrap_or_else(|| ts.clone())
+    };
     let project = &survey.project;
     let settings = study_settings(&calibration_settings(project, seed));
     let mut out = Sensitivity {
@@ -439,7 +456,6 @@ pub fn sensitivity(
         ),
         ..Sensitivity::default()
     };
-    let all_cols: Vec<usize> = (0..ts.x.ncols()).collect();
     let n_wells = ts.well_names.len();
     if project.report.learning_curve {
         let sizes = curve_sizes(n_wells);
@@ -449,6 +465,8 @@ pub fn sensitivity(
             "learning curve",
         );
         for t in 0..project.targets.len() {
+            let ts = &own(t);
+            let all_cols: Vec<usize> = (0..ts.x.ncols()).collect();
             for (si, &k) in sizes.iter().enumerate() {
                 let mut point = CurvePoint {
                     target: project.targets[t].name.clone(),
@@ -473,15 +491,21 @@ pub fn sensitivity(
     }
     if project.report.ablation {
         let removed = angle_attributes(survey);
-        let keep: Vec<usize> = ts
-            .feature_names
-            .iter()
-            .enumerate()
-            .filter(|(_, f)| !removed.contains(f))
-            .map(|(c, _)| c)
-            .collect();
-        if !removed.is_empty() && keep.len() > 1 {
+        if !removed.is_empty() {
             for t in 0..project.targets.len() {
+                let ts = &own(t);
+                // The angle attributes go with their smoothed copies.
+                let keep: Vec<usize> = ts
+                    .feature_names
+                    .iter()
+                    .enumerate()
+                    .filter(|(_, f)| !removed.iter().any(|r| r == crate::sample::attribute_of(f)))
+                    .map(|(c, _)| c)
+                    .collect();
+                if keep.len() <= 1 {
+                    continue;
+                }
+                let all_cols: Vec<usize> = (0..ts.x.ncols()).collect();
                 let rows = target_rows(ts, t);
                 let all = calibrate_rows(project, ts, t, &rows, &all_cols, &settings, None, None)?;
                 let without = calibrate_rows(project, ts, t, &rows, &keep, &settings, None, None)?;

@@ -202,7 +202,7 @@ fn node_distributions<'m>(
         let d = match CalibratedNodes::from_maps(cal, maps) {
             Some(d) => d,
             None => {
-                let x = sample::node_features(survey, s);
+                let x = sample::node_features_at(survey, s, model.width(t));
                 CalibratedNodes::new(cal, maps, x.view()).map_err(|source| {
                     PipelineError::Calibrate {
                         target: model.targets[t].name.clone(),

@@ -21,6 +21,10 @@ pub const MAX_INFILL_COUNT: i64 = 10_000;
 pub const MAX_DRAINAGE_NODES: f64 = 1_000.0;
 /// The extraction radius in node spacings along either grid axis (`extract.radius`).
 pub const MAX_EXTRACT_NODES: f64 = 100.0;
+/// A smoothing width in node spacings along either grid axis (`smoothing.widths`).
+pub const MAX_SMOOTHING_NODES: f64 = 50.0;
+/// Widths listed in `smoothing.widths`.
+pub const MAX_SMOOTHING_WIDTHS: usize = 8;
 /// Bytes of the manifest itself.
 pub const MAX_MANIFEST_BYTES: u64 = 16 << 20;
 /// Plain counts without a limit of their own (`min_samples_leaf`, `min_wells_per_bin`, the

@@ -74,7 +74,12 @@ fn saved_models_carry_the_ground_check_and_old_ones_still_load() {
     let f = fixture();
     let path = f.out.join("model.json");
     let model = SavedModel::load(&path).unwrap();
-    assert_eq!(model.format, 3);
+    assert_eq!(model.format, 4);
+    assert_eq!(
+        model.smoothing.len(),
+        model.calibrated.len(),
+        "a width per target"
+    );
     assert!(model.ground.is_some(), "the ground check is saved");
     assert!(model.applicability.range_margin > 0.0);
     // A model of format 1 has neither: it loads and maps with the row check and the plain range.
@@ -82,6 +87,9 @@ fn saved_models_carry_the_ground_check_and_old_ones_still_load() {
         serde_json::from_str(&std::fs::read_to_string(&path).unwrap()).unwrap();
     let o = v.as_object_mut().unwrap();
     o.remove("ground");
+    // Nor smoothing widths (format 4).
+    o.remove("smoothing");
+    o.remove("smoothing_choice");
     o.insert("format".into(), 1.into());
     o["applicability"]
         .as_object_mut()
@@ -102,6 +110,10 @@ fn saved_models_carry_the_ground_check_and_old_ones_still_load() {
     assert!(back.calibrated.iter().all(|c| c.kriging.is_none()));
     assert!(back.ground.is_none());
     assert_eq!(back.applicability.range_margin, 0.0);
+    assert!(
+        back.widths().is_empty() && back.width(0) == 0.0,
+        "plain attributes"
+    );
     let survey = project::load_survey(&f.project).unwrap();
     assert_eq!(
         back.ground_flags(&survey, 0..survey.project.grid.len()),
@@ -151,7 +163,7 @@ fn run_area(settings: &SynthSettings, dir: &Path) -> (Vec<(String, f64, f64)>, f
         .collect();
     let mut flagged: Vec<bool> = Vec::new();
     for s in 0..survey.project.steps.len() {
-        let x = sample::node_features(&survey, s);
+        let x = model.node_features(&survey, s);
         let maps = model.predict(x.view(), &xy, ground.as_deref()).unwrap();
         flagged.extend(maps.applicability.inside.iter().map(|i| !i));
     }

@@ -100,6 +100,7 @@ fn pipeline_modules_only_call_down() {
             "warnings.rs",
             "outputs.rs",
             "model.rs",
+            "scale.rs",
             "kinds.rs",
             "mod.rs",
         ],

@@ -90,7 +90,7 @@ fn perturbed_run(manifest: &Path, field: &Path, out: &Path, eps: f64) -> TruthSc
         .ground_flags(&survey, 0..project.grid.len())
         .expect("ground check");
     for (s, step) in project.steps.iter().enumerate() {
-        let x = sample::node_features(&survey, s);
+        let x = model.node_features(&survey, s);
         let maps = model
             .predict(x.view(), &node_xy, ground.as_deref())
             .expect("predict");

@@ -157,7 +157,7 @@ fn mean_p50_unchanged(
     let ground = model.ground_flags(survey, 0..grid.len()).unwrap();
     let (mut sum, mut n, mut p_sum, mut p_n) = (0.0, 0usize, 0.0, 0usize);
     for (s, step) in survey.project.steps.iter().enumerate() {
-        let x = sample::node_features(survey, s);
+        let x = model.node_features(survey, s);
         let maps = model
             .predict(x.view(), &node_xy, ground.as_deref())
             .unwrap();

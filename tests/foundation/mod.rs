@@ -10,5 +10,6 @@ mod grid;
 mod outputs;
 mod readers;
 mod sample;
+mod smooth;
 mod xyz;
 mod xyz_gdal;

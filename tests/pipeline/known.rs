@@ -41,7 +41,7 @@ fn known_change_probabilities_give_the_same_maps() {
             hurdles,
             "step {s}: one set of probabilities per hurdle target"
         );
-        let x = sample::node_features(&survey, s);
+        let x = model.node_features(&survey, s);
         let walked = model
             .predict_keeping(x.view(), &xy, ground.as_deref(), &[])
             .expect("predict");
@@ -68,7 +68,7 @@ fn known_change_probabilities_give_the_same_maps() {
         .iter()
         .map(|k| k.as_ref().map(|v| vec![0.0; v.len()]))
         .collect();
-    let x0 = sample::node_features(&survey, 0);
+    let x0 = model.node_features(&survey, 0);
     let forced = model
         .predict_known(x0.view(), &xy, ground.as_deref(), &[], &zeros)
         .expect("predict");
@@ -85,7 +85,7 @@ fn known_change_probabilities_give_the_same_maps() {
         }
     }
     // Probabilities of the wrong length are ignored, not misapplied.
-    let x = sample::node_features(&survey, 0);
+    let x = model.node_features(&survey, 0);
     let wrong: Vec<Option<Vec<f64>>> = known[0]
         .iter()
         .map(|k| k.as_ref().map(|v| v[..v.len() / 2].to_vec()))

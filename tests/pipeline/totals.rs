@@ -33,7 +33,7 @@ fn loaded() -> &'static Loaded {
             .expect("ground check");
         let kept = (0..survey.project.steps.len())
             .map(|s| {
-                let x = sample::node_features(&survey, s);
+                let x = model.node_features(&survey, s);
                 model
                     .predict(x.view(), &xy, ground.as_deref())
                     .expect("predict")
@@ -81,8 +81,8 @@ fn node_distributions_give_the_written_maps_exactly() {
     let l = loaded();
     let mut checked = 0;
     for (s, maps) in l.kept.iter().enumerate() {
-        let x = sample::node_features(&l.survey, s);
         for (t, cal) in l.model.calibrated.iter().enumerate() {
+            let x = sample::node_features_at(&l.survey, s, l.model.width(t));
             let tm = &maps.targets[t];
             let d = CalibratedNodes::new(cal, tm, x.view()).expect("nodes");
             for i in 0..tm.mid.len() {
@@ -125,7 +125,7 @@ fn node_distributions_from_kept_maps_equal_the_recomputed_ones() {
     let all: Vec<usize> = (0..l.model.calibrated.len()).collect();
     let mut kept_parts = 0;
     for (s, plain) in l.kept.iter().enumerate() {
-        let x = sample::node_features(&l.survey, s);
+        let x = l.model.node_features(&l.survey, s);
         let maps = l
             .model
             .predict_keeping(x.view(), &xy, ground.as_deref(), &all)
@@ -143,7 +143,8 @@ fn node_distributions_from_kept_maps_equal_the_recomputed_ones() {
             assert_eq!(tm.conditional.is_some(), cal.needs_conditional());
             kept_parts += usize::from(tm.conditional.is_some());
             let from_maps = CalibratedNodes::from_maps(cal, tm).expect("kept part");
-            let recomputed = CalibratedNodes::new(cal, tm, x.view()).expect("nodes");
+            let own = l.model.target_table(x.view(), t);
+            let recomputed = CalibratedNodes::new(cal, tm, own.view()).expect("nodes");
             // A target without its kept part has no distribution from the maps alone.
             if cal.needs_conditional() {
                 assert!(CalibratedNodes::from_maps(cal, before).is_none());
@@ -371,7 +372,7 @@ fn measured_values_at_well_nodes(l: &Loaded, c: &Computed) {
     for (li, (step, target)) in c.layers.iter().enumerate() {
         let (s, t) = layer_of(l, step, target);
         let rows = tidemark::pipeline::fit::target_rows(&l.ts, t);
-        let x = sample::node_features(&l.survey, s);
+        let x = sample::node_features_at(&l.survey, s, l.model.width(t));
         let tm = &l.kept[s].targets[t];
         let d = CalibratedNodes::new(&l.model.calibrated[t], tm, x.view()).unwrap();
         let node_of = |r: usize| {
@@ -435,7 +436,7 @@ fn held_out_scores_at_well_nodes(l: &Loaded, c: &Computed) {
             .filter(|(st, _)| *st == s)
             .map(|(_, w)| w)
             .collect();
-        let x = sample::node_features(&l.survey, s);
+        let x = sample::node_features_at(&l.survey, s, l.model.width(t));
         let tm = &l.kept[s].targets[t];
         let d = CalibratedNodes::new(&l.model.calibrated[t], tm, x.view()).unwrap();
         for w in &scores {

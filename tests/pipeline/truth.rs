@@ -110,7 +110,7 @@ fn end_correction_does_not_raise_the_error_at_nodes() {
         let (mut truth, mut raw, mut mid, mut inside) =
             (Vec::new(), Vec::new(), Vec::new(), Vec::new());
         for (s, step) in survey.project.steps.iter().enumerate() {
-            let x = sample::node_features(&survey, s);
+            let x = sample::node_features_at(&survey, s, model.width(t));
             let y = tidemark::io::geotiff::read_on_grid(
                 &truth_dir.join(&step.name).join(format!("{}.tif", cal.name)),
                 &survey.project.grid,
@@ -437,7 +437,7 @@ fn the_forest_band_is_the_quantile_forest_of_meinshausen() {
         let levels = band_levels(cal.level);
         for s in 0..model.step_names.len() {
             let band = tidemark::pipeline::score::forest_band(&model, &survey, t, s).unwrap();
-            let x = sample::node_features(&survey, s);
+            let x = sample::node_features_at(&survey, s, model.width(t));
             for k in (0..x.nrows()).step_by(97) {
                 let row = x.row(k).to_vec();
                 let w = cal.reference_forest().quantile_weights(&row);
