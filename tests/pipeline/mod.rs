@@ -5,6 +5,7 @@ mod infill;
 mod kinds;
 mod known;
 mod report;
+mod smoothing;
 mod totals;
 mod truth;
 mod verdicts;
