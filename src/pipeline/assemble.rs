@@ -297,6 +297,16 @@ fn target_report(t: &TargetSummary, studies: &Sensitivity) -> ri::TargetReport {
             .kriging
             .as_ref()
             .map(|k| kriging_summary(k, d.hurdle.is_some())),
+        smoothing: Some(ri::SmoothingChoice {
+            width: t.smoothing.width,
+            wells: t.smoothing.wells,
+            candidates: t
+                .smoothing
+                .candidates
+                .iter()
+                .map(|c| [c.width, c.loss, c.excess, c.se])
+                .collect(),
+        }),
     }
 }
 

@@ -303,14 +303,14 @@ pub fn fit_model_keeping(
 
     let bar = stages.bar(project.targets.len() as u64, "calibrate targets");
     let mut calibrated = Vec::new();
-    for t in 0..project.targets.len() {
+    for (t, set) in sets.iter().enumerate() {
         let rows = target_rows(ts, t);
         calibrated.push(calibrate_rows(
             project,
-            &sets[t],
+            set,
             t,
             &rows,
-            &(0..sets[t].x.ncols()).collect::<Vec<_>>(),
+            &(0..set.x.ncols()).collect::<Vec<_>>(),
             &settings,
             shift.as_ref(),
             Some(&applicability),

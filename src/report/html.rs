@@ -769,6 +769,7 @@ fn calibration_section(h: &mut String, input: &ReportInput) {
         super::kriging::kriging_block(h, t, &input.xy_unit);
         super::spread::spread_block(h, t, &input.xy_unit);
         super::spread::zero_block(h, t);
+        super::smoothing::smoothing_block(h, t);
     }
     h.push_str("</section>\n");
 }

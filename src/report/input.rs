@@ -133,6 +133,22 @@ pub struct TargetReport {
     pub zero_change: Option<ZeroDecision>,
     /// Regression kriging of the held-out wells' errors: variogram, band decision, middle gain.
     pub kriging: Option<KrigingSummary>,
+    /// Smoothing of the attribute maps: the width kept and every candidate's score at held-out
+    /// wells (`None` in pages written before it existed).
+    #[serde(default)]
+    pub smoothing: Option<SmoothingChoice>,
+}
+
+/// How a target's attribute maps were smoothed, as the page shows it.
+#[derive(Clone, Debug, Default, PartialEq, Serialize, Deserialize)]
+pub struct SmoothingChoice {
+    /// Gaussian width kept, metres (0 = plain attributes only).
+    pub width: f64,
+    /// Wells scored.
+    pub wells: usize,
+    /// Each candidate: width (metres), mean held-out pinball loss, excess over the best and its
+    /// standard error; empty when smoothing is off.
+    pub candidates: Vec<[f64; 4]>,
 }
 
 /// The residual-kriging stage of a target, as the page shows it: the variogram fitted to the

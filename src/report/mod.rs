@@ -25,6 +25,7 @@ pub mod kriging;
 pub mod labels;
 pub mod markup;
 pub mod picture;
+pub mod smoothing;
 pub mod spread;
 pub mod totals;
 pub mod verdicts;
