@@ -13,11 +13,12 @@
 //! spacings), by step, and by whether the node's P50 is the "no change" atom.
 //!
 //! `cargo run --release --example totals_calibration -- [--seeds N] [--first S] [--out DIR]
-//! [--no-calibration-draw] [--no-atom TARGET]... [--mean zero|estimated]
+//! [--no-calibration-draw] [--no-atom TARGET]... [--mean zero|estimated] [--smoothing WIDTHS]
 //! [--conditioning measured|held_out|well_nodes] [--observers N]` (defaults: 30 seeds
 //! from 1, fields under `target/totals_calibration`; `--no-calibration-draw` sets `[totals]
 //! calibration_uncertainty = false` in every manifest, `--no-atom dP` sets `zero_change = false`
 //! for that target, `--mean` sets `[totals] mean`, `--conditioning` `[totals] conditioning`,
+//! `--smoothing '"auto"'` appends `[smoothing] widths = ...` (TOML value as given),
 //! `--observers` adds that many observation wells at random places to the 44 flowing wells).
 //!
 //! Every case (seed, quantity, step) is also written to `cases.csv` under the output folder:
@@ -183,6 +184,7 @@ fn main() {
     let mut mean_rule: Option<String> = None;
     let mut conditioning: Option<String> = None;
     let mut observers = 0usize;
+    let mut smoothing: Option<String> = None;
     let mut in_sample: BTreeMap<String, (usize, usize)> = BTreeMap::new();
     let mut cases = String::from(
         "seed,quantity,step,truth,p10,p90,mean,sd,wells_mean,wells_se,wells_plain_mean,wells\n",
@@ -201,6 +203,7 @@ fn main() {
                     .and_then(|v| v.parse().ok())
                     .expect("--observers N")
             }
+            "--smoothing" => smoothing = Some(args.next().expect("--smoothing WIDTHS")),
             "--no-atom" => no_atom.push(args.next().expect("--no-atom TARGET")),
             "--mean" => mean_rule = Some(args.next().expect("--mean zero|estimated")),
             "--conditioning" => {
@@ -257,6 +260,11 @@ fn main() {
         if let Some(rule) = &mean_rule {
             let text = std::fs::read_to_string(&manifest).expect("manifest");
             let text = text.replacen("[totals]\n", &format!("[totals]\nmean = \"{rule}\"\n"), 1);
+            std::fs::write(&manifest, text).expect("manifest");
+        }
+        if let Some(w) = &smoothing {
+            let mut text = std::fs::read_to_string(&manifest).expect("manifest");
+            text.push_str(&format!("\n[smoothing]\nwidths = {w}\n"));
             std::fs::write(&manifest, text).expect("manifest");
         }
         if !draw {
