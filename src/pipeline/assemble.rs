@@ -174,6 +174,15 @@ fn settings_table(project: &Project, wells_vs_nodes: Option<&ShiftSummary>) -> V
         kv("folds", format!("{:?}, k = {}", c.fold_method, c.folds)),
         kv("end correction", format!("{}", c.end_correction)),
         kv(
+            "smoothing widths",
+            if project.smoothing.is_empty() {
+                "off".to_string()
+            } else {
+                let w: Vec<String> = project.smoothing.iter().map(|w| format!("{w} m")).collect();
+                format!("{} (each target keeps none or one)", w.join(", "))
+            },
+        ),
+        kv(
             "Mondrian bins",
             format!(
                 "at most {}, at least {} wells each",

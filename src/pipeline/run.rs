@@ -375,6 +375,7 @@ fn run_record(
             "extract": project.extract,
             "totals": project.totals,
             "area": { "unsampled": project.unsampled },
+            "smoothing": { "widths": project.smoothing },
             "formats": opts.formats,
         }),
         convention: convention_text(model.convention, model.level),
