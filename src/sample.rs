@@ -384,22 +384,38 @@ pub fn node_features(survey: &Survey, step: usize) -> Array2<f64> {
 /// # Panics
 /// If `step` is not a step of the survey.
 pub fn node_features_at(survey: &Survey, step: usize, width: f64) -> Array2<f64> {
+    let plain = node_features(survey, step);
     if width <= 0.0 {
-        return node_features(survey, step);
+        return plain;
     }
+    let na = plain.ncols() - 1;
+    ndarray::concatenate(
+        ndarray::Axis(1),
+        &[
+            plain.slice(ndarray::s![.., ..na]),
+            smoothed_attributes(survey, step, width).view(),
+            plain.slice(ndarray::s![.., na..]),
+        ],
+    )
+    .expect("both tables have one row per node")
+}
+
+/// Every attribute map of a step smoothed by a Gaussian of `width` metres
+/// ([`crate::smooth::smooth_map`]): one row per node, one column per attribute.
+///
+/// # Panics
+/// If `step` is not a step of the survey.
+pub fn smoothed_attributes(survey: &Survey, step: usize, width: f64) -> Array2<f64> {
     let maps = &survey.maps[step];
     let grid = &survey.project.grid;
     let n = grid.len();
-    let na = maps.len();
-    let mut x = Array2::from_elem((n, 2 * na + 1), f64::NAN);
+    let mut x = Array2::from_elem((n, maps.len()), f64::NAN);
     for (a, map) in maps.iter().enumerate() {
         let smooth = crate::smooth::smooth_map(grid, map, width);
-        for (r, (&v, s)) in map.iter().zip(smooth).enumerate().take(n) {
-            x[[r, a]] = v;
-            x[[r, na + a]] = s;
+        for (r, s) in smooth.into_iter().enumerate().take(n) {
+            x[[r, a]] = s;
         }
     }
-    x.column_mut(2 * na).fill(step as f64);
     x
 }
 

@@ -144,10 +144,9 @@ impl SavedModel {
         out.slice_mut(ndarray::s![.., ..na])
             .assign(&plain.slice(ndarray::s![.., ..na]));
         for (b, &w) in widths.iter().enumerate() {
-            let block = crate::sample::node_features_at(survey, step, w);
             let c0 = na * (1 + b);
             out.slice_mut(ndarray::s![.., c0..c0 + na])
-                .assign(&block.slice(ndarray::s![.., na..2 * na]));
+                .assign(&crate::sample::smoothed_attributes(survey, step, w));
         }
         let last = out.ncols() - 1;
         out.column_mut(last).assign(&plain.column(na));

@@ -26,16 +26,18 @@ use tidemark::pipeline::stages::Stages;
 use tidemark::sample;
 use tidemark::synth::{SynthSettings, generate, write_project};
 
-struct Field {
-    manifest: PathBuf,
-    dir: PathBuf,
-    plain: TruthScore,
+/// The generated field, its plain run's scores (results in `dir/../results`) and the perturbed
+/// run's; shared with `pipeline::smoothing`, which runs the same field with smoothing on.
+pub(crate) struct Field {
+    pub(crate) manifest: PathBuf,
+    pub(crate) dir: PathBuf,
+    pub(crate) plain: TruthScore,
     perturbed: TruthScore,
 }
 
 /// A 90 x 72 field, 40 wells, 3 steps, with the lobe and the gas cap; run, scored, then fitted
 /// again on perturbed attributes and scored again.
-fn field() -> &'static Field {
+pub(crate) fn field() -> &'static Field {
     static F: OnceLock<Field> = OnceLock::new();
     F.get_or_init(|| {
         let root = PathBuf::from(env!("CARGO_TARGET_TMPDIR")).join("between-wells");

@@ -1,7 +1,7 @@
 //! Integration tests: calibrate (folds, isotonic regression, conformal bands, exceedance
 //! probabilities, metrics).
 
-mod between_wells;
+pub(crate) mod between_wells;
 mod coverage;
 mod end_correction;
 mod folds;

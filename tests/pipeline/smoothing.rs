@@ -10,7 +10,6 @@ use tidemark::pipeline::run::{self, RunOptions};
 use tidemark::pipeline::scale::one_se_choice;
 use tidemark::pipeline::score::{BandFigures, TruthScore, score_with};
 use tidemark::project::Project;
-use tidemark::synth::{SynthSettings, generate, write_project};
 
 const GRID: &str = r#"
 [grid]
@@ -103,49 +102,42 @@ fn the_one_standard_error_rule_keeps_the_least_smoothing_within_one_se() {
 
 struct Runs {
     dir: PathBuf,
-    plain: TruthScore,
+    plain: &'static TruthScore,
+    plain_out: PathBuf,
     smooth: TruthScore,
     smooth_out: PathBuf,
     smooth_manifest: PathBuf,
 }
 
-/// The 90 x 72 field of `calibrate::between_wells` (seed 5, 40 wells, 3 steps), run as generated
-/// (smoothing off) and with `[smoothing] widths = "auto"`.
+/// The field of `calibrate::between_wells` (seed 5, 90 x 72, 40 wells, 3 steps, both unlike
+/// regions), whose run there is the plain one (smoothing off), run again here with
+/// `[smoothing] widths = "auto"`.
 fn runs() -> &'static Runs {
     static R: OnceLock<Runs> = OnceLock::new();
     R.get_or_init(|| {
+        let f = crate::calibrate::between_wells::field();
         let root = PathBuf::from(env!("CARGO_TARGET_TMPDIR")).join("smoothing");
         if root.exists() {
             std::fs::remove_dir_all(&root).unwrap();
         }
-        let dir = root.join("field");
-        let settings = SynthSettings {
-            seed: 5,
-            nx: 90,
-            ny: 72,
-            wells: 40,
-            steps: 3,
-            gas_cap: true,
-            ..SynthSettings::default()
-        };
-        write_project(&generate(&settings).expect("generate"), &settings, &dir).expect("write");
-        let manifest = dir.join("project.toml");
-        let smooth_manifest = dir.join("smooth.toml");
-        let text = std::fs::read_to_string(&manifest).unwrap();
+        std::fs::create_dir_all(&root).unwrap();
+        let smooth_manifest = f.dir.join("smooth.toml");
+        let text = std::fs::read_to_string(&f.manifest).unwrap();
         std::fs::write(
             &smooth_manifest,
             format!("{text}\n[smoothing]\nwidths = \"auto\"\n"),
         )
         .unwrap();
-        let score = |m: &Path, out: &Path| {
-            run::run(&RunOptions::maps_only(m, out)).expect("run");
-            score_with(out, &dir, Some(m)).expect("score").0
-        };
         let smooth_out = root.join("smooth");
+        run::run(&RunOptions::maps_only(&smooth_manifest, &smooth_out)).expect("run");
+        let smooth = score_with(&smooth_out, &f.dir, Some(&smooth_manifest))
+            .expect("score")
+            .0;
         Runs {
-            plain: score(&manifest, &root.join("plain")),
-            smooth: score(&smooth_manifest, &smooth_out),
-            dir,
+            dir: root,
+            plain: &f.plain,
+            plain_out: f.dir.parent().unwrap().join("results"),
+            smooth,
             smooth_out,
             smooth_manifest,
         }
@@ -186,7 +178,7 @@ fn smoothing_is_chosen_by_the_wells_and_sharpens_the_pressure_map() {
     // Measured on this field: interval score 10.66 -> 8.26, so the safe side asserted is
     // "better than without"; the coverage of the largest changes pays for it (top decile 0.73
     // -> 0.67), which is why smoothing is off unless asked for.
-    let (a, b) = (all(&r.plain, "dP"), all(&r.smooth, "dP"));
+    let (a, b) = (all(r.plain, "dP"), all(&r.smooth, "dP"));
     eprintln!(
         "dP interval score {:.3} -> {:.3}, pinball {:.4} -> {:.4}",
         a.interval_score, b.interval_score, a.pinball_mean, b.pinball_mean
@@ -194,7 +186,7 @@ fn smoothing_is_chosen_by_the_wells_and_sharpens_the_pressure_map() {
     assert!(b.interval_score < a.interval_score);
     assert!(b.pinball_mean < a.pinball_mean);
     // Without the key nothing is smoothed or scored.
-    let plain = SavedModel::load(&r.dir.parent().unwrap().join("plain/model.json")).unwrap();
+    let plain = SavedModel::load(&r.plain_out.join("model.json")).unwrap();
     assert!(plain.widths().is_empty());
     assert!(
         plain
@@ -207,7 +199,7 @@ fn smoothing_is_chosen_by_the_wells_and_sharpens_the_pressure_map() {
 #[test]
 fn predict_with_the_saved_model_smooths_the_maps_the_same_way() {
     let r = runs();
-    let out = r.dir.parent().unwrap().join("predicted");
+    let out = r.dir.join("predicted");
     if out.exists() {
         std::fs::remove_dir_all(&out).unwrap();
     }
