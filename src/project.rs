@@ -287,6 +287,10 @@ pub struct Project {
     /// them by whole-well cross-validation (`pipeline::scale`).
     #[serde(default)]
     pub smoothing: Vec<f64>,
+    /// Targets that may choose a smoothing width (`[smoothing] targets`), in manifest order;
+    /// empty: every target. The others read the plain attributes only.
+    #[serde(default)]
+    pub smoothing_targets: Vec<String>,
     /// Model settings.
     pub model: ModelSection,
     /// Calibration settings.
@@ -594,6 +598,7 @@ struct RawExtract {
 #[serde(deny_unknown_fields)]
 struct RawSmoothing {
     widths: Option<RawWidths>,
+    targets: Option<Vec<String>>,
 }
 
 /// `widths = "auto" | "off" | [metres, ...]`.
@@ -648,6 +653,57 @@ fn smoothing_widths(raw: Option<RawSmoothing>, grid: &Grid) -> Result<Vec<f64>, 
     widths.sort_by(f64::total_cmp);
     widths.dedup();
     Ok(widths)
+}
+
+/// The checked `[smoothing] targets`: each a target of the manifest, none twice, kept in
+/// manifest order; absent means every target (an empty list is refused: it would switch
+/// smoothing off, which `widths = "off"` says plainly).
+fn smoothed_targets(
+    raw: Option<&[String]>,
+    targets: &[TargetSpec],
+) -> Result<Vec<String>, ManifestError> {
+    let Some(list) = raw else {
+        return Ok(Vec::new());
+    };
+    let key = "smoothing.targets";
+    if list.is_empty() {
+        return Err(ManifestError::Inconsistent {
+            key: key.into(),
+            message: "an empty list; leave the key out for every target, or set \
+                      widths = \"off\" for none"
+                .into(),
+        });
+    }
+    for (i, name) in list.iter().enumerate() {
+        let known = targets.iter().any(|t| &t.name == name);
+        if !known || list[..i].contains(name) {
+            let names: Vec<&str> = targets.iter().map(|t| t.name.as_str()).collect();
+            return Err(ManifestError::Inconsistent {
+                key: format!("{key}[{i}]"),
+                message: if known {
+                    format!("target \"{}\" is listed twice", io::excerpt(name))
+                } else {
+                    format!(
+                        "\"{}\" is not a target of the manifest (targets: {})",
+                        io::excerpt(name),
+                        names.join(", ")
+                    )
+                },
+            });
+        }
+    }
+    Ok(targets
+        .iter()
+        .filter(|t| list.contains(&t.name))
+        .map(|t| t.name.clone())
+        .collect())
+}
+
+impl Project {
+    /// Whether target `name` may choose a smoothing width (`[smoothing] targets`).
+    pub fn may_smooth(&self, name: &str) -> bool {
+        self.smoothing_targets.is_empty() || self.smoothing_targets.iter().any(|t| t == name)
+    }
 }
 
 #[derive(Deserialize)]
@@ -1295,6 +1351,10 @@ fn check(raw: RawManifest, manifest_path: PathBuf) -> Result<Project, ManifestEr
     };
 
     // [smoothing]
+    let smoothing_targets = smoothed_targets(
+        raw.smoothing.as_ref().and_then(|r| r.targets.as_deref()),
+        &targets,
+    )?;
     let smoothing = smoothing_widths(raw.smoothing, &grid)?;
 
     // [model]
@@ -1544,6 +1604,7 @@ fn check(raw: RawManifest, manifest_path: PathBuf) -> Result<Project, ManifestEr
         thresholds,
         extract,
         smoothing,
+        smoothing_targets,
         model,
         calibration,
         infill,

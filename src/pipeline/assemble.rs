@@ -179,7 +179,12 @@ fn settings_table(project: &Project, wells_vs_nodes: Option<&ShiftSummary>) -> V
                 "off".to_string()
             } else {
                 let w: Vec<String> = project.smoothing.iter().map(|w| format!("{w} m")).collect();
-                format!("{} (each target keeps none or one)", w.join(", "))
+                let who = if project.smoothing_targets.is_empty() {
+                    "each target".to_string()
+                } else {
+                    format!("each of {}", project.smoothing_targets.join(", "))
+                };
+                format!("{} ({who} keeps none or one)", w.join(", "))
             },
         ),
         kv(
@@ -315,6 +320,7 @@ fn target_report(t: &TargetSummary, studies: &Sensitivity) -> ri::TargetReport {
                 .iter()
                 .map(|c| [c.width, c.loss, c.excess, c.se])
                 .collect(),
+            offered: t.smoothing.offered,
         }),
     }
 }

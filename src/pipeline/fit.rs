@@ -199,18 +199,24 @@ pub fn importance(
     Ok(out)
 }
 
-/// Each target's smoothing width ([`super::scale::choose`]) and its own training set (the
-/// plain one's rows with the attributes at that width).
+/// Each target's smoothing width ([`super::scale::choose`]; none for a target that `offered`
+/// leaves out, `[smoothing] targets`) and its own training set (the plain one's rows with the
+/// attributes at that width).
 pub fn target_sets(
     ts: &TrainingSet,
     folds: &[usize],
     settings: &CalibrationSettings,
+    offered: &[bool],
 ) -> Result<(Vec<WidthChoice>, Vec<TrainingSet>), PipelineError> {
     let mut choices = Vec::new();
     let mut sets = Vec::new();
     for t in 0..ts.target_names.len() {
         let rows = target_rows(ts, t);
-        let choice = super::scale::choose(ts, t, &rows, folds, settings)?;
+        let choice = if offered.get(t).copied().unwrap_or(true) {
+            super::scale::choose(ts, t, &rows, folds, settings)?
+        } else {
+            WidthChoice::not_offered()
+        };
         sets.push(
             ts.at_width(choice.width)
                 .expect("the chosen width is one of the training set's"),
@@ -278,7 +284,12 @@ pub fn fit_model_keeping(
         settings.folds,
         settings.seed,
     );
-    let (choices, sets) = target_sets(ts, &folds, &settings)?;
+    let offered: Vec<bool> = ts
+        .target_names
+        .iter()
+        .map(|n| survey.project.may_smooth(n))
+        .collect();
+    let (choices, sets) = target_sets(ts, &folds, &settings, &offered)?;
     let imp = importance(&sets, &settings)?;
     // The area of applicability lives in the plain attributes' space, so its weights are the
     // importance of forests on the plain attributes, whatever each target smooths: the area

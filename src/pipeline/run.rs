@@ -375,7 +375,14 @@ fn run_record(
             "extract": project.extract,
             "totals": project.totals,
             "area": { "unsampled": project.unsampled },
-            "smoothing": { "widths": project.smoothing },
+            "smoothing": {
+                "widths": project.smoothing,
+                "targets": if project.smoothing_targets.is_empty() {
+                    project.targets.iter().map(|t| t.name.clone()).collect()
+                } else {
+                    project.smoothing_targets.clone()
+                },
+            },
             "formats": opts.formats,
         }),
         convention: convention_text(model.convention, model.level),

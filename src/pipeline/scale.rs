@@ -54,6 +54,14 @@ pub struct WidthChoice {
     pub candidates: Vec<WidthScore>,
     /// Wells scored.
     pub wells: usize,
+    /// False when `[smoothing] targets` leaves this target out (absent in models written
+    /// before the key existed: true).
+    #[serde(default = "offered")]
+    pub offered: bool,
+}
+
+fn offered() -> bool {
+    true
 }
 
 impl WidthChoice {
@@ -63,6 +71,15 @@ impl WidthChoice {
             width: 0.0,
             candidates: Vec::new(),
             wells: 0,
+            offered: true,
+        }
+    }
+
+    /// No smoothing because the manifest does not offer it to the target.
+    pub fn not_offered() -> WidthChoice {
+        WidthChoice {
+            offered: false,
+            ..WidthChoice::none()
         }
     }
 }
@@ -169,6 +186,7 @@ pub fn one_se_choice(widths: &[f64], per_well: &[Vec<f64>]) -> WidthChoice {
         width: widths.get(kept).copied().unwrap_or(0.0),
         candidates,
         wells: n,
+        offered: true,
     }
 }
 

@@ -149,6 +149,13 @@ pub struct SmoothingChoice {
     /// Each candidate: width (metres), mean held-out pinball loss, excess over the best and its
     /// standard error; empty when smoothing is off.
     pub candidates: Vec<[f64; 4]>,
+    /// False when the manifest's `[smoothing] targets` leaves the target out.
+    #[serde(default = "yes")]
+    pub offered: bool,
+}
+
+fn yes() -> bool {
+    true
 }
 
 /// The residual-kriging stage of a target, as the page shows it: the variogram fitted to the

@@ -10,6 +10,13 @@ use super::markup::{escape, num};
 /// One paragraph (and, when smoothing was on, a table of the candidates) for one target.
 pub fn smoothing_block(h: &mut String, t: &TargetReport) {
     h.push_str("<h4>Smoothing of the attribute maps</h4>\n");
+    if t.smoothing.as_ref().is_some_and(|s| !s.offered) {
+        h.push_str(
+            "<p class=\"note\">Not offered: <code>[smoothing] targets</code> in the manifest \
+             leaves this target out, so its trees read each node's own attribute values.</p>\n",
+        );
+        return;
+    }
     let Some(s) = t.smoothing.as_ref().filter(|s| !s.candidates.is_empty()) else {
         h.push_str(
             "<p class=\"note\">Off: the trees read each node's own attribute values \

@@ -68,10 +68,25 @@ fn the_manifest_key_defaults_to_off_and_checks_its_widths() {
         ("widths = [1250.5]", "at most 50 node spacings"),
         ("widths = [1, 2, 3, 4, 5, 6, 7, 8, 9]", "at most 8 widths"),
         ("width = 100.0", "width"),
+        ("targets = []", "smoothing.targets"),
+        (
+            "targets = [\"dX\"]",
+            "smoothing.targets[0]: \"dX\" is not a target",
+        ),
+        (
+            "targets = [\"dP\", \"dP\"]",
+            "smoothing.targets[1]: target \"dP\" is listed twice",
+        ),
     ] {
         let e = load(&format!("[smoothing]\n{bad}\n")).unwrap_err();
         assert!(e.contains(says), "{bad}: {e}");
     }
+    // Every target may smooth unless the key lists some.
+    let all = load("[smoothing]\nwidths = \"auto\"\n").unwrap();
+    assert!(all.smoothing_targets.is_empty() && all.may_smooth("dP"));
+    let some = load("[smoothing]\nwidths = \"auto\"\ntargets = [\"dP\"]\n").unwrap();
+    assert_eq!(some.smoothing_targets, ["dP"]);
+    assert!(some.may_smooth("dP") && !some.may_smooth("dSw"));
 }
 
 /// The one-standard-error rule (Breiman, Friedman, Olshen & Stone 1984, section 3.4.3) on four
@@ -194,6 +209,36 @@ fn smoothing_is_chosen_by_the_wells_and_sharpens_the_pressure_map() {
             .iter()
             .all(|c| c.candidates.is_empty())
     );
+}
+
+/// `[smoothing] targets = ["dP"]`: dP chooses among the same candidates as when every target
+/// may smooth, the others are not offered any and map exactly as without smoothing.
+#[test]
+fn targets_left_out_of_smoothing_read_the_plain_attributes() {
+    let r = runs();
+    let manifest = r.smooth_manifest.with_file_name("smooth_dp.toml");
+    let text = std::fs::read_to_string(&r.smooth_manifest).unwrap();
+    std::fs::write(&manifest, format!("{text}targets = [\"dP\"]\n")).unwrap();
+    let out = r.dir.join("smooth_dp");
+    run::run(&RunOptions::maps_only(&manifest, &out)).expect("run");
+    let model = SavedModel::load(&out.join("model.json")).unwrap();
+    let every = SavedModel::load(&r.smooth_out.join("model.json")).unwrap();
+    assert_eq!(model.smoothing_choice[0], every.smoothing_choice[0], "dP");
+    for t in 1..3 {
+        let c = &model.smoothing_choice[t];
+        assert!(
+            !c.offered && c.width == 0.0 && c.candidates.is_empty(),
+            "{c:?}"
+        );
+    }
+    for name in ["dSw_p50.tif", "dSw_p90.tif", "dSg_p10.tif", "dSg_p50.tif"] {
+        let a = std::fs::read(r.plain_out.join("maps/m2").join(name)).unwrap();
+        let b = std::fs::read(out.join("maps/m2").join(name)).unwrap();
+        assert!(a == b, "{name} differs from the run without smoothing");
+    }
+    let dp_plain = std::fs::read(r.plain_out.join("maps/m2/dP_p50.tif")).unwrap();
+    let dp = std::fs::read(out.join("maps/m2/dP_p50.tif")).unwrap();
+    assert!(dp != dp_plain, "dP smooths (width {})", model.width(0));
 }
 
 #[test]
