@@ -180,11 +180,14 @@ fn settings_table(project: &Project, wells_vs_nodes: Option<&ShiftSummary>) -> V
             } else {
                 let w: Vec<String> = project.smoothing.iter().map(|w| format!("{w} m")).collect();
                 let who = if project.smoothing_targets.is_empty() {
-                    "each target".to_string()
+                    "every target".to_string()
                 } else {
-                    format!("each of {}", project.smoothing_targets.join(", "))
+                    project.smoothing_targets.join(", ")
                 };
-                format!("{} ({who} keeps none or one)", w.join(", "))
+                format!(
+                    "{} (offered to {who}; each keeps none or one)",
+                    w.join(", ")
+                )
             },
         ),
         kv(
