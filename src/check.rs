@@ -639,6 +639,13 @@ pub fn check_project(path: &Path) -> CheckReport {
             project.manifest_path.display()
         )));
     }
+    if project.smoothing.is_empty() && !project.smoothing_targets.is_empty() {
+        warnings.push(Finding::plain(format!(
+            "{}: smoothing.targets lists targets but the smoothing widths are off, so nothing is \
+             smoothed (set smoothing.widths to \"auto\" or a list of widths)",
+            project.manifest_path.display()
+        )));
+    }
 
     // Wells and extraction.
     match project.read_wells_all() {

@@ -104,6 +104,28 @@ fn null_fraction_and_warnings_are_reported() {
 }
 
 #[test]
+fn smoothing_targets_without_widths_are_a_warning_not_an_error() {
+    let dir = tempfile::tempdir().unwrap();
+    let manifest = tiny_project(dir.path());
+    let text = std::fs::read_to_string(&manifest).unwrap();
+    let warned = |extra: &str| -> Vec<String> {
+        std::fs::write(&manifest, format!("{text}\n[smoothing]\n{extra}\n")).unwrap();
+        let report = check_project(&manifest);
+        assert!(report.runnable, "{report}");
+        report
+            .problems
+            .iter()
+            .filter(|p| p.severity == Severity::Warning && p.message.contains("smoothing"))
+            .map(|p| p.message.clone())
+            .collect()
+    };
+    let off = warned("targets = [\"dSw\"]");
+    assert_eq!(off.len(), 1, "{off:?}");
+    assert!(off[0].contains("smoothing.targets") && off[0].contains("widths are off"));
+    assert!(warned("targets = [\"dSw\"]\nwidths = \"auto\"").is_empty());
+}
+
+#[test]
 fn binary_prints_json_and_exits_zero() {
     let dir = tempfile::tempdir().unwrap();
     let manifest = tiny_project(dir.path());
