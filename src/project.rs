@@ -699,13 +699,6 @@ fn smoothed_targets(
         .collect())
 }
 
-impl Project {
-    /// Whether target `name` may choose a smoothing width (`[smoothing] targets`).
-    pub fn may_smooth(&self, name: &str) -> bool {
-        self.smoothing_targets.is_empty() || self.smoothing_targets.iter().any(|t| t == name)
-    }
-}
-
 #[derive(Deserialize)]
 #[serde(deny_unknown_fields)]
 struct RawModel {
@@ -869,6 +862,11 @@ fn line_column(text: &str, offset: usize) -> (usize, usize) {
 }
 
 impl Project {
+    /// Whether target `name` may choose a smoothing width (`[smoothing] targets`).
+    pub fn may_smooth(&self, name: &str) -> bool {
+        self.smoothing_targets.is_empty() || self.smoothing_targets.iter().any(|t| t == name)
+    }
+
     /// Reads and checks a manifest. Paths in it are resolved against its folder.
     pub fn load(path: &Path) -> Result<Project, ProjectError> {
         let read_err = |source| ProjectError::Read {
